@@ -1,0 +1,104 @@
+package outfile
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+)
+
+// tempPattern marks ferry's temporary files, so that a user who finds one
+// after a power cut knows where it came from.
+const tempPattern = ".ferry-partial-*"
+
+// Write creates the file at path from what fill writes, whole or not at all.
+// fill writes into a buffered temporary file in the same folder; only when
+// fill returns nil, the data are synced and ctx is still live is the file
+// renamed onto path. On any error, or when ctx is cancelled (an interrupt),
+// the temporary file is removed and path is left as it was.
+func Write(ctx context.Context, path string, fill func(w io.Writer) error) (err error) {
+	dir := filepath.Dir(path)
+	tmp, err := os.CreateTemp(dir, tempPattern)
+	if err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	defer func() {
+		if err != nil {
+			tmp.Close()
+			os.Remove(tmp.Name())
+		}
+	}()
+	buf := bufio.NewWriterSize(tmp, 1<<16)
+	if err := fill(buf); err != nil {
+		return err
+	}
+	if err := buf.Flush(); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if err := tmp.Sync(); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if err := tmp.Close(); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if err := ctx.Err(); err != nil {
+		return fmt.Errorf("%s not written: %w", path, err)
+	}
+	// A temporary file is created 0600; an output should read like any
+	// other file the user makes.
+	if err := os.Chmod(tmp.Name(), 0o644); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if err := os.Rename(tmp.Name(), path); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	return nil
+}
+
+// WriteBytes is Write for data already in memory.
+func WriteBytes(ctx context.Context, path string, data []byte) error {
+	return Write(ctx, path, func(w io.Writer) error {
+		_, err := w.Write(data)
+		return err
+	})
+}
+
+// NotAnInput returns an error when out names the same file as one of the
+// inputs, by path or, where both exist, by identity (a link or another
+// spelling of the same path). ferry never writes over its own input.
+func NotAnInput(out string, inputs ...string) error {
+	absOut, err := filepath.Abs(out)
+	if err != nil {
+		return fmt.Errorf("output %s: %w", out, err)
+	}
+	outInfo, outErr := os.Stat(out)
+	for _, in := range inputs {
+		if in == "" {
+			continue
+		}
+		absIn, err := filepath.Abs(in)
+		if err == nil && absIn == absOut {
+			return fmt.Errorf("output %s is also an input: refusing to write over it", out)
+		}
+		if outErr != nil {
+			continue
+		}
+		if inInfo, err := os.Stat(in); err == nil && os.SameFile(inInfo, outInfo) {
+			return fmt.Errorf("output %s is the same file as input %s: refusing to write over it", out, in)
+		}
+	}
+	return nil
+}
+
+// unwrapPathError drops the temporary name from an *os.PathError, which
+// would only confuse a user who never asked for that file.
+func unwrapPathError(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
+}
