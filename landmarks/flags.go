@@ -1,0 +1,98 @@
+package landmarks
+
+import (
+	"encoding/csv"
+	"fmt"
+	"strconv"
+	"strings"
+
+	"ferry/transform"
+)
+
+// ParseTriple reads the value of a per-axis flag such as
+// "--source-voxel 0.5,0.5,2" or "--cell-sd 1,1,3": dim comma-separated
+// numbers (X,Y,Z in 3-D, X,Y in 2-D, when Z is zero), each positive and
+// finite, in micrometres. flagName, with its dashes, starts every message.
+func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
+	var v transform.Vec
+	axes := "X,Y,Z"
+	switch dim {
+	case 2:
+		axes = "X,Y"
+	case 3:
+	default:
+		return v, fmt.Errorf("%s: dimension %d: want 2 or 3", flagName, dim)
+	}
+	fail := func(why string) error {
+		return fmt.Errorf("%s: want %d positive numbers %s in micrometres, got %s (%s)", flagName, dim, axes, quote(value), why)
+	}
+	parts := strings.Split(value, ",")
+	if len(parts) != dim {
+		n := len(parts)
+		if strings.TrimSpace(value) == "" {
+			n = 0
+		}
+		return v, fail(fmt.Sprintf("%d %s", n, plural(n, "number", "numbers")))
+	}
+	for a, part := range parts {
+		x, msg := parseNumber(part)
+		if msg != "" {
+			return v, fail(axes[2*a:2*a+1] + ": " + msg)
+		}
+		if !(x > 0) {
+			return v, fail(axes[2*a:2*a+1] + " is not positive")
+		}
+		v[a] = x
+	}
+	return v, nil
+}
+
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return one
+	}
+	return many
+}
+
+// ParseIDList reads the value of a flag such as "--exclude L3,L7": ids
+// separated by commas, each trimmed of spaces. An id that itself holds a
+// comma can be given in double quotes, as in a CSV file. An empty value is an
+// empty list; an empty item, or an id given twice, is an error naming the
+// flag.
+func ParseIDList(flagName, value string) ([]string, error) {
+	if strings.TrimSpace(value) == "" {
+		return nil, nil
+	}
+	r := csv.NewReader(strings.NewReader(value))
+	r.TrimLeadingSpace = true
+	ids, err := r.Read()
+	if err == nil {
+		if _, more := r.Read(); more == nil {
+			err = fmt.Errorf("the list holds a line break")
+		}
+	}
+	if err != nil {
+		if pe, ok := err.(*csv.ParseError); ok {
+			err = pe.Err
+		}
+		return nil, fmt.Errorf("%s: cannot read the id list %s: %v", flagName, quote(value), err)
+	}
+	seen := make(map[string]bool, len(ids))
+	for i, id := range ids {
+		id = strings.TrimSpace(id)
+		switch {
+		case id == "":
+			return nil, fmt.Errorf("%s: empty id (item %d) in %s", flagName, i+1, quote(value))
+		case seen[id]:
+			return nil, fmt.Errorf("%s: id %s given twice", flagName, quote(id))
+		}
+		seen[id] = true
+		ids[i] = id
+	}
+	return ids, nil
+}
+
+// formatMicrometres writes a length for a message.
+func formatMicrometres(x float64) string {
+	return strconv.FormatFloat(x, 'g', 3, 64) + " µm"
+}

@@ -1,0 +1,289 @@
+package landmarks
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+)
+
+// table reads a CSV table row by row, after its header.
+type table struct {
+	name   string
+	text   *textReader
+	csv    *csv.Reader
+	header []string
+	// headerLine is the physical line of the header row.
+	headerLine int
+	// columns maps a lower-case header name to its index.
+	columns map[string]int
+	// record is the current row, reused from one row to the next; its
+	// strings are fresh for every row and may be kept.
+	record []string
+}
+
+// openTable reads up to and including the header row of r.
+func openTable(name string, r io.Reader) (*table, error) {
+	text, err := newTextReader(name, r)
+	if err != nil {
+		return nil, err
+	}
+	c := csv.NewReader(text)
+	c.Comment = '#'
+	c.FieldsPerRecord = -1
+	c.LazyQuotes = false
+	c.ReuseRecord = true
+	c.TrimLeadingSpace = true
+	t := &table{name: name, text: text, csv: c}
+
+	ok, err := t.nextRecord()
+	if err != nil {
+		return nil, err
+	}
+	if !ok {
+		return nil, &InputError{File: name, Msg: "no header row (only comments and blank lines): want a header row naming the columns"}
+	}
+	t.headerLine, _ = c.FieldPos(0)
+	t.header = make([]string, len(t.record))
+	t.columns = make(map[string]int, len(t.record))
+	for i, raw := range t.record {
+		h := strings.TrimSpace(raw)
+		line, _ := c.FieldPos(i)
+		switch {
+		case h == "":
+			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header column %d has no name: every column needs one (is there a stray comma at the end of the line?)", i+1)}
+		case strings.ContainsAny(h, "\r\n"):
+			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header name %s holds a line break (do the lines end in CR alone? use LF or CRLF)", quote(h))}
+		}
+		key := strings.ToLower(h)
+		if j, dup := t.columns[key]; dup {
+			return nil, &InputError{File: name, Line: line, Column: h, Msg: fmt.Sprintf("named twice in the header (columns %d and %d)", j+1, i+1)}
+		}
+		t.columns[key] = i
+		t.header[i] = h
+	}
+	return t, nil
+}
+
+// nextRecord reads the next row that is not blank into t.record and reports
+// whether there was one.
+func (t *table) nextRecord() (bool, error) {
+	for {
+		rec, err := t.csv.Read()
+		if err == io.EOF {
+			return false, nil
+		}
+		if err != nil {
+			return false, t.readError(err)
+		}
+		t.record = rec
+		// encoding/csv skips empty lines itself; a line of spaces reaches
+		// us as one empty field.
+		if len(rec) == 1 && strings.TrimSpace(rec[0]) == "" {
+			continue
+		}
+		return true, nil
+	}
+}
+
+// readError turns an error of the CSV reader into an *InputError.
+func (t *table) readError(err error) error {
+	var in *InputError
+	if errors.As(err, &in) {
+		return in
+	}
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		msg := pe.Err.Error()
+		switch {
+		case errors.Is(pe.Err, csv.ErrBareQuote):
+			msg = fmt.Sprintf("a quote (\") at position %d inside a field that is not quoted: quote the whole field and double any quote within it", pe.Column)
+		case errors.Is(pe.Err, csv.ErrQuote) && pe.StartLine != pe.Line:
+			msg = fmt.Sprintf("a quoted field that starts on line %d is not closed properly (a quote must be doubled inside quotes, and the closing quote be followed by a comma or the end of the line)", pe.StartLine)
+		case errors.Is(pe.Err, csv.ErrQuote):
+			msg = fmt.Sprintf("a quoted field is not closed properly at position %d (a quote must be doubled inside quotes, and the closing quote be followed by a comma or the end of the line)", pe.Column)
+		}
+		return &InputError{File: t.name, Line: pe.Line, Msg: msg}
+	}
+	return &InputError{File: t.name, Msg: "cannot read: " + ioMessage(err)}
+}
+
+// column is the index of the column named name (lower case), or -1.
+func (t *table) column(name string) int {
+	if i, ok := t.columns[name]; ok {
+		return i
+	}
+	return -1
+}
+
+// require returns the indices of the named columns, or an error naming the
+// first one missing. hint, when not empty, is added to that error.
+func (t *table) require(hint string, names ...string) ([]int, error) {
+	idx := make([]int, len(names))
+	for k, name := range names {
+		idx[k] = t.column(name)
+		if idx[k] < 0 {
+			msg := "missing from the header, which has " + strings.Join(t.header, ", ")
+			if allNumbers(t.header) {
+				msg += " (is the header row missing?)"
+			} else if hint != "" {
+				msg += " (" + hint + ")"
+			}
+			return nil, &InputError{File: t.name, Line: t.headerLine, Column: name, Msg: msg}
+		}
+	}
+	return idx, nil
+}
+
+// extras is the indices of the columns not in used, in file order.
+func (t *table) extras(used ...int) []int {
+	var idx []int
+	for i := range t.header {
+		taken := false
+		for _, u := range used {
+			if u == i {
+				taken = true
+				break
+			}
+		}
+		if !taken {
+			idx = append(idx, i)
+		}
+	}
+	return idx
+}
+
+// line is the physical line on which field i of the current row starts.
+func (t *table) line(i int) int {
+	line, _ := t.csv.FieldPos(i)
+	return line
+}
+
+// fail is an *InputError about field i of the current row.
+func (t *table) fail(i int, msg string) *InputError {
+	return &InputError{File: t.name, Line: t.line(i), Column: t.header[i], Msg: msg}
+}
+
+// checkWidth makes sure the current row has one field per header column.
+func (t *table) checkWidth() error {
+	n, want := len(t.record), len(t.header)
+	switch {
+	case n < want:
+		return &InputError{File: t.name, Line: t.line(0), Column: t.header[n],
+			Msg: fmt.Sprintf("missing: the row has %d fields but the header has %d columns", n, want)}
+	case n > want:
+		return &InputError{File: t.name, Line: t.line(want),
+			Msg: fmt.Sprintf("the row has %d fields but the header has %d columns (quote any value that holds a comma)", n, want)}
+	}
+	return nil
+}
+
+// id returns the trimmed id in field i of the current row, or an error when
+// it is empty or was used on an earlier line (seen maps ids to lines).
+func (t *table) id(i int, seen map[string]int) (string, error) {
+	id := strings.TrimSpace(t.record[i])
+	if id == "" {
+		return "", t.fail(i, "empty id: every row needs one")
+	}
+	if first, dup := seen[id]; dup {
+		return "", t.fail(i, fmt.Sprintf("id %s already used on line %d", quote(id), first))
+	}
+	return id, nil
+}
+
+// number parses field i of the current row as a finite decimal number.
+func (t *table) number(i int) (float64, error) {
+	v, msg := parseNumber(t.record[i])
+	if msg != "" {
+		return 0, t.fail(i, msg)
+	}
+	return v, nil
+}
+
+// parseNumber reads s, trimmed of spaces, as a finite decimal number, and
+// otherwise returns a message saying why it is not one.
+func parseNumber(s string) (float64, string) {
+	s = strings.TrimSpace(s)
+	if s == "" {
+		return 0, "empty: want a number"
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil {
+		if errors.Is(err, strconv.ErrRange) {
+			return 0, quote(s) + " is out of range for a number"
+		}
+		if strings.IndexByte(s, ',') >= 0 {
+			return 0, quote(s) + " is not a number (use a point as the decimal mark)"
+		}
+		return 0, quote(s) + " is not a number"
+	}
+	switch {
+	case math.IsNaN(v):
+		return 0, quote(s) + " is not a number: want a finite number"
+	case math.IsInf(v, 0):
+		return 0, quote(s) + " is infinite: want a finite number"
+	case strings.IndexAny(s, "xX") >= 0:
+		// strconv also reads hexadecimal floats such as 0x1p4, which no
+		// one writes in a table of micrometres on purpose.
+		return 0, quote(s) + " is not a decimal number"
+	}
+	return v, ""
+}
+
+// allNumbers reports whether every name reads as a number, as it does when
+// the first data row was taken for the header.
+func allNumbers(names []string) bool {
+	for _, s := range names {
+		if _, msg := parseNumber(s); msg != "" {
+			return false
+		}
+	}
+	return len(names) > 0
+}
+
+// stringBlock hands out short slices of strings carved from larger blocks,
+// so that the extra values of a million rows cost a few thousand
+// allocations rather than a million.
+type stringBlock struct {
+	free []string
+}
+
+func (b *stringBlock) take(n int) []string {
+	if n == 0 {
+		return nil
+	}
+	if len(b.free) < n {
+		b.free = make([]string, max(n, 1024*n))
+	}
+	s := b.free[:n:n]
+	b.free = b.free[n:]
+	return s
+}
+
+// openFile opens path for reading, or returns an *InputError saying why not.
+func openFile(path string) (*os.File, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, &InputError{File: path, Msg: "cannot open: " + ioMessage(err)}
+	}
+	if info, err := f.Stat(); err == nil && info.IsDir() {
+		f.Close()
+		return nil, &InputError{File: path, Msg: "is a folder: want a CSV file"}
+	}
+	return f, nil
+}
+
+// ioMessage is the reason of an I/O error without the operation and path,
+// which the *InputError around it already gives.
+func ioMessage(err error) string {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		return pe.Err.Error()
+	}
+	return err.Error()
+}
