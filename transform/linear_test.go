@@ -380,6 +380,47 @@ func TestFitLinearLOOMatchesRefits(t *testing.T) {
 	}
 }
 
+// TestFitLOOParallel: enough pairs for the rigid and similarity refits to
+// run on several goroutines give the same answers as refits one by one, and
+// a failing refit reports its pair.
+func TestFitLOOParallel(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 22))
+	const n = 120
+	for _, kind := range []Kind{Rigid, Similarity} {
+		truth := randomMap(rng, kind, 3, true, 1e5)
+		src := randomPoints(rng, n, 3, 1e5, 400)
+		dst := addNoise(rng, applyAll(truth, src), 3, 2)
+		res, err := Fit(kind, 3, src, dst, Options{LeaveOneOut: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range n {
+			s := append(append([]Vec(nil), src[:i]...), src[i+1:]...)
+			d := append(append([]Vec(nil), dst[:i]...), dst[i+1:]...)
+			refit, err := Fit(kind, 3, s, d, Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := dst[i].Sub(refit.Transform.Apply(src[i]))
+			if diff := res.LOO[i].Sub(want).Norm(); diff > 1e-9*want.Norm() {
+				t.Errorf("%s pair %d: leave-one-out error %v, refit gives %v", kind, i, res.LOO[i], want)
+			}
+		}
+	}
+	// One pair off the line of all the others: the refit without it
+	// leaves the rotation about the line free, and the error, raised on a
+	// worker goroutine, must name that pair.
+	src := make([]Vec, n)
+	for i := range src {
+		src[i] = Vec{1e5 + 3*float64(i), 1e5 + 2*float64(i), 1e5 - float64(i)}
+	}
+	src[70] = src[70].Add(Vec{0, 50, 0})
+	dst := applyAll(randomMap(rng, Rigid, 3, false, 0), src)
+	if _, err := Fit(Rigid, 3, src, dst, Options{LeaveOneOut: true}); err == nil || !strings.Contains(err.Error(), "without pair 70") {
+		t.Errorf("got error %v, want one naming pair 70", err)
+	}
+}
+
 // TestFitLOOKeepsHandedness: an EM block imaged from its far face gives
 // mirrored pairs. Leaving out the one landmark off the plane of the others
 // leaves a mirror and a rotation fitting equally well; the refit must keep
