@@ -1,0 +1,2 @@
+// Package simulate makes a synthetic scenario with known truth.
+package simulate

@@ -1,0 +1,650 @@
+package simulate
+
+import (
+	"cmp"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+
+	"ferry/transform"
+)
+
+// Box is an axis-aligned box, Min ≤ Max on every axis, in micrometres.
+type Box struct {
+	Min transform.Vec `json:"min"`
+	Max transform.Vec `json:"max"`
+}
+
+// Contains reports whether p lies in the box, faces included.
+func (b Box) Contains(p transform.Vec) bool {
+	for i := range 3 {
+		if p[i] < b.Min[i] || p[i] > b.Max[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// shrink moves every face inwards by d.
+func (b Box) shrink(d float64) Box {
+	return Box{Min: b.Min.Add(iso(d)), Max: b.Max.Sub(iso(d))}
+}
+
+// Soma is a neuron of the tissue block.
+type Soma struct {
+	// PositionUM is the true centre in source space.
+	PositionUM transform.Vec
+	// TargetUM is TrueMap(PositionUM).
+	TargetUM transform.Vec
+	// Candidate is the id of its EM nucleus, empty when the soma lies
+	// outside the EM block.
+	Candidate string
+	// Cell is the index in Scenario.Cells when the soma was imaged, else −1.
+	Cell int
+}
+
+// Cell is an imaged, functionally characterised cell.
+type Cell struct {
+	ID string
+	// SourceUM is the position written to the cells file: the true centre
+	// plus in vivo localisation noise.
+	SourceUM transform.Vec
+	// TrueSourceUM and TrueTargetUM are its true positions.
+	TrueSourceUM, TrueTargetUM transform.Vec
+	// InsideEM reports that TrueTargetUM lies in the EM block; then
+	// TrueCandidate is the id of its nucleus, else empty.
+	InsideEM      bool
+	TrueCandidate string
+	Soma          int
+	// Plane is the index of the imaging plane it was recorded in.
+	Plane              int
+	PrefOrientationDeg float64
+	OSI                float64
+}
+
+// CandidateKind says what cell an EM nucleus belongs to.
+type CandidateKind string
+
+// The kinds of EM nuclei.
+const (
+	Neuron      CandidateKind = "neuron"
+	Glia        CandidateKind = "glia"
+	Endothelial CandidateKind = "endothelial"
+)
+
+// Candidate is an EM nucleus centroid.
+type Candidate struct {
+	ID string
+	// TargetUM is the position written to the candidates file (in
+	// micrometres; the file holds voxels when a target voxel size is set).
+	TargetUM transform.Vec
+	// SourceUM is the true source position of the nucleus (for a neuron,
+	// the soma centre).
+	SourceUM         transform.Vec
+	Kind             CandidateKind
+	NucleusVolumeUM3 float64
+	// Soma is the index in Scenario.Somata of a neuron, else −1.
+	Soma int
+}
+
+// Landmark is one landmark pair as written, with its truth.
+type Landmark struct {
+	ID   string
+	Kind string // "vessel" or "soma"
+	// SourceUM and TargetUM are the picked positions (noise included,
+	// and for a wrong pair the wrong target).
+	SourceUM, TargetUM transform.Vec
+	// TrueSourceUM is the feature's true source position and TrueTargetUM
+	// its true target, TrueMap(TrueSourceUM).
+	TrueSourceUM, TrueTargetUM transform.Vec
+	Wrong                      bool
+	// Reason says how a wrong pair is wrong; empty when it is right.
+	Reason string
+	Note   string
+}
+
+// Scenario is a generated tissue block with its in vivo and EM views and
+// the truth that links them.
+type Scenario struct {
+	Params Params
+	Seed   uint64
+	// Map is the true source→target map.
+	Map TrueMapModel
+	// EMBlock is the box of target space (µm) that the EM dataset covers.
+	EMBlock      Box
+	Vessels      []Segment
+	BranchPoints []BranchPoint
+	Somata       []Soma
+	Cells        []Cell
+	Candidates   []Candidate
+	Landmarks    []Landmark
+}
+
+// TrueMap maps a source position (µm) to its true target position (µm).
+func (s *Scenario) TrueMap(p transform.Vec) transform.Vec { return s.Map.Apply(p) }
+
+// TrueJacobian is the derivative of TrueMap at p.
+func (s *Scenario) TrueJacobian(p transform.Vec) transform.Mat { return s.Map.Jacobian(p) }
+
+// TrueInverse is the source position whose true target is q, by Newton's
+// iteration.
+func (s *Scenario) TrueInverse(q transform.Vec) (transform.Vec, error) { return s.Map.Invert(q) }
+
+// WrongLandmarks lists the ids of the wrong landmark pairs.
+func (s *Scenario) WrongLandmarks() []string {
+	var ids []string
+	for _, l := range s.Landmarks {
+		if l.Wrong {
+			ids = append(ids, l.ID)
+		}
+	}
+	return ids
+}
+
+// Each stage draws from its own stream, so that changing one knob (say the
+// number of wrong landmarks) leaves everything drawn before it alone.
+const (
+	streamMap uint64 = iota + 0x5eed0001
+	streamVessels
+	streamSomata
+	streamCells
+	streamCandidates
+	streamNonNeuronal
+	streamLandmarks
+	streamWrong
+)
+
+func stream(seed, which uint64) *rand.Rand { return rand.New(rand.NewPCG(seed, which)) }
+
+// Generate builds the scenario of p drawn from seed. The same p and seed
+// give the same scenario, bit for bit.
+func Generate(p Params, seed uint64) (*Scenario, error) {
+	if err := p.Validate(); err != nil {
+		return nil, err
+	}
+	p.ImagingPlanesUM = slices.Clone(p.ImagingPlanesUM)
+	s := &Scenario{Params: p, Seed: seed}
+	s.Map = newTrueMap(p, stream(seed, streamMap))
+	s.Vessels, s.BranchPoints = growVessels(p, stream(seed, streamVessels))
+
+	field := Box{Max: p.FieldUM}
+	cellSide := p.SomaMinSpacingUM
+	nuclei := newPointGrid(field.Min, field.Max, cellSide)
+	walls := newSegmentGrid(field.Min, field.Max, 20, s.Vessels, p.SomaRadiusUM)
+	if err := s.placeSomata(nuclei, walls); err != nil {
+		return nil, err
+	}
+	if err := s.pickCells(); err != nil {
+		return nil, err
+	}
+	s.cutEMBlock()
+	if err := s.makeCandidates(nuclei, walls); err != nil {
+		return nil, err
+	}
+	if err := s.pickLandmarks(); err != nil {
+		return nil, err
+	}
+	if err := s.spoilLandmarks(); err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+// placeSomata throws darts layer by layer: a dart is kept unless it lies
+// within the minimum spacing of a soma already placed or within the soma
+// radius of a vessel wall (random sequential addition).
+func (s *Scenario) placeSomata(nuclei *pointGrid, walls *segmentGrid) error {
+	p := s.Params
+	rng := stream(s.Seed, streamSomata)
+	area := p.FieldUM[0] * p.FieldUM[1]
+	layers := []struct {
+		top, bottom, density float64
+	}{
+		{0, p.Layer1DepthUM, p.SomaDensityPerMM3 * p.Layer1DensityFactor},
+		{p.Layer1DepthUM, p.FieldUM[2], p.SomaDensityPerMM3},
+	}
+	for _, layer := range layers {
+		want := int(math.Round(layer.density * 1e-9 * area * (layer.bottom - layer.top)))
+		placed := 0
+		for attempts := 0; placed < want; attempts++ {
+			if attempts > 200*want+1000 {
+				return fmt.Errorf("placed only %d of %d somata between depths %v and %v µm: the density %v per mm³ does not fit with a minimum spacing of %v µm around the vessels", placed, want, layer.top, layer.bottom, layer.density, p.SomaMinSpacingUM)
+			}
+			q := transform.Vec{rng.Float64() * p.FieldUM[0], rng.Float64() * p.FieldUM[1], layer.top + rng.Float64()*(layer.bottom-layer.top)}
+			if nuclei.near(q, p.SomaMinSpacingUM) || walls.blocked(q, p.SomaRadiusUM) {
+				continue
+			}
+			nuclei.add(q)
+			s.Somata = append(s.Somata, Soma{PositionUM: q, TargetUM: s.TrueMap(q), Cell: -1})
+			placed++
+		}
+	}
+	return nil
+}
+
+// pickCells draws the imaged cells among the somata near an imaging plane
+// and gives them a measured position and functional measures.
+func (s *Scenario) pickCells() error {
+	p := s.Params
+	if p.ImagedCells == 0 {
+		return nil
+	}
+	rng := stream(s.Seed, streamCells)
+	type eligible struct{ soma, plane int }
+	var pool []eligible
+	for i, so := range s.Somata {
+		best, bestD := -1, math.Inf(1)
+		for k, z := range p.ImagingPlanesUM {
+			if d := math.Abs(so.PositionUM[2] - z); d <= p.PlaneHalfThicknessUM && d < bestD {
+				best, bestD = k, d
+			}
+		}
+		if best >= 0 {
+			pool = append(pool, eligible{i, best})
+		}
+	}
+	if len(pool) < p.ImagedCells {
+		return fmt.Errorf("%d imaged cells asked for but only %d somata lie within %v µm of the imaging planes", p.ImagedCells, len(pool), p.PlaneHalfThicknessUM)
+	}
+	// A partial Fisher–Yates shuffle draws without replacement.
+	for i := range p.ImagedCells {
+		j := i + rng.IntN(len(pool)-i)
+		pool[i], pool[j] = pool[j], pool[i]
+	}
+	chosen := pool[:p.ImagedCells]
+	cells := make([]Cell, len(chosen))
+	for i, e := range chosen {
+		so := s.Somata[e.soma]
+		cells[i] = Cell{
+			SourceUM:           so.PositionUM.Add(gauss3(rng, p.CellSDUM)),
+			TrueSourceUM:       so.PositionUM,
+			TrueTargetUM:       so.TargetUM,
+			Soma:               e.soma,
+			Plane:              e.plane,
+			PrefOrientationDeg: 180 * rng.Float64(),
+			// A logit-normal selectivity: most cells broadly tuned, a
+			// few sharply.
+			OSI: 1 / (1 + math.Exp(-(-0.6 + 0.9*rng.NormFloat64()))),
+		}
+	}
+	// Ids follow the order a segmentation of the planes lists them in:
+	// plane by plane, row by row.
+	slices.SortStableFunc(cells, func(a, b Cell) int {
+		return cmp.Or(cmp.Compare(a.Plane, b.Plane), cmp.Compare(a.SourceUM[1], b.SourceUM[1]), cmp.Compare(a.SourceUM[0], b.SourceUM[0]))
+	})
+	width := digits(len(cells))
+	for i := range cells {
+		cells[i].ID = fmt.Sprintf("c%0*d", width, i+1)
+		s.Somata[cells[i].Soma].Cell = i
+	}
+	s.Cells = cells
+	return nil
+}
+
+// cutEMBlock sets the EM block: the box around the mapped field, with a
+// strip cut off its high-x and its low-y side so that the share
+// EMCoverage of the imaged cells keeps its true target inside.
+func (s *Scenario) cutEMBlock() {
+	p := s.Params
+	lo := transform.Vec{math.Inf(1), math.Inf(1), math.Inf(1)}
+	hi := lo.Scale(-1)
+	const n = 10
+	for i := range n + 1 {
+		for j := range n + 1 {
+			for k := range n + 1 {
+				q := s.TrueMap(transform.Vec{p.FieldUM[0] * float64(i) / n, p.FieldUM[1] * float64(j) / n, p.FieldUM[2] * float64(k) / n})
+				for a := range 3 {
+					lo[a] = math.Min(lo[a], q[a])
+					hi[a] = math.Max(hi[a], q[a])
+				}
+			}
+		}
+	}
+	// A little margin: the grid above can miss the warp's extremes.
+	bound := Box{Min: lo.Sub(iso(2)), Max: hi.Add(iso(2))}
+	size := bound.Max.Sub(bound.Min)
+	cut := func(t float64) Box {
+		b := bound
+		b.Max[0] -= t * p.EMCutShareX * size[0]
+		b.Min[1] += t * (1 - p.EMCutShareX) * size[1]
+		return b
+	}
+	share := func(b Box) float64 {
+		if len(s.Cells) == 0 {
+			return 1
+		}
+		in := 0
+		for _, c := range s.Cells {
+			if b.Contains(c.TrueTargetUM) {
+				in++
+			}
+		}
+		return float64(in) / float64(len(s.Cells))
+	}
+	// The share falls as the cut deepens; bisect for the depth where it
+	// crosses the coverage asked for.
+	t0, t1 := 0.0, 1.0
+	for range 60 {
+		mid := 0.5 * (t0 + t1)
+		if share(cut(mid)) >= p.EMCoverage {
+			t0 = mid
+		} else {
+			t1 = mid
+		}
+	}
+	t := t0
+	if math.Abs(share(cut(t1))-p.EMCoverage) < math.Abs(share(cut(t0))-p.EMCoverage) {
+		t = t1
+	}
+	// Round the faces to 0.1 µm, as a block's extent would be recorded.
+	b := cut(t)
+	for a := range 3 {
+		b.Min[a] = math.Floor(b.Min[a]*10) / 10
+		b.Max[a] = math.Ceil(b.Max[a]*10) / 10
+	}
+	s.EMBlock = b
+}
+
+// makeCandidates turns every soma inside the EM block into a nucleus
+// centroid, adds the non-neuronal nuclei and numbers them all in the order
+// of EM sections.
+func (s *Scenario) makeCandidates(nuclei *pointGrid, walls *segmentGrid) error {
+	p := s.Params
+	rng := stream(s.Seed, streamCandidates)
+	var cands []Candidate
+	for i, so := range s.Somata {
+		if !s.EMBlock.Contains(so.TargetUM) {
+			continue
+		}
+		offset := gauss3(rng, iso(p.NucleusOffsetSDUM)).Add(gauss3(rng, iso(p.EMPickSDUM)))
+		cands = append(cands, Candidate{
+			TargetUM: so.TargetUM.Add(offset),
+			SourceUM: so.PositionUM,
+			Kind:     Neuron,
+			// Nuclear volumes recalled from memory, roughly: neurons
+			// a few hundred µm³, glia and endothelial cells smaller.
+			NucleusVolumeUM3: 380 * math.Exp(0.2*rng.NormFloat64()),
+			Soma:             i,
+		})
+	}
+
+	rng = stream(s.Seed, streamNonNeuronal)
+	others := int(math.Round(p.NonNeuronalShare * float64(len(cands))))
+	endothelial := int(math.Round(p.EndothelialShare * float64(others)))
+	if len(s.Vessels) == 0 {
+		endothelial = 0
+	}
+	cum := segmentLengths(s.Vessels)
+	field := Box{Max: p.FieldUM}
+	wallClearance := 3.0 // a glial nucleus' radius, roughly
+	for k, attempts := 0, 0; k < others; attempts++ {
+		if attempts > 200*others+1000 {
+			return fmt.Errorf("placed only %d of %d non-neuronal nuclei at least %v µm from any other nucleus", k, others, p.GliaMinSpacingUM)
+		}
+		var q transform.Vec
+		kind := Glia
+		if k < endothelial {
+			// On a vessel wall, at a point drawn uniformly along the tree.
+			kind = Endothelial
+			at := rng.Float64() * cum[len(cum)-1]
+			si, _ := slices.BinarySearch(cum, at)
+			si = min(si, len(cum)-1)
+			seg := s.Vessels[si]
+			axis := seg.End.Sub(seg.Start)
+			centre := seg.Start.Add(axis.Scale(rng.Float64()))
+			q = centre.Add(turn(normalise(axis), math.Pi/2, rng).Scale(seg.RadiusUM + 1))
+		} else {
+			q = transform.Vec{rng.Float64() * p.FieldUM[0], rng.Float64() * p.FieldUM[1], rng.Float64() * p.FieldUM[2]}
+			if walls.blocked(q, wallClearance) {
+				continue
+			}
+		}
+		target := s.TrueMap(q)
+		if !field.Contains(q) || !s.EMBlock.Contains(target) || nuclei.near(q, p.GliaMinSpacingUM) {
+			continue
+		}
+		nuclei.add(q)
+		volume := 150 * math.Exp(0.3*rng.NormFloat64())
+		if kind == Endothelial {
+			volume = 120 * math.Exp(0.3*rng.NormFloat64())
+		}
+		cands = append(cands, Candidate{
+			TargetUM:         target.Add(gauss3(rng, iso(p.EMPickSDUM))),
+			SourceUM:         q,
+			Kind:             kind,
+			NucleusVolumeUM3: volume,
+			Soma:             -1,
+		})
+		k++
+	}
+
+	// Number them as a segmentation of the EM volume would, section by
+	// section, so that an id says nothing of the kind.
+	slices.SortStableFunc(cands, func(a, b Candidate) int {
+		return cmp.Or(cmp.Compare(a.TargetUM[2], b.TargetUM[2]), cmp.Compare(a.TargetUM[1], b.TargetUM[1]), cmp.Compare(a.TargetUM[0], b.TargetUM[0]))
+	})
+	width := max(6, digits(len(cands)))
+	for i := range cands {
+		cands[i].ID = fmt.Sprintf("n%0*d", width, i+1)
+		if so := cands[i].Soma; so >= 0 {
+			s.Somata[so].Candidate = cands[i].ID
+		}
+	}
+	s.Candidates = cands
+	for i := range s.Cells {
+		c := &s.Cells[i]
+		c.TrueCandidate = s.Somata[c.Soma].Candidate
+		c.InsideEM = c.TrueCandidate != ""
+	}
+	return nil
+}
+
+// landmarkMargin keeps landmarks this far inside the EM block and the field.
+const landmarkMargin = 5.0
+
+// pickLandmarks draws the vessel and soma landmarks: one at a time, with a
+// chance proportional to how easily a user finds the feature in both
+// images, and never closer than the landmark spacing to one already taken.
+func (s *Scenario) pickLandmarks() error {
+	p := s.Params
+	rng := stream(s.Seed, streamLandmarks)
+	inner := s.EMBlock.shrink(landmarkMargin)
+	field := Box{Max: p.FieldUM}.shrink(landmarkMargin)
+	depthWeight := func(z float64) float64 { return math.Exp(-z / p.LandmarkDepthScaleUM) }
+
+	type feature struct {
+		at     transform.Vec
+		weight float64
+		index  int
+	}
+	var taken []transform.Vec
+	// draw takes want features from pool. Where none is left that far from
+	// those taken, the spacing is relaxed step by step, as a user would
+	// settle for a feature closer to one already picked.
+	draw := func(pool []feature, want int, kind string) ([]feature, error) {
+		spacing := p.LandmarkMinSpacingUM
+		avail := make([]float64, len(pool))
+		used := make([]bool, len(pool))
+		refresh := func() float64 {
+			total := 0.0
+			for i, f := range pool {
+				avail[i] = f.weight
+				if used[i] {
+					avail[i] = 0
+					continue
+				}
+				for _, t := range taken {
+					if t.Sub(f.at).Norm() < spacing {
+						avail[i] = 0
+						break
+					}
+				}
+				total += avail[i]
+			}
+			return total
+		}
+		total := refresh()
+		var out []feature
+		for len(out) < want {
+			for total == 0 {
+				if spacing < 1 {
+					return nil, fmt.Errorf("placed only %d of the %d %s landmarks asked for: too few %s features lie inside the EM block", len(out), want, kind, kind)
+				}
+				spacing *= 0.7
+				total = refresh()
+			}
+			u := rng.Float64() * total
+			pick := -1
+			for i, w := range avail {
+				if w > 0 {
+					pick = i // the last positive one, should rounding run past the end
+					if u < w {
+						break
+					}
+					u -= w
+				}
+			}
+			f := pool[pick]
+			used[pick] = true
+			out = append(out, f)
+			taken = append(taken, f.at)
+			total = 0
+			for i := range pool {
+				if used[i] || f.at.Sub(pool[i].at).Norm() < spacing {
+					avail[i] = 0
+				}
+				total += avail[i]
+			}
+		}
+		return out, nil
+	}
+
+	var vessels []feature
+	for i, b := range s.BranchPoints {
+		if field.Contains(b.PositionUM) && inner.Contains(s.TrueMap(b.PositionUM)) {
+			// Thick vessels show in both images; shallow ones are sharper
+			// in vivo.
+			vessels = append(vessels, feature{b.PositionUM, b.RadiusUM * b.RadiusUM * depthWeight(b.PositionUM[2]), i})
+		}
+	}
+	chosenV, err := draw(vessels, p.VesselLandmarks, "vessel")
+	if err != nil {
+		return err
+	}
+	var somata []feature
+	for i, so := range s.Somata {
+		// The imaged cells are left to be found by matching, not by hand.
+		if so.Cell < 0 && field.Contains(so.PositionUM) && inner.Contains(so.TargetUM) {
+			somata = append(somata, feature{so.PositionUM, depthWeight(so.PositionUM[2]), i})
+		}
+	}
+	chosenS, err := draw(somata, p.SomaLandmarks, "soma")
+	if err != nil {
+		return err
+	}
+
+	width := max(2, digits(max(len(chosenV), len(chosenS))))
+	for i, f := range chosenV {
+		b := s.BranchPoints[f.index]
+		truth := s.TrueMap(b.PositionUM)
+		s.Landmarks = append(s.Landmarks, Landmark{
+			ID:           fmt.Sprintf("v%0*d", width, i+1),
+			Kind:         "vessel",
+			SourceUM:     b.PositionUM.Add(gauss3(rng, p.VesselSourceSDUM)),
+			TargetUM:     truth.Add(gauss3(rng, iso(p.VesselTargetSDUM))),
+			TrueSourceUM: b.PositionUM,
+			TrueTargetUM: truth,
+			Note:         fmt.Sprintf("branch on penetrating vessel %d", b.Vessel+1),
+		})
+	}
+	for i, f := range chosenS {
+		so := s.Somata[f.index]
+		s.Landmarks = append(s.Landmarks, Landmark{
+			ID:           fmt.Sprintf("s%0*d", width, i+1),
+			Kind:         "soma",
+			SourceUM:     so.PositionUM.Add(gauss3(rng, p.SomaSourceSDUM)),
+			TargetUM:     so.TargetUM.Add(gauss3(rng, iso(p.SomaTargetSDUM))),
+			TrueSourceUM: so.PositionUM,
+			TrueTargetUM: so.TargetUM,
+			Note:         "bright soma",
+		})
+	}
+	return nil
+}
+
+// spoilLandmarks makes WrongLandmarks of the pairs wrong, alternately a
+// wrong correspondence and a wrong slice.
+func (s *Scenario) spoilLandmarks() error {
+	p := s.Params
+	rng := stream(s.Seed, streamWrong)
+	var vessels, all []int
+	for i, l := range s.Landmarks {
+		if l.Kind == "vessel" {
+			vessels = append(vessels, i)
+		}
+		all = append(all, i)
+	}
+	for k := range p.WrongLandmarks {
+		if k%2 == 0 {
+			// Wrong correspondence: the target of the nearest other branch
+			// point far enough away, as when two branches look alike.
+			i, err := s.pickUnspoiled(rng, vessels)
+			if err != nil {
+				return err
+			}
+			l := &s.Landmarks[i]
+			best, bestD := -1, math.Inf(1)
+			for j, b := range s.BranchPoints {
+				d := b.PositionUM.Sub(l.TrueSourceUM).Norm()
+				if d >= p.WrongMinDistanceUM && d < bestD && s.EMBlock.Contains(s.TrueMap(b.PositionUM)) {
+					best, bestD = j, d
+				}
+			}
+			if best < 0 {
+				return fmt.Errorf("landmark %s: no other branch point at least %v µm away inside the EM block to make a wrong correspondence", l.ID, p.WrongMinDistanceUM)
+			}
+			l.TargetUM = s.TrueMap(s.BranchPoints[best].PositionUM).Add(gauss3(rng, iso(p.VesselTargetSDUM)))
+			l.Wrong = true
+			l.Reason = fmt.Sprintf("wrong correspondence: target is the branch point %s µm away in vivo", formatFloat1(bestD))
+			continue
+		}
+		i, err := s.pickUnspoiled(rng, all)
+		if err != nil {
+			return err
+		}
+		l := &s.Landmarks[i]
+		dz := p.WrongSliceUM[0] + rng.Float64()*(p.WrongSliceUM[1]-p.WrongSliceUM[0])
+		if rng.IntN(2) == 0 {
+			dz = -dz
+		}
+		l.TargetUM[2] += dz
+		l.Wrong = true
+		l.Reason = fmt.Sprintf("wrong slice: target z off by %s µm", formatFloat1(dz))
+	}
+	return nil
+}
+
+// pickUnspoiled draws a landmark among those in from that is still right.
+func (s *Scenario) pickUnspoiled(rng *rand.Rand, from []int) (int, error) {
+	var free []int
+	for _, i := range from {
+		if !s.Landmarks[i].Wrong {
+			free = append(free, i)
+		}
+	}
+	if len(free) == 0 {
+		return 0, fmt.Errorf("%d wrong landmarks asked for but too few landmarks are left to spoil", s.Params.WrongLandmarks)
+	}
+	return free[rng.IntN(len(free))], nil
+}
+
+// digits is the number of decimal digits of n (at least 1).
+func digits(n int) int {
+	d := 1
+	for n >= 10 {
+		n /= 10
+		d++
+	}
+	return d
+}
