@@ -3,7 +3,6 @@ package landmarks
 import (
 	"encoding/csv"
 	"fmt"
-	"strconv"
 	"strings"
 
 	"ferry/transform"
@@ -90,14 +89,4 @@ func ParseIDList(flagName, value string) ([]string, error) {
 		ids[i] = id
 	}
 	return ids, nil
-}
-
-// formatMicrometres writes a length for a message, to three significant
-// digits; lengths below a nanometre, rounding noise in micrometre
-// coordinates, read as such rather than as 1.81e-16 µm.
-func formatMicrometres(x float64) string {
-	if x < 0.0005 {
-		return "less than 0.001 µm"
-	}
-	return strconv.FormatFloat(x, 'g', 3, 64) + " µm"
 }

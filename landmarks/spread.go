@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -99,4 +100,14 @@ func CheckSpread(points []transform.Vec, dim, need int) error {
 			n, formatMicrometres(rms(2)), formatMicrometres(rms(0)))
 	}
 	return nil
+}
+
+// formatMicrometres writes a length for a message, to three significant
+// digits; lengths below a nanometre, rounding noise in micrometre
+// coordinates, read as such rather than as 1.81e-16 µm.
+func formatMicrometres(x float64) string {
+	if x < 0.0005 {
+		return "less than 0.001 µm"
+	}
+	return strconv.FormatFloat(x, 'g', 3, 64) + " µm"
 }
