@@ -1,0 +1,44 @@
+package main
+
+import (
+	"fmt"
+	"io"
+
+	"github.com/spf13/cobra"
+
+	"ferry/register"
+)
+
+func newRootCommand(stdout, stderr io.Writer) *cobra.Command {
+	root := &cobra.Command{
+		Use:   "ferry",
+		Short: "Register in vivo two-photon volumes to EM volumes and find each imaged cell",
+		Long: `ferry fits a transform from landmark pairs picked in an in vivo (source) volume
+and an electron-microscopy (target) volume, checks it by leave-one-out before
+tracing starts, maps imaged cells into the target with a 95 % radius each, and
+matches them to candidate somata. Coordinates are micrometres unless voxel
+sizes are given; every error is in micrometres.
+
+Results are for research and must be checked by eye before tracing.`,
+		SilenceUsage:  true,
+		SilenceErrors: true,
+	}
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	root.AddCommand(
+		newVersionCommand(),
+	)
+	return root
+}
+
+func newVersionCommand() *cobra.Command {
+	return &cobra.Command{
+		Use:   "version",
+		Short: "Print the program version",
+		Args:  cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			fmt.Fprintf(cmd.OutOrStdout(), "ferry %s\n", register.Version)
+			return nil
+		},
+	}
+}
