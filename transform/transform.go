@@ -84,6 +84,23 @@ type Result struct {
 	LOO []Vec
 	// Mirrored reports that the fitted map reverses handedness.
 	Mirrored bool
+	// LOOFactor[i] is the variance of each axis of LOO[i] in units of the
+	// model's per-axis scale s_k (µm²): Var(LOO[i]_k) = s_k·LOOFactor[i].
+	// For the linear models s_k is the noise variance of a pair of unit
+	// weight and LOOFactor[i] = 1/(w_i(1−h_ii)) with h the (linearised) hat
+	// matrix; for the spline s_k is the scale of its Gaussian-process prior
+	// and LOOFactor[i] = 1/(M⁻¹)_ii. Nil unless LOO is.
+	LOOFactor []float64
+}
+
+// Predictor gives the uncertainty of a fitted transform's prediction at any
+// source point, in the same units as Result.LOOFactor: the covariance of the
+// predicted target position at p, as an estimate of the true map at p, is
+// diag(√s)·Factor(p)·diag(√s) for the model's per-axis scale s (µm²). It
+// leaves out the error of p itself, which the caller carries through the
+// Jacobian.
+type Predictor interface {
+	Factor(p Vec) Mat
 }
 
 // Options steer a fit.
