@@ -158,6 +158,12 @@ func ParsePairs(name string, r io.Reader) (*PairSet, error) {
 		}
 		seen[p.ID] = p.Line
 		set.Pairs = append(set.Pairs, p)
+		if len(set.Pairs) == sampleRows {
+			if n := t.estimateRows(sampleRows); n > cap(set.Pairs) {
+				set.Pairs = append(make([]Pair, 0, n), set.Pairs...)
+				seen = regrow(seen, n)
+			}
+		}
 	}
 	if len(set.Pairs) == 0 {
 		return nil, &InputError{File: name, Msg: "no landmark pairs: the header is not followed by any rows"}

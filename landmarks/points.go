@@ -113,6 +113,12 @@ func ParsePoints(name, what string, r io.Reader) (*PointSet, error) {
 		}
 		seen[p.ID] = p.Line
 		set.Points = append(set.Points, p)
+		if len(set.Points) == sampleRows {
+			if n := t.estimateRows(sampleRows); n > cap(set.Points) {
+				set.Points = append(make([]Point, 0, n), set.Points...)
+				seen = regrow(seen, n)
+			}
+		}
 	}
 	if len(set.Points) == 0 {
 		return nil, &InputError{File: name, Msg: "no " + what + ": the header is not followed by any rows"}

@@ -3,6 +3,7 @@ package landmarks
 import (
 	"crypto/sha256"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -335,5 +336,66 @@ func TestTestdata(t *testing.T) {
 	}
 	if seen != len(bad) {
 		t.Errorf("found %d of the %d bad sample files", seen, len(bad))
+	}
+}
+
+// TestLongTables reads tables long enough for the row count to be guessed
+// from their first rows, with later rows longer, shorter or as long as the
+// first, from memory, through a reader that cannot tell its length, and from
+// a file.
+func TestLongTables(t *testing.T) {
+	for _, tt := range []struct {
+		name        string
+		first, rest string // the extra value of the first sampleRows rows and of the rest
+	}{
+		{"even", "abc", "abc"},
+		{"longer later", "a", strings.Repeat("b", 50)},
+		{"shorter later", strings.Repeat("a", 50), ""},
+	} {
+		const rows = 3*sampleRows + 7
+		var b strings.Builder
+		b.WriteString("\uFEFFid,x,y,z,note\n")
+		for i := range rows {
+			note := tt.rest
+			if i < sampleRows {
+				note = tt.first
+			}
+			fmt.Fprintf(&b, "c%d,%d,%d.5,-%d,%s\n", i, i, i, i, note)
+		}
+		input := b.String()
+		path := filepath.Join(t.TempDir(), "cells.csv")
+		if err := os.WriteFile(path, []byte(input), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		read := map[string]func() (*PointSet, error){
+			"memory": func() (*PointSet, error) { return ParsePoints(path, "cells", strings.NewReader(input)) },
+			"stream": func() (*PointSet, error) {
+				return ParsePoints(path, "cells", struct{ io.Reader }{strings.NewReader(input)})
+			},
+			"file": func() (*PointSet, error) { return ReadPoints(path, "cells") },
+		}
+		for how, read := range read {
+			set, err := read()
+			if err != nil {
+				t.Fatalf("%s, %s: %v", tt.name, how, err)
+			}
+			if len(set.Points) != rows {
+				t.Fatalf("%s, %s: %d points, want %d", tt.name, how, len(set.Points), rows)
+			}
+			for i, p := range set.Points {
+				want := Point{ID: fmt.Sprintf("c%d", i), Pos: transform.Vec{float64(i), float64(i) + 0.5, -float64(i)}, Line: i + 2}
+				if i < sampleRows {
+					want.Extra = []string{tt.first}
+				} else {
+					want.Extra = []string{tt.rest}
+				}
+				if diff := cmp.Diff(want, p); diff != "" {
+					t.Fatalf("%s, %s: point %d (-want +got):\n%s", tt.name, how, i, diff)
+				}
+			}
+			if set.SHA256 != fileSHA256(t, path) {
+				t.Errorf("%s, %s: wrong SHA256", tt.name, how)
+			}
+		}
 	}
 }

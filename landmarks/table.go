@@ -25,6 +25,10 @@ type table struct {
 	// record is the current row, reused from one row to the next; its
 	// strings are fresh for every row and may be kept.
 	record []string
+	// size is the number of bytes r held when the table was opened, or -1
+	// when r cannot tell; dataStart is the offset of the first byte after
+	// the header.
+	size, dataStart int64
 }
 
 // openTable reads up to and including the header row of r.
@@ -39,7 +43,7 @@ func openTable(name string, r io.Reader) (*table, error) {
 	c.LazyQuotes = false
 	c.ReuseRecord = true
 	c.TrimLeadingSpace = true
-	t := &table{name: name, text: text, csv: c}
+	t := &table{name: name, text: text, csv: c, size: remaining(r)}
 
 	ok, err := t.nextRecord()
 	if err != nil {
@@ -67,7 +71,51 @@ func openTable(name string, r io.Reader) (*table, error) {
 		t.columns[key] = i
 		t.header[i] = h
 	}
+	t.dataStart = c.InputOffset()
 	return t, nil
+}
+
+// remaining is the number of bytes left to read from r where r can tell
+// without being read (a file, a bytes or strings reader), or -1.
+func remaining(r io.Reader) int64 {
+	switch v := r.(type) {
+	case interface{ Len() int }:
+		return int64(v.Len())
+	case *os.File:
+		info, err := v.Stat()
+		if err != nil || !info.Mode().IsRegular() {
+			return -1
+		}
+		pos, err := v.Seek(0, io.SeekCurrent)
+		if err != nil {
+			return -1
+		}
+		return info.Size() - pos
+	}
+	return -1
+}
+
+// sampleRows is how many rows are read before the number of rows in the
+// whole table is estimated from their length.
+const sampleRows = 256
+
+// estimateRows guesses, after rows rows have been read, how many the table
+// holds in all, so that a million-row table is stored without growing its
+// slices and maps twenty times over. The guess assumes later rows as long as
+// the first ones, with a margin of 1/16; 0 means no guess.
+func (t *table) estimateRows(rows int) int {
+	if t.size < 0 || rows == 0 {
+		return 0
+	}
+	// The CSV reader does not count the byte-order mark.
+	off := t.csv.InputOffset()
+	perRow := float64(off-t.dataStart) / float64(rows)
+	left := float64(t.size - int64(t.text.bom) - off)
+	if perRow <= 0 || left <= 0 {
+		return 0
+	}
+	more := left / perRow
+	return rows + int(more+more/16) + 1
 }
 
 // nextRecord reads the next row that is not blank into t.record and reports
@@ -227,12 +275,21 @@ func parseNumber(s string) (float64, string) {
 		return 0, quote(s) + " is not a number: want a finite number"
 	case math.IsInf(v, 0):
 		return 0, quote(s) + " is infinite: want a finite number"
-	case strings.IndexAny(s, "xX") >= 0:
+	case isHex(s):
 		// strconv also reads hexadecimal floats such as 0x1p4, which no
 		// one writes in a table of micrometres on purpose.
 		return 0, quote(s) + " is not a decimal number"
 	}
 	return v, ""
+}
+
+// isHex reports whether s, a number strconv has read, is written in
+// hexadecimal: with a 0x prefix after an optional sign.
+func isHex(s string) bool {
+	if s[0] == '+' || s[0] == '-' {
+		s = s[1:]
+	}
+	return len(s) > 1 && s[0] == '0' && (s[1] == 'x' || s[1] == 'X')
 }
 
 // allNumbers reports whether every name reads as a number, as it does when
@@ -244,6 +301,15 @@ func allNumbers(names []string) bool {
 		}
 	}
 	return len(names) > 0
+}
+
+// regrow returns a copy of m with room for n entries.
+func regrow(m map[string]int, n int) map[string]int {
+	grown := make(map[string]int, n)
+	for k, v := range m {
+		grown[k] = v
+	}
+	return grown
 }
 
 // stringBlock hands out short slices of strings carved from larger blocks,

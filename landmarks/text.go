@@ -26,6 +26,8 @@ type textReader struct {
 	carry  [utf8.UTFMax]byte
 	nCarry int
 	err    error
+	// bom is the length of the byte-order mark dropped, 3 or 0.
+	bom int
 }
 
 // newTextReader returns a textReader over r, or an *InputError when r is
@@ -48,6 +50,7 @@ func newTextReader(name string, r io.Reader) (*textReader, error) {
 	switch {
 	case bytes.HasPrefix(head, []byte{0xEF, 0xBB, 0xBF}):
 		t.src.Discard(3)
+		t.bom = 3
 		if _, err := t.src.Peek(1); err == io.EOF {
 			return nil, &InputError{File: name, Msg: "empty file (nothing but a byte-order mark): want a CSV table with a header row naming the columns"}
 		}
