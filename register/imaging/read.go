@@ -14,14 +14,9 @@ import (
 	"strings"
 )
 
-// The first bytes of the formats read here.
-var (
-	pngSignature = []byte("\x89PNG\r\n\x1a\n")
-	tiffLE       = []byte("II*\x00")
-	tiffBE       = []byte("MM\x00*")
-	bigTIFFLE    = []byte("II+\x00")
-	bigTIFFBE    = []byte("MM\x00+")
-)
+// pngSignature is the first eight bytes of every PNG file; a TIFF file
+// starts with II or MM.
+var pngSignature = []byte("\x89PNG\r\n\x1a\n")
 
 // ReadStack reads an image stack from a multi-page TIFF file, from a folder
 // of single-plane TIFF and PNG files taken in natural name order (see
@@ -96,8 +91,7 @@ func decode(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, erro
 	n, _ := r.ReadAt(head, 0)
 	head = head[:n]
 	switch {
-	case bytes.HasPrefix(head, tiffLE), bytes.HasPrefix(head, tiffBE),
-		bytes.HasPrefix(head, bigTIFFLE), bytes.HasPrefix(head, bigTIFFBE):
+	case bytes.HasPrefix(head, []byte("II")), bytes.HasPrefix(head, []byte("MM")):
 		return readTIFF(r, size, name, onePlane)
 	case bytes.HasPrefix(head, pngSignature):
 		return readPNG(r, size, name)

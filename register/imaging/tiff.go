@@ -84,16 +84,20 @@ type tiffFile struct {
 
 // tiffPage is one parsed image file directory.
 type tiffPage struct {
-	index          int
-	width, height  int
-	bits, samples  int
-	photometric    int
-	compression    int
-	predictor      int
-	blockW, blockH int // strip width × rows per strip, or tile size
-	tiled          bool
-	offsets        []int64
-	counts         []int64
+	index         int
+	width, height int
+	bits, samples int
+	photometric   int
+	// photometricAssumed reports that the page lacked the tag: TIFF 6.0
+	// requires it, and black-is-zero grey is assumed, the reading a
+	// microscope user expects.
+	photometricAssumed bool
+	compression        int
+	predictor          int
+	blockW, blockH     int // strip width × rows per strip, or tile size
+	tiled              bool
+	offsets            []int64
+	counts             []int64
 }
 
 // pageError is an error about one page of a file.
@@ -312,6 +316,8 @@ func (f *tiffFile) parseIFD(k int, off int64) (tiffPage, int64, error) {
 	samples := get(tagSamplesPerPixel, 1)
 	p.compression = int(get(tagCompression, compNone))
 	p.photometric = int(get(tagPhotometric, photoBlackIsZero))
+	_, hasPhotometric := entries[tagPhotometric]
+	p.photometricAssumed = !hasPhotometric
 	p.predictor = int(get(tagPredictor, 1))
 	planar := get(tagPlanarConfig, 1)
 	format := get(tagSampleFormat, 1)
