@@ -177,6 +177,16 @@ func fitLinear(kind Kind, dim int, src, dst []Vec, opt Options) (*Result, error)
 	default:
 		return nil, fmt.Errorf("%q is not a linear model", kind)
 	}
+	if err == nil && opt.LeaveOneOut {
+		// The variance factors come from the leverages of the fitted
+		// model, linearised for a rigid motion or similarity, with the
+		// weights scaled to a mean of 1 as for NewPredictor.
+		var lp *LinearPredictor
+		lp, err = newLinearPredictor(res.Transform.(*Linear), src, opt.Weights)
+		if err == nil {
+			res.LOOFactor, err = lp.looFactors(src)
+		}
+	}
 	if err != nil {
 		return nil, fmt.Errorf("%s fit in %d-D: %w", kind, dim, err)
 	}
