@@ -122,7 +122,11 @@ func TestParseErrors(t *testing.T) {
 		},
 		{
 			name: "CR line ends", kind: "cells", file: "cells.csv", input: "id,x,y,z\rc1,1,2,3\r",
-			want: `cells.csv:1: header name "z\rc1" holds a line break (do the lines end in CR alone? use LF or CRLF)`, line: 1,
+			want: `cells.csv:1: header name "z\rc1" holds a carriage return (do the lines end in CR alone? use LF or CRLF)`, line: 1,
+		},
+		{
+			name: "line break in a header name", kind: "cells", file: "cells.csv", input: "#\nid,x,y,z,\"a\nb\"\nc1,1,2,3,4\n",
+			want: `cells.csv:2: header name "a\nb" holds a line break`, line: 2,
 		},
 		{
 			name: "not a number", kind: "cells", file: "cells.csv", input: "id,x,y,z\n# header above\nc1,1,2,3\n\nc2,4,5,6\nc3,7,8,9\n\n\n\n\n\n\n\nc4,1,1,1.2.3\n",

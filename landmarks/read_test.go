@@ -399,3 +399,40 @@ func TestLongTables(t *testing.T) {
 		}
 	}
 }
+
+// TestEstimateRows checks the guess of a table's length from its first rows:
+// within the margin for even rows, none where the reader cannot tell its
+// length.
+func TestEstimateRows(t *testing.T) {
+	const rows = 10 * sampleRows
+	var b strings.Builder
+	b.WriteString("\uFEFF# comment\nid,x,y,z\n")
+	for i := range rows {
+		fmt.Fprintf(&b, "c%05d,1.000,2.000,3.000\n", i)
+	}
+	for how, r := range map[string]io.Reader{
+		"memory": strings.NewReader(b.String()),
+		"stream": struct{ io.Reader }{strings.NewReader(b.String())},
+	} {
+		tab, err := openTable("t.csv", r)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for range sampleRows {
+			if ok, err := tab.nextRecord(); !ok || err != nil {
+				t.Fatalf("%s: row missing: %v", how, err)
+			}
+		}
+		got := tab.estimateRows(sampleRows)
+		switch how {
+		case "memory":
+			if got < rows || got > rows+rows/16+2 {
+				t.Errorf("%s: estimated %d rows, want %d to %d", how, got, rows, rows+rows/16+2)
+			}
+		case "stream":
+			if got != 0 {
+				t.Errorf("%s: estimated %d rows, want no estimate", how, got)
+			}
+		}
+	}
+}

@@ -33,6 +33,7 @@ type table struct {
 
 // openTable reads up to and including the header row of r.
 func openTable(name string, r io.Reader) (*table, error) {
+	size := remaining(r) // before anything is read ahead
 	text, err := newTextReader(name, r)
 	if err != nil {
 		return nil, err
@@ -43,7 +44,7 @@ func openTable(name string, r io.Reader) (*table, error) {
 	c.LazyQuotes = false
 	c.ReuseRecord = true
 	c.TrimLeadingSpace = true
-	t := &table{name: name, text: text, csv: c, size: remaining(r)}
+	t := &table{name: name, text: text, csv: c, size: size}
 
 	ok, err := t.nextRecord()
 	if err != nil {
@@ -61,8 +62,10 @@ func openTable(name string, r io.Reader) (*table, error) {
 		switch {
 		case h == "":
 			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header column %d has no name: every column needs one (is there a stray comma at the end of the line?)", i+1)}
-		case strings.ContainsAny(h, "\r\n"):
-			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header name %s holds a line break (do the lines end in CR alone? use LF or CRLF)", quote(h))}
+		case strings.IndexByte(h, '\r') >= 0:
+			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header name %s holds a carriage return (do the lines end in CR alone? use LF or CRLF)", quote(h))}
+		case strings.IndexByte(h, '\n') >= 0:
+			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header name %s holds a line break", quote(h))}
 		}
 		key := strings.ToLower(h)
 		if j, dup := t.columns[key]; dup {
