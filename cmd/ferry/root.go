@@ -27,6 +27,9 @@ Results are for research and must be checked by eye before tracing.`,
 	root.SetErr(stderr)
 	root.AddCommand(
 		newVersionCommand(),
+		newFitCommand(),
+		newCheckCommand(),
+		newMapCommand(),
 	)
 	return root
 }

@@ -1,0 +1,125 @@
+package main
+
+import (
+	"fmt"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"ferry/register"
+	"ferry/register/outfile"
+)
+
+func newFitCommand() *cobra.Command {
+	var flags modelFlags
+	var out string
+	cmd := &cobra.Command{
+		Use:   "fit LANDMARKS -o TRANSFORM.json",
+		Short: "Fit the transform from landmark pairs and write the transform file",
+		Long: `fit compares the models by their exact leave-one-out errors, chooses one (or
+fits the one given with --model), and writes the transform file with the
+leave-one-out summary and the uncertainty model that map and match use.`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := requireOutput(out, args[0]); err != nil {
+				return err
+			}
+			job, err := flags.load(args[0])
+			if err != nil {
+				return err
+			}
+			a, err := register.Assess(job.problem, job.settings)
+			if err != nil {
+				return fmt.Errorf("%s: %w", args[0], err)
+			}
+			inputs, err := inputsOf(args[0])
+			if err != nil {
+				return err
+			}
+			prov := register.Provenance{Command: "fit", Inputs: inputs, Flags: setFlags(cmd)}
+			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
+			if err != nil {
+				return err
+			}
+			data, err := file.Marshal()
+			if err != nil {
+				return err
+			}
+			if err := outfile.WriteBytes(cmd.Context(), out, data); err != nil {
+				return err
+			}
+			w := cmd.OutOrStdout()
+			register.WriteComparison(w, a)
+			fmt.Fprintf(w, "Leave-one-out error of the %s model: RMS %.2f µm, max %.2f µm over %d landmarks.\n",
+				a.Chosen, a.JSON().RMSUM, a.JSON().MaxUM, len(a.Landmarks))
+			if ids := a.Flagged(); len(ids) > 0 {
+				fmt.Fprintf(w, "Warning: %d landmark(s) look wrong and are still in the fit: %s. Run ferry check, then correct them or refit with --exclude %s\n",
+					len(ids), strings.Join(ids, ", "), strings.Join(ids, ","))
+			}
+			fmt.Fprintf(w, "Wrote %s\n", out)
+			return nil
+		},
+	}
+	flags.register(cmd)
+	cmd.Flags().StringVarP(&out, "output", "o", "", "transform file to write (JSON)")
+	return cmd
+}
+
+func newCheckCommand() *cobra.Command {
+	var flags modelFlags
+	var maxError float64
+	var asJSON bool
+	cmd := &cobra.Command{
+		Use:   "check LANDMARKS",
+		Short: "The leave-one-out check of the landmarks before tracing starts",
+		Long: `check predicts every landmark from all the others, flags the ones that look
+wrong, and reports the errors per landmark and per kind with the calibration of
+the predicted 95 % radii. Exit status 3 when a landmark is flagged or a
+leave-one-out error exceeds --max-error.`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if cmd.Flags().Changed("max-error") && !(maxError > 0) {
+				return fmt.Errorf("--max-error: want a positive number of micrometres, got %v", maxError)
+			}
+			job, err := flags.load(args[0])
+			if err != nil {
+				return err
+			}
+			a, err := register.Assess(job.problem, job.settings)
+			if err != nil {
+				return fmt.Errorf("%s: %w", args[0], err)
+			}
+			w := cmd.OutOrStdout()
+			if asJSON {
+				inputs, err := inputsOf(args[0])
+				if err != nil {
+					return err
+				}
+				c := a.JSON()
+				c.Provenance = register.Provenance{Command: "check", Inputs: inputs, Flags: setFlags(cmd)}.Line()
+				if err := writeJSON(w, c); err != nil {
+					return err
+				}
+			} else {
+				register.WriteComparison(w, a)
+				fmt.Fprintln(w)
+				register.WriteCheckTable(w, a)
+			}
+			failed := len(a.Flagged()) > 0
+			if maxError > 0 && a.MaxLOO() > maxError {
+				failed = true
+				if !asJSON {
+					fmt.Fprintf(w, "A leave-one-out error of %.2f µm exceeds --max-error %.2f µm.\n", a.MaxLOO(), maxError)
+				}
+			}
+			if failed {
+				return errQuality
+			}
+			return nil
+		},
+	}
+	flags.register(cmd)
+	cmd.Flags().Float64Var(&maxError, "max-error", 0, "fail (exit 3) when a leave-one-out error exceeds this many µm")
+	cmd.Flags().BoolVar(&asJSON, "json", false, "print one JSON object instead of the table")
+	return cmd
+}

@@ -1,0 +1,121 @@
+package main
+
+import (
+	"fmt"
+	"os"
+	"strings"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/outfile"
+	"ferry/transform"
+)
+
+// modelFlags are the flags that fit, check and suggest share.
+type modelFlags struct {
+	model, smoothing, exclude string
+	sourceVoxel, targetVoxel  string
+	sourceSD, targetSD        string
+	noMirror                  bool
+}
+
+func (f *modelFlags) register(cmd *cobra.Command) {
+	fl := cmd.Flags()
+	fl.StringVar(&f.model, "model", "auto", "transform model: auto, translation, rigid, similarity, affine or tps")
+	fl.StringVar(&f.smoothing, "smoothing", "auto", "thin-plate-spline smoothing S: a number ≥ 0 (0 interpolates) or auto")
+	fl.StringVar(&f.exclude, "exclude", "", "landmark ids to leave out, comma-separated")
+	fl.StringVar(&f.sourceVoxel, "source-voxel", "", "source voxel size X,Y,Z in µm: landmark source coordinates are voxel indices")
+	fl.StringVar(&f.targetVoxel, "target-voxel", "", "target voxel size X,Y,Z in µm: landmark target coordinates are voxel indices")
+	fl.StringVar(&f.sourceSD, "source-sd", "", "localisation error of the source picks X,Y,Z in µm (one standard deviation); default: estimated")
+	fl.StringVar(&f.targetSD, "target-sd", "", "localisation error of the target picks X,Y,Z in µm (one standard deviation); default: estimated")
+	fl.BoolVar(&f.noMirror, "no-mirror", false, "forbid rigid and similarity fits from mirroring")
+}
+
+// landmarkJob is a landmark file read and the flags parsed against it.
+type landmarkJob struct {
+	set      *landmarks.PairSet
+	problem  *register.Problem
+	settings register.Settings
+	voxels   register.Voxels
+	exclude  []string
+}
+
+// load parses the flags, reads the landmark file and prepares the problem.
+// Per-axis flags take as many numbers as the file has dimensions, so they
+// are checked once the file is read.
+func (f *modelFlags) load(path string) (*landmarkJob, error) {
+	var job landmarkJob
+	var err error
+	if job.settings.Model, err = register.ParseModel(f.model); err != nil {
+		return nil, err
+	}
+	if job.settings.Smoothing, err = register.ParseSmoothing(f.smoothing); err != nil {
+		return nil, err
+	}
+	if job.exclude, err = landmarks.ParseIDList("--exclude", f.exclude); err != nil {
+		return nil, err
+	}
+	job.settings.NoMirror = f.noMirror
+	if job.set, err = landmarks.ReadPairs(path); err != nil {
+		return nil, err
+	}
+	dim := job.set.Dim
+	for _, t := range []struct {
+		name, value string
+		dst         **transform.Vec
+	}{
+		{"--source-voxel", f.sourceVoxel, &job.voxels.Source},
+		{"--target-voxel", f.targetVoxel, &job.voxels.Target},
+		{"--source-sd", f.sourceSD, &job.settings.SourceSD},
+		{"--target-sd", f.targetSD, &job.settings.TargetSD},
+	} {
+		if t.value == "" {
+			continue
+		}
+		v, err := landmarks.ParseTriple(t.name, t.value, dim)
+		if err != nil {
+			return nil, err
+		}
+		*t.dst = &v
+	}
+	if job.problem, err = register.PrepareLandmarks(job.set, job.exclude, job.voxels); err != nil {
+		return nil, err
+	}
+	return &job, nil
+}
+
+// setFlags lists the flags the user set, as given, for provenance.
+func setFlags(cmd *cobra.Command) []string {
+	var out []string
+	cmd.Flags().Visit(func(f *pflag.Flag) {
+		out = append(out, fmt.Sprintf("--%s=%s", f.Name, f.Value.String()))
+	})
+	return out
+}
+
+// inputsOf hashes input files for provenance.
+func inputsOf(paths ...string) ([]register.Input, error) {
+	var in []register.Input
+	for _, p := range paths {
+		sum, err := register.FileSHA256(p)
+		if err != nil {
+			return nil, err
+		}
+		in = append(in, register.Input{Path: p, SHA256: sum})
+	}
+	return in, nil
+}
+
+// requireOutput checks the -o flag: given, and not one of the inputs.
+func requireOutput(out string, inputs ...string) error {
+	if strings.TrimSpace(out) == "" {
+		return fmt.Errorf("-o: an output file is required")
+	}
+	if info, err := os.Stat(out); err == nil && info.IsDir() {
+		return fmt.Errorf("-o %s: is a folder, want a file name", out)
+	}
+	return outfile.NotAnInput(out, inputs...)
+}

@@ -1,0 +1,91 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+
+	"github.com/spf13/cobra"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/outfile"
+	"ferry/transform"
+)
+
+func newMapCommand() *cobra.Command {
+	var out, cellSD string
+	var inverse bool
+	cmd := &cobra.Command{
+		Use:   "map TRANSFORM CELLS -o MAPPED.csv",
+		Short: "Map cells through the transform with their uncertainty",
+		Long: `map writes each cell's mapped position with its standard deviation per axis,
+the radius r95_um of the sphere that holds the true position with 95 %
+probability, and a status (ok, or a word saying why the point deserves care).
+With --inverse the cells are in the target and are mapped back to the source.`,
+		Args: cobra.ExactArgs(2),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := requireOutput(out, args...); err != nil {
+				return err
+			}
+			file, err := transform.ReadFile(args[0])
+			if err != nil {
+				return err
+			}
+			cells, pos, err := register.ReadCells(args[1], "cells", file, inverse)
+			if err != nil {
+				return err
+			}
+			sd, err := optionalTriple("--cell-sd", cellSD, cells.Dim)
+			if err != nil {
+				return err
+			}
+			mapper, err := register.NewMapper(file)
+			if err != nil {
+				return fmt.Errorf("%s: %w", args[0], err)
+			}
+			mapped := mapper.MapAll(pos, sd, inverse)
+			voxel := file.TargetVoxel
+			if inverse {
+				voxel = file.SourceVoxel
+			}
+			inputs, err := inputsOf(args...)
+			if err != nil {
+				return err
+			}
+			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
+			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+				return register.WriteMapped(w, prov, cells, mapped, voxel)
+			}); err != nil {
+				return err
+			}
+			counts := map[string]int{}
+			for _, m := range mapped {
+				counts[m.Status]++
+			}
+			fmt.Fprintf(cmd.OutOrStdout(), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), out)
+			return nil
+		},
+	}
+	cmd.Flags().StringVarP(&out, "output", "o", "", "mapped cells to write (CSV)")
+	cmd.Flags().StringVar(&cellSD, "cell-sd", "", "localisation error of the cells' own coordinates X,Y,Z in µm (one standard deviation)")
+	cmd.Flags().BoolVar(&inverse, "inverse", false, "the cells are in the target: map them back to the source")
+	return cmd
+}
+
+func optionalTriple(name, value string, dim int) (*transform.Vec, error) {
+	if value == "" {
+		return nil, nil
+	}
+	v, err := landmarks.ParseTriple(name, value, dim)
+	if err != nil {
+		return nil, err
+	}
+	return &v, nil
+}
+
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}

@@ -1,0 +1,743 @@
+package register
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+
+	"ferry/landmarks"
+	"ferry/transform"
+)
+
+// The statistics of the check. Each is stated in docs/methods.md.
+const (
+	// familyAlpha is the chance, over the whole landmark set, that a set
+	// without any wrong landmark has one flagged: each landmark is tested at
+	// familyAlpha/N (Bonferroni).
+	familyAlpha = 0.05
+	// medianChiSquare1 is the median of the χ² distribution with one degree
+	// of freedom, which turns a median of squared standardised errors into a
+	// variance.
+	medianChiSquare1 = 0.454936423119572
+	// maxFlagShare bounds the share of landmarks the check will set aside:
+	// past it the set is not a good set with a few mistakes but a poor
+	// registration, and flags would only hide that.
+	maxFlagShare = 0.25
+	// weightRatio is the ratio of the noise of two kinds of landmark (somata
+	// against vessel branch points, say) from which they are weighted apart.
+	weightRatio = 1.5
+	// minPerKind is the fewest landmarks of a kind from which its own noise
+	// is estimated.
+	minPerKind = 5
+)
+
+// ModelScore is one model's leave-one-out performance.
+type ModelScore struct {
+	Model transform.Kind
+	// Smoothing is the spline's S (0 for the other models).
+	Smoothing float64
+	// RMS, Median and Max are of the landmarks' leave-one-out errors (µm),
+	// flagged landmarks left out.
+	RMS, Median, Max float64
+	// MeanSquare and its standard error (µm²) drive the choice.
+	MeanSquare, StdErr float64
+	Mirrored           bool
+	// Err says why the model could not be fitted; the other fields are
+	// then zero.
+	Err error
+	// sq are the squared errors behind MeanSquare, landmark by landmark,
+	// for the paired comparison of models.
+	sq []float64
+}
+
+// LandmarkCheck is the verdict on one landmark.
+type LandmarkCheck struct {
+	ID   string
+	Kind landmarks.Kind
+	// LOO is target minus the prediction from all other landmarks (µm),
+	// LOOError its length.
+	LOO      transform.Vec
+	LOOError float64
+	// R95 is the radius (µm) within which the leave-one-out error should
+	// fall with 95 % probability.
+	R95 float64
+	// Score is the squared leave-one-out error standardised by its predicted
+	// covariance, χ²-distributed with Dim degrees of freedom for a good
+	// landmark.
+	Score float64
+	// Flag is empty for a good landmark, otherwise a short reason.
+	Flag string
+}
+
+// Calibration compares predicted and observed leave-one-out errors.
+type Calibration struct {
+	// Inside is how many of N unflagged landmarks have their leave-one-out
+	// error inside their predicted 95 % radius.
+	Inside, N int
+}
+
+// Share is Inside/N.
+func (c Calibration) Share() float64 {
+	if c.N == 0 {
+		return math.NaN()
+	}
+	return float64(c.Inside) / float64(c.N)
+}
+
+// Assessment is the outcome of the check.
+type Assessment struct {
+	Dim int
+	// Models are the models compared, simplest first.
+	Models []ModelScore
+	// Chosen is the model used, and Reason says why in a sentence.
+	Chosen    transform.Kind
+	Reason    string
+	Smoothing float64
+	// Landmarks are the verdicts, in the order of the problem.
+	Landmarks []LandmarkCheck
+	// Weights are the relative weights of the pairs in the fit (mean 1).
+	Weights []float64
+	// KindNoise gives each kind's noise relative to the set's when kinds
+	// were weighted apart, nil otherwise.
+	KindNoise map[landmarks.Kind]float64
+	// Scale is the per-axis scale s_k (µm²) of the chosen model's errors,
+	// estimated from the unflagged landmarks' leave-one-out errors.
+	Scale       transform.Vec
+	Calibration Calibration
+	// Result is the chosen model fitted to every landmark of the problem,
+	// flagged ones included, with leave-one-out.
+	Result *transform.Result
+	// Radii turns covariances into 95 % radii.
+	Radii *RadiusTable
+}
+
+// Flagged returns the ids of the flagged landmarks.
+func (a *Assessment) Flagged() []string {
+	var ids []string
+	for _, l := range a.Landmarks {
+		if l.Flag != "" {
+			ids = append(ids, l.ID)
+		}
+	}
+	return ids
+}
+
+// MaxLOO is the largest leave-one-out error (µm) of the landmarks.
+func (a *Assessment) MaxLOO() float64 {
+	m := 0.0
+	for _, l := range a.Landmarks {
+		m = math.Max(m, l.LOOError)
+	}
+	return m
+}
+
+// Assess runs the check: it flags landmarks that look wrong, compares the
+// models by exact leave-one-out on the others, chooses one (or takes the one
+// asked for), estimates the scale of its errors and calibrates it.
+func Assess(p *Problem, s Settings) (*Assessment, error) {
+	if p.Len() == 0 {
+		return nil, errors.New("no landmark pairs")
+	}
+	if p.Dim != 2 && p.Dim != 3 {
+		return nil, fmt.Errorf("dimension %d: want 2 or 3", p.Dim)
+	}
+	if s.Model != "" {
+		if err := enoughFor(p, s.Model); err != nil {
+			return nil, err
+		}
+	}
+	a := &Assessment{Dim: p.Dim, Radii: NewRadiusTable(p.Dim, 0.95)}
+	weights := equalWeights(p.Len())
+
+	// Flag with the most flexible model the set supports, choose on the
+	// rest, then flag again with the model chosen: a warp that only the
+	// spline follows must not make landmarks look wrong, and the final
+	// flags must be those of the model the user gets.
+	flagModel := s.Model
+	if flagModel == "" {
+		flagModel = mostFlexible(p)
+	}
+	flags, err := flagLandmarks(p, flagModel, weights, s, a.Radii)
+	if err != nil {
+		return nil, err
+	}
+	if s.SourceSD == nil && s.TargetSD == nil {
+		// Without stated picking errors, let each kind of landmark
+		// speak for its own noise.
+		if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
+			weights, a.KindNoise = w, noise
+			if flags, err = flagLandmarks(p, flagModel, weights, s, a.Radii); err != nil {
+				return nil, err
+			}
+		}
+	}
+	chosen := s.Model
+	if chosen == "" {
+		a.Models = compareModels(p, weights, s, flags.flagged)
+		chosen, a.Reason = chooseModel(a.Models)
+		if chosen == "" {
+			return nil, fmt.Errorf("no model could be fitted: %v", a.Models[0].Err)
+		}
+		if chosen != flagModel {
+			if flags, err = flagLandmarks(p, chosen, weights, s, a.Radii); err != nil {
+				return nil, err
+			}
+		}
+	}
+	final, err := fitModel(p, chosen, weights, s, flags.flagged)
+	if err != nil {
+		return nil, err
+	}
+	if s.Model != "" {
+		a.Models = []ModelScore{score(final, flags.flagged)}
+		a.Reason = "asked for with --model"
+	}
+	a.Chosen, a.Smoothing, a.Result, a.Weights = chosen, final.smoothing, final.res, weights
+
+	a.Scale = axisScale(final.res, flags.flagged, p.Dim)
+	a.Landmarks = make([]LandmarkCheck, p.Len())
+	for i := range a.Landmarks {
+		loo := final.res.LOO[i]
+		cov := looCovariance(a.Scale, final.res.LOOFactor[i], p.Dim)
+		a.Landmarks[i] = LandmarkCheck{
+			ID: p.IDs[i], Kind: p.Kinds[i], LOO: loo, LOOError: loo.Norm(),
+			R95:   a.Radii.Radius(cov),
+			Score: standardised(loo, cov, p.Dim),
+			Flag:  flags.reason[i],
+		}
+		if !flags.flagged[i] {
+			a.Calibration.N++
+			if a.Landmarks[i].LOOError <= a.Landmarks[i].R95 {
+				a.Calibration.Inside++
+			}
+		}
+	}
+	return a, nil
+}
+
+// enoughFor checks that the set supports model before any fitting, with the
+// plain-words reasons of landmarks.CheckSpread.
+func enoughFor(p *Problem, model transform.Kind) error {
+	need := transform.MinPairs(model, p.Dim) + 1
+	if p.Len() < need {
+		return fmt.Errorf("the %s model in %d-D needs at least %d landmark pairs for its leave-one-out check, have %d", model, p.Dim, need, p.Len())
+	}
+	spread := 0
+	switch model {
+	case transform.Rigid, transform.Similarity:
+		spread = p.Dim - 1
+	case transform.Affine, transform.TPS:
+		spread = p.Dim
+	}
+	if err := landmarks.CheckSpread(p.Source, p.Dim, spread); err != nil {
+		return fmt.Errorf("source landmarks: %v (the %s model needs them spread)", err, model)
+	}
+	if err := landmarks.CheckSpread(p.Target, p.Dim, spread); err != nil {
+		return fmt.Errorf("target landmarks: %v (the %s model needs them spread)", err, model)
+	}
+	return nil
+}
+
+// mostFlexible is the richest model the set supports with a margin: the
+// spline wants a few landmarks beyond its affine part to have anything to
+// bend with.
+func mostFlexible(p *Problem) transform.Kind {
+	for _, k := range []transform.Kind{transform.TPS, transform.Affine, transform.Similarity, transform.Rigid} {
+		margin := 1
+		if k == transform.TPS {
+			margin = 3 * (p.Dim + 1)
+		}
+		if p.Len() >= transform.MinPairs(k, p.Dim)+margin && enoughFor(p, k) == nil {
+			return k
+		}
+	}
+	return transform.Translation
+}
+
+func equalWeights(n int) []float64 {
+	w := make([]float64, n)
+	for i := range w {
+		w[i] = 1
+	}
+	return w
+}
+
+// fitted is one model fitted with leave-one-out.
+type fitted struct {
+	kind      transform.Kind
+	smoothing float64
+	res       *transform.Result
+}
+
+// fitModel fits kind to every pair of p with leave-one-out. The spline's
+// smoothing, when automatic, is chosen on the unflagged pairs.
+func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings, flagged []bool) (*fitted, error) {
+	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
+	if kind == transform.TPS {
+		if s.Smoothing.Auto {
+			sm, err := chooseSmoothing(p, weights, flagged)
+			if err != nil {
+				return nil, err
+			}
+			opt.Smoothing = sm
+		} else {
+			opt.Smoothing = s.Smoothing.Value
+		}
+	}
+	res, err := transform.Fit(kind, p.Dim, p.Source, p.Target, opt)
+	if err != nil {
+		return nil, fmt.Errorf("%s fit: %w", kind, err)
+	}
+	return &fitted{kind: kind, smoothing: opt.Smoothing, res: res}, nil
+}
+
+// chooseSmoothing picks the spline's S by minimising the weighted mean
+// squared leave-one-out error of the unflagged landmarks (ordinary
+// cross-validation; Wahba 1990, ch. 4) over a grid of S from exact
+// interpolation to nearly affine, refined around the best. The scale of the
+// grid follows the kernel: a typical landmark distance in 3-D, its square
+// times its logarithm in 2-D.
+func chooseSmoothing(p *Problem, weights []float64, flagged []bool) (float64, error) {
+	keep := func(i int) bool { return flagged == nil || !flagged[i] }
+	q := p.subset(keep)
+	var w []float64
+	for i := range weights {
+		if keep(i) {
+			w = append(w, weights[i])
+		}
+	}
+	unit := kernelScale(q)
+	cost := func(sm float64) float64 {
+		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
+			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true})
+		if err != nil {
+			return math.Inf(1)
+		}
+		c := 0.0
+		for i, r := range res.LOO {
+			c += w[i] * r.Dot(r)
+		}
+		return c
+	}
+	best, bestCost := 0.0, cost(0)
+	bestExp := math.Inf(-1)
+	for e := -6.0; e <= 1.0; e += 0.5 {
+		sm := unit * math.Pow(10, e)
+		if c := cost(sm); c < bestCost {
+			best, bestCost, bestExp = sm, c, e
+		}
+	}
+	if !math.IsInf(bestExp, -1) {
+		for _, de := range []float64{-0.25, 0.25} {
+			sm := unit * math.Pow(10, bestExp+de)
+			if c := cost(sm); c < bestCost {
+				best, bestCost = sm, c
+			}
+		}
+	}
+	if math.IsInf(bestCost, 1) {
+		_, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
+			transform.Options{Weights: w, LeaveOneOut: true})
+		return 0, err
+	}
+	return best, nil
+}
+
+// kernelScale is the size of a typical kernel value between landmarks.
+func kernelScale(p *Problem) float64 {
+	sum, n := 0.0, 0
+	step := max(1, p.Len()/50)
+	for i := 0; i < p.Len(); i += step {
+		for j := i + 1; j < p.Len(); j += step {
+			sum += p.Source[i].Sub(p.Source[j]).Norm()
+			n++
+		}
+	}
+	d := 1.0
+	if n > 0 && sum > 0 {
+		d = sum / float64(n)
+	}
+	if p.Dim == 2 {
+		return d * d * math.Max(math.Log(d), 1)
+	}
+	return d
+}
+
+// flagResult is the outcome of flagLandmarks.
+type flagResult struct {
+	flagged []bool
+	reason  []string
+	// score is each landmark's standardised leave-one-out error in the
+	// last fit that held it.
+	score []float64
+}
+
+// flagLandmarks finds the landmarks that look wrong by sequential deletion:
+// fit with leave-one-out, standardise each landmark's error by its predicted
+// covariance with a scale estimated robustly (a median) from the landmarks
+// not yet set aside, and set aside the worst one while its score exceeds the
+// χ² quantile at familyAlpha/N; then refit without it and look again. A wrong
+// landmark inflates its neighbours' leave-one-out errors, so the neighbours
+// are only judged once it is gone, and a smaller mistake that the first one
+// masked shows up after it. Last, every set-aside landmark is tried again
+// alone against the others' clean fit, and cleared when it fits after all.
+func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settings, radii *RadiusTable) (*flagResult, error) {
+	n := p.Len()
+	out := &flagResult{flagged: make([]bool, n), reason: make([]string, n), score: make([]float64, n)}
+	threshold := chiSquareQuantile(p.Dim, 1-familyAlpha/float64(n))
+	limit := int(maxFlagShare * float64(n))
+	if n-limit < transform.MinPairs(model, p.Dim)+2 {
+		limit = max(0, n-transform.MinPairs(model, p.Dim)-2)
+	}
+	var setAside []int
+	for {
+		keep := func(i int) bool { return !out.flagged[i] }
+		q := p.subset(keep)
+		idx := indices(n, keep)
+		f, err := fitModel(q, model, pick(weights, idx), s, nil)
+		if err != nil {
+			return nil, err
+		}
+		scale := robustScale(f.res, p.Dim)
+		worst, worstScore := -1, threshold
+		for k, i := range idx {
+			cov := looCovariance(scale, f.res.LOOFactor[k], p.Dim)
+			addPickNoise(&cov, s, f.res.Transform.Jacobian(q.Source[k]), p.Dim)
+			out.score[i] = standardised(f.res.LOO[k], cov, p.Dim)
+			if out.score[i] > worstScore {
+				worst, worstScore = i, out.score[i]
+			}
+		}
+		if worst < 0 || len(setAside) >= limit {
+			break
+		}
+		out.flagged[worst] = true
+		setAside = append(setAside, worst)
+	}
+	// Try each set-aside landmark again against the clean set.
+	for _, i := range setAside {
+		keep := func(j int) bool { return j == i || !out.flagged[j] }
+		q := p.subset(keep)
+		idx := indices(n, keep)
+		f, err := fitModel(q, model, pick(weights, idx), s, nil)
+		if err != nil {
+			return nil, err
+		}
+		k := sort.SearchInts(idx, i)
+		others := make([]bool, len(idx))
+		others[k] = true
+		scale := axisScale(f.res, others, p.Dim)
+		cov := looCovariance(scale, f.res.LOOFactor[k], p.Dim)
+		addPickNoise(&cov, s, f.res.Transform.Jacobian(q.Source[k]), p.Dim)
+		out.score[i] = standardised(f.res.LOO[k], cov, p.Dim)
+		if out.score[i] <= threshold {
+			out.flagged[i] = false
+			continue
+		}
+		out.reason[i] = flagReason(f.res.LOO[k], cov, radii.Radius(cov), p.Dim)
+	}
+	return out, nil
+}
+
+// flagReason says in a few words what is wrong and what it may be.
+func flagReason(loo transform.Vec, cov transform.Mat, r95 float64, dim int) string {
+	reason := fmt.Sprintf("off by %.1f µm where 95 %% stay within %.1f µm", loo.Norm(), r95)
+	if dim == 3 && cov[2][2] > 0 {
+		total := standardised(loo, cov, dim)
+		zOnly := loo[2] * loo[2] / cov[2][2]
+		if zOnly > 0.8*total {
+			return reason + "; mostly in z: a wrong section?"
+		}
+	}
+	return reason + "; a wrong correspondence or a typo?"
+}
+
+// addPickNoise raises a leave-one-out covariance to at least the picking
+// noise stated with --source-sd and --target-sd, carried into the target
+// through the Jacobian: a check may not call a landmark wrong for an error
+// smaller than the user says the picks have.
+func addPickNoise(cov *transform.Mat, s Settings, jac transform.Mat, dim int) {
+	noise := pickNoise(s, jac)
+	for k := range dim {
+		cov[k][k] = math.Max(cov[k][k], noise[k][k])
+	}
+}
+
+// pickNoise is J·Σ_source·Jᵀ + Σ_target from the sd flags (zero without).
+func pickNoise(s Settings, jac transform.Mat) transform.Mat {
+	var c transform.Mat
+	if s.SourceSD != nil {
+		var d transform.Mat
+		for k := range 3 {
+			d[k][k] = s.SourceSD[k] * s.SourceSD[k]
+		}
+		c = jac.Mul(d).Mul(jac.T())
+	}
+	if s.TargetSD != nil {
+		for k := range 3 {
+			c[k][k] += s.TargetSD[k] * s.TargetSD[k]
+		}
+	}
+	return c
+}
+
+// kindWeights estimates the noise of each kind of landmark from the
+// standardised scores of the unflagged ones and, where kinds differ by more
+// than weightRatio, returns weights (mean 1) that are the inverse of each
+// kind's noise. It returns nil when the kinds do not differ or too few of a
+// kind are at hand.
+func kindWeights(p *Problem, score []float64, flagged []bool) ([]float64, map[landmarks.Kind]float64) {
+	byKind := map[landmarks.Kind][]float64{}
+	var all []float64
+	for i, k := range p.Kinds {
+		if !flagged[i] {
+			byKind[k] = append(byKind[k], score[i])
+			all = append(all, score[i])
+		}
+	}
+	if len(byKind) < 2 {
+		return nil, nil
+	}
+	overall := median(all)
+	noise := map[landmarks.Kind]float64{}
+	lo, hi := math.Inf(1), 0.0
+	for k, sc := range byKind {
+		if len(sc) < minPerKind {
+			return nil, nil
+		}
+		noise[k] = median(sc) / overall
+		lo, hi = math.Min(lo, noise[k]), math.Max(hi, noise[k])
+	}
+	if !(hi > weightRatio*lo) {
+		return nil, nil
+	}
+	w := make([]float64, p.Len())
+	sum := 0.0
+	for i, k := range p.Kinds {
+		v, ok := noise[k]
+		if !ok {
+			v = 1
+		}
+		w[i] = 1 / v
+		sum += w[i]
+	}
+	for i := range w {
+		w[i] *= float64(len(w)) / sum
+	}
+	return w, noise
+}
+
+// compareModels fits every model the set supports and scores it on the
+// unflagged landmarks.
+func compareModels(p *Problem, weights []float64, s Settings, flagged []bool) []ModelScore {
+	var scores []ModelScore
+	for _, k := range transform.Kinds() {
+		if err := enoughFor(p, k); err != nil {
+			scores = append(scores, ModelScore{Model: k, Err: err})
+			continue
+		}
+		f, err := fitModel(p, k, weights, s, flagged)
+		if err != nil {
+			scores = append(scores, ModelScore{Model: k, Err: err})
+			continue
+		}
+		scores = append(scores, score(f, flagged))
+	}
+	return scores
+}
+
+// score summarises a fit's leave-one-out errors over the unflagged
+// landmarks.
+func score(f *fitted, flagged []bool) ModelScore {
+	var sq, e []float64
+	for i, r := range f.res.LOO {
+		if flagged != nil && flagged[i] {
+			continue
+		}
+		sq = append(sq, r.Dot(r))
+		e = append(e, r.Norm())
+	}
+	mean, se := meanStdErr(sq)
+	return ModelScore{
+		Model: f.kind, Smoothing: f.smoothing, RMS: math.Sqrt(mean), Median: median(e),
+		Max: maxOf(e), MeanSquare: mean, StdErr: se, Mirrored: f.res.Mirrored,
+		sq: sq,
+	}
+}
+
+// chooseModel takes the simplest model whose mean squared leave-one-out
+// error exceeds the best model's by no more than one standard error of their
+// paired difference (the one-standard-error rule; Breiman, Friedman, Olshen
+// & Stone 1984, "Classification and Regression Trees", §3.4.3). The pairing
+// matters: two models are judged on the same landmarks, so the difference
+// varies far less than either error alone.
+func chooseModel(models []ModelScore) (transform.Kind, string) {
+	best := -1
+	for i, m := range models {
+		if m.Err == nil && (best < 0 || m.MeanSquare < models[best].MeanSquare) {
+			best = i
+		}
+	}
+	if best < 0 {
+		return "", ""
+	}
+	for i, m := range models {
+		if m.Err != nil {
+			continue
+		}
+		if i == best {
+			break
+		}
+		diff := make([]float64, len(m.sq))
+		for j := range diff {
+			diff[j] = m.sq[j] - models[best].sq[j]
+		}
+		mean, se := meanStdErr(diff)
+		if mean <= se {
+			return m.Model, fmt.Sprintf("the simplest model within one standard error of the best (%s, RMS %.2f µm): RMS %.2f µm",
+				models[best].Model, models[best].RMS, m.RMS)
+		}
+	}
+	b := models[best]
+	reason := fmt.Sprintf("the lowest leave-one-out error (RMS %.2f µm)", b.RMS)
+	if best > 0 {
+		var simpler []string
+		for _, m := range models[:best] {
+			if m.Err == nil {
+				simpler = append(simpler, fmt.Sprintf("%s %.2f µm", m.Model, m.RMS))
+			}
+		}
+		if len(simpler) > 0 {
+			reason += "; every simpler model is clearly worse (" + strings.Join(simpler, ", ") + ")"
+		}
+	}
+	return b.Model, reason
+}
+
+// robustScale estimates the per-axis scale of a fit's leave-one-out errors
+// from the median of their standardised squares, so that a few wrong
+// landmarks do not inflate it.
+func robustScale(res *transform.Result, dim int) transform.Vec {
+	var s transform.Vec
+	v := make([]float64, len(res.LOO))
+	for k := range dim {
+		for i, r := range res.LOO {
+			v[i] = r[k] * r[k] / res.LOOFactor[i]
+		}
+		s[k] = median(v) / medianChiSquare1
+	}
+	return floorScale(s, dim)
+}
+
+// axisScale estimates the per-axis scale as the mean standardised square
+// over the landmarks not in skip: the efficient estimate, once the wrong
+// landmarks are known.
+func axisScale(res *transform.Result, skip []bool, dim int) transform.Vec {
+	var s transform.Vec
+	n := 0
+	for i, r := range res.LOO {
+		if skip != nil && skip[i] {
+			continue
+		}
+		n++
+		for k := range dim {
+			s[k] += r[k] * r[k] / res.LOOFactor[i]
+		}
+	}
+	for k := range dim {
+		s[k] /= float64(max(n, 1))
+	}
+	return floorScale(s, dim)
+}
+
+// floorScale keeps a scale from being exactly zero (a perfect fit of exact
+// synthetic data), which would make every standardised error infinite.
+func floorScale(s transform.Vec, dim int) transform.Vec {
+	m := 0.0
+	for k := range dim {
+		m = math.Max(m, s[k])
+	}
+	floor := math.Max(m*1e-12, 1e-24)
+	for k := range dim {
+		s[k] = math.Max(s[k], floor)
+	}
+	return s
+}
+
+// looCovariance is the predicted covariance of a leave-one-out error.
+func looCovariance(scale transform.Vec, factor float64, dim int) transform.Mat {
+	var c transform.Mat
+	for k := range dim {
+		c[k][k] = scale[k] * factor
+	}
+	return c
+}
+
+// standardised is rᵀC⁻¹r for a diagonal C.
+func standardised(r transform.Vec, c transform.Mat, dim int) float64 {
+	s := 0.0
+	for k := range dim {
+		if c[k][k] > 0 {
+			s += r[k] * r[k] / c[k][k]
+		}
+	}
+	return s
+}
+
+func indices(n int, keep func(int) bool) []int {
+	var idx []int
+	for i := range n {
+		if keep(i) {
+			idx = append(idx, i)
+		}
+	}
+	return idx
+}
+
+func pick(v []float64, idx []int) []float64 {
+	out := make([]float64, len(idx))
+	for k, i := range idx {
+		out[k] = v[i]
+	}
+	return out
+}
+
+func median(v []float64) float64 {
+	if len(v) == 0 {
+		return math.NaN()
+	}
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	if len(s)%2 == 1 {
+		return s[len(s)/2]
+	}
+	return 0.5 * (s[len(s)/2-1] + s[len(s)/2])
+}
+
+func maxOf(v []float64) float64 {
+	m := 0.0
+	for _, x := range v {
+		m = math.Max(m, x)
+	}
+	return m
+}
+
+func meanStdErr(v []float64) (mean, se float64) {
+	if len(v) == 0 {
+		return math.NaN(), math.NaN()
+	}
+	for _, x := range v {
+		mean += x
+	}
+	mean /= float64(len(v))
+	if len(v) < 2 {
+		return mean, math.Inf(1)
+	}
+	ss := 0.0
+	for _, x := range v {
+		ss += (x - mean) * (x - mean)
+	}
+	return mean, math.Sqrt(ss / float64(len(v)-1) / float64(len(v)))
+}

@@ -1,0 +1,277 @@
+package register
+
+import (
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+
+	"gonum.org/v1/gonum/spatial/kdtree"
+
+	"ferry/transform"
+)
+
+// The statuses of a mapped point, from the most to the least serious; a
+// point gets the first that applies.
+const (
+	StatusNoInverse    = "no_inverse"   // --inverse: no source point maps onto it
+	StatusFolded       = "folded"       // the transform folds here: positions are not one-to-one
+	StatusExtrapolated = "extrapolated" // outside the landmarks' hull
+	StatusIsolated     = "isolated"     // inside the hull but far from every landmark
+	StatusOK           = "ok"
+)
+
+// Mapped is one mapped point with its uncertainty.
+type Mapped struct {
+	// Pos is the mapped position (µm); meaningless when Status is
+	// StatusNoInverse.
+	Pos transform.Vec
+	// Cov is the covariance of Pos (µm²), SD the square roots of its
+	// diagonal, R95 the radius of the sphere (circle in 2-D) around Pos that
+	// holds the true position with 95 % probability.
+	Cov    transform.Mat
+	SD     transform.Vec
+	R95    float64
+	Status string
+}
+
+// Mapper maps points through a fitted transform with their uncertainty. It is
+// safe for concurrent use.
+type Mapper struct {
+	t        transform.Transform
+	pred     transform.Predictor
+	u        *UncertaintyModel
+	dim      int
+	hull     supportHull
+	tree     *kdtree.Tree
+	radii    *RadiusTable
+	handSign float64
+}
+
+// NewMapper prepares the mapping of points through the transform of a
+// transform file, with the file's uncertainty model.
+func NewMapper(f *transform.File) (*Mapper, error) {
+	dim := f.Transform.Dim()
+	u, err := ParseUncertaintyModel(f.Uncertainty, dim)
+	if err != nil {
+		return nil, err
+	}
+	pred, err := transform.NewPredictor(f.Transform, u.Source, u.Weights)
+	if err != nil {
+		return nil, fmt.Errorf("uncertainty model: %v", err)
+	}
+	m := &Mapper{
+		t: f.Transform, pred: pred, u: u, dim: dim,
+		hull:  newSupportHull(u.Source, dim),
+		tree:  newPointTree(u.Source),
+		radii: NewRadiusTable(dim, 0.95),
+	}
+	// The handedness of the transform as a whole: a fold is where the local
+	// Jacobian disagrees with it.
+	m.handSign = 1
+	if f.Transform.Jacobian(centroidOf(u.Source)).Det() < 0 {
+		m.handSign = -1
+	}
+	return m, nil
+}
+
+// Map maps one source point x (µm). cellSD, when not nil, is the point's
+// own localisation error (µm per axis, one standard deviation), in the space
+// it is given in.
+func (m *Mapper) Map(x transform.Vec, cellSD *transform.Vec) Mapped {
+	y := m.t.Apply(x)
+	jac := m.t.Jacobian(x)
+	cov := m.covariance(x, jac, cellSD)
+	return m.finish(Mapped{Pos: y, Cov: cov}, x, jac)
+}
+
+// MapInverse maps one target point q (µm) back to the source. Its covariance
+// is that of the forward map at the source point found, with cellSD (target
+// space) in place of the landmarks' picking noise, carried back through the
+// inverse Jacobian.
+func (m *Mapper) MapInverse(q transform.Vec, cellSD *transform.Vec) Mapped {
+	x, err := m.t.Invert(q)
+	if err != nil {
+		return Mapped{Status: StatusNoInverse}
+	}
+	jac := m.t.Jacobian(x)
+	inv, ok := jac.Inverse()
+	if !ok {
+		return Mapped{Pos: x, Status: StatusFolded}
+	}
+	cov := m.covariance(x, jac, nil)
+	if cellSD != nil {
+		cov = subtractPickNoise(cov, m.landmarkNoise(jac), m.dim)
+		for k := range m.dim {
+			cov[k][k] += cellSD[k] * cellSD[k]
+		}
+	}
+	cov = inv.Mul(cov).Mul(inv.T())
+	return m.finish(Mapped{Pos: x, Cov: cov}, x, jac)
+}
+
+// finish fills SD, R95 and the status of a point whose source position is x.
+func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
+	for k := range m.dim {
+		p.SD[k] = math.Sqrt(math.Max(p.Cov[k][k], 0))
+	}
+	p.R95 = m.radii.Radius(p.Cov)
+	switch {
+	case jac.Det()*m.handSign <= 0:
+		p.Status = StatusFolded
+	case !m.hull.contains(x):
+		p.Status = StatusExtrapolated
+	case m.nearestLandmark(x) > isolatedSpacings*m.u.Spacing:
+		p.Status = StatusIsolated
+	default:
+		p.Status = StatusOK
+	}
+	return p
+}
+
+// covariance is P(x), or with cellSD the same with the landmarks' picking
+// noise replaced by the cell's own, carried through the Jacobian.
+func (m *Mapper) covariance(x transform.Vec, jac transform.Mat, cellSD *transform.Vec) transform.Mat {
+	f := m.pred.Factor(x)
+	var c transform.Mat
+	for i := range m.dim {
+		for j := range m.dim {
+			c[i][j] = math.Sqrt(m.u.Scale[i]*m.u.Scale[j]) * f[i][j]
+		}
+		c[i][i] += m.u.Scale[i] * m.u.NoiseFactor
+	}
+	if cellSD == nil {
+		return c
+	}
+	c = subtractPickNoise(c, m.landmarkNoise(jac), m.dim)
+	var d transform.Mat
+	for k := range m.dim {
+		d[k][k] = cellSD[k] * cellSD[k]
+	}
+	jd := jac.Mul(d).Mul(jac.T())
+	for i := range m.dim {
+		for j := range m.dim {
+			c[i][j] += jd[i][j]
+		}
+	}
+	return c
+}
+
+// landmarkNoise is the landmarks' own picking noise in the target at a point
+// of Jacobian jac: from the sd flags when they were given, else, for the
+// spline, its nugget s·ν; for a linear model, whose scale holds noise and
+// misfit together and cannot part them, nothing, which errs on the side of
+// a wider radius.
+func (m *Mapper) landmarkNoise(jac transform.Mat) transform.Mat {
+	if m.u.SourceSD != nil || m.u.TargetSD != nil {
+		return pickNoise(Settings{SourceSD: m.u.SourceSD, TargetSD: m.u.TargetSD}, jac)
+	}
+	var c transform.Mat
+	if m.t.Kind() == transform.TPS {
+		for k := range m.dim {
+			c[k][k] = m.u.Scale[k] * m.u.NoiseFactor
+		}
+	}
+	return c
+}
+
+// subtractPickNoise takes noise off the diagonal of c, never below the
+// part of c that is not noise at all.
+func subtractPickNoise(c, noise transform.Mat, dim int) transform.Mat {
+	for k := range dim {
+		c[k][k] = math.Max(c[k][k]-noise[k][k], 0)
+	}
+	return c
+}
+
+func (m *Mapper) nearestLandmark(x transform.Vec) float64 {
+	_, d := m.tree.Nearest(kdtree.Point{x[0], x[1], x[2]})
+	return math.Sqrt(d)
+}
+
+// MapAll maps every point of xs on all cores, forward or (inverse) back.
+func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool) []Mapped {
+	out := make([]Mapped, len(xs))
+	workers := min(runtime.GOMAXPROCS(0), max(1, len(xs)/256))
+	var wg sync.WaitGroup
+	chunk := (len(xs) + workers - 1) / max(workers, 1)
+	for lo := 0; lo < len(xs); lo += chunk {
+		hi := min(lo+chunk, len(xs))
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := lo; i < hi; i++ {
+				if inverse {
+					out[i] = m.MapInverse(xs[i], cellSD)
+				} else {
+					out[i] = m.Map(xs[i], cellSD)
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	return out
+}
+
+func centroidOf(points []transform.Vec) transform.Vec {
+	var c transform.Vec
+	for _, p := range points {
+		c = c.Add(p)
+	}
+	return c.Scale(1 / float64(max(len(points), 1)))
+}
+
+// supportHull is the landmarks' convex hull approximated from outside by
+// its support planes in a fixed set of directions: a point is inside when no
+// direction sees it beyond the farthest landmark. With 642 directions in
+// 3-D (160 in 2-D) the approximation exceeds the true hull by a thin margin
+// near its edges only, and costs one dot product a direction.
+type supportHull struct {
+	dirs  []transform.Vec
+	reach []float64
+	tol   float64
+}
+
+func newSupportHull(points []transform.Vec, dim int) supportHull {
+	var h supportHull
+	if dim == 2 {
+		const n = 160
+		for k := range n {
+			a := 2 * math.Pi * float64(k) / n
+			h.dirs = append(h.dirs, transform.Vec{math.Cos(a), math.Sin(a), 0})
+		}
+	} else {
+		// A Fibonacci lattice spreads directions evenly over the sphere.
+		const n = 642
+		golden := math.Pi * (3 - math.Sqrt(5))
+		for k := range n {
+			z := 1 - (2*float64(k)+1)/n
+			r := math.Sqrt(1 - z*z)
+			a := golden * float64(k)
+			h.dirs = append(h.dirs, transform.Vec{r * math.Cos(a), r * math.Sin(a), z})
+		}
+	}
+	h.reach = make([]float64, len(h.dirs))
+	extent := 0.0
+	for k, d := range h.dirs {
+		h.reach[k] = math.Inf(-1)
+		lo := math.Inf(1)
+		for _, p := range points {
+			v := d.Dot(p)
+			h.reach[k] = math.Max(h.reach[k], v)
+			lo = math.Min(lo, v)
+		}
+		extent = math.Max(extent, h.reach[k]-lo)
+	}
+	h.tol = 1e-9 * extent
+	return h
+}
+
+func (h supportHull) contains(x transform.Vec) bool {
+	for k, d := range h.dirs {
+		if d.Dot(x) > h.reach[k]+h.tol {
+			return false
+		}
+	}
+	return true
+}

@@ -1,0 +1,100 @@
+package register
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+
+	"ferry/landmarks"
+	"ferry/transform"
+)
+
+// Problem is a landmark set ready to be fitted: positions in micrometres,
+// the excluded pairs already removed.
+type Problem struct {
+	Dim            int
+	IDs            []string
+	Kinds          []landmarks.Kind
+	Source, Target []transform.Vec
+}
+
+// NewProblem takes the pairs of a landmark file, already scaled to
+// micrometres and with the user's exclusions removed.
+func NewProblem(set *landmarks.PairSet) *Problem {
+	return &Problem{
+		Dim:    set.Dim,
+		IDs:    set.IDs(),
+		Kinds:  set.Kinds(),
+		Source: set.Sources(),
+		Target: set.Targets(),
+	}
+}
+
+// Len is the number of landmark pairs.
+func (p *Problem) Len() int { return len(p.IDs) }
+
+// subset is the problem restricted to the pairs whose index keep reports.
+func (p *Problem) subset(keep func(i int) bool) *Problem {
+	q := &Problem{Dim: p.Dim}
+	for i := range p.IDs {
+		if keep(i) {
+			q.IDs = append(q.IDs, p.IDs[i])
+			q.Kinds = append(q.Kinds, p.Kinds[i])
+			q.Source = append(q.Source, p.Source[i])
+			q.Target = append(q.Target, p.Target[i])
+		}
+	}
+	return q
+}
+
+// Smoothing is the thin-plate-spline smoothing: a number, or Auto.
+type Smoothing struct {
+	Auto  bool
+	Value float64
+}
+
+// ParseSmoothing reads the --smoothing flag: "auto" or a number ≥ 0.
+func ParseSmoothing(s string) (Smoothing, error) {
+	if strings.EqualFold(strings.TrimSpace(s), "auto") {
+		return Smoothing{Auto: true}, nil
+	}
+	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return Smoothing{}, fmt.Errorf("--smoothing: want \"auto\" or a number ≥ 0, got %q", s)
+	}
+	if v < 0 {
+		return Smoothing{}, fmt.Errorf("--smoothing: %g is negative: want \"auto\" or a number ≥ 0", v)
+	}
+	return Smoothing{Value: v}, nil
+}
+
+func (s Smoothing) String() string {
+	if s.Auto {
+		return "auto"
+	}
+	return strconv.FormatFloat(s.Value, 'g', -1, 64)
+}
+
+// ParseModel reads the --model flag: "auto" (the empty Kind) or a model.
+func ParseModel(s string) (transform.Kind, error) {
+	if strings.EqualFold(strings.TrimSpace(s), "auto") {
+		return "", nil
+	}
+	k, err := transform.ParseKind(strings.ToLower(strings.TrimSpace(s)))
+	if err != nil {
+		return "", fmt.Errorf("--model: %v", err)
+	}
+	return k, nil
+}
+
+// Settings steer the assessment of a landmark set.
+type Settings struct {
+	// Model is the model asked for; empty means auto.
+	Model     transform.Kind
+	Smoothing Smoothing
+	NoMirror  bool
+	// SourceSD and TargetSD, when set, are the localisation standard
+	// deviations per axis (µm) of the landmark picks on each side.
+	SourceSD, TargetSD *transform.Vec
+}

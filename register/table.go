@@ -1,0 +1,117 @@
+package register
+
+import (
+	"encoding/csv"
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+
+	"ferry/landmarks"
+	"ferry/transform"
+)
+
+// Provenance says which inputs, flags and program made an output. It is
+// written as a leading comment line of every CSV file and as a field of every
+// JSON and HTML output.
+type Provenance struct {
+	Command string
+	// Inputs are the input files with their SHA-256, in the order given.
+	Inputs []Input
+	// Flags are the flags that were set, as given.
+	Flags []string
+}
+
+// Input is one input file and the SHA-256 of its bytes.
+type Input struct {
+	Path, SHA256 string
+}
+
+// Line is the provenance as one line of text, without a comment mark.
+func (p Provenance) Line() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "ferry %s %s", Version, p.Command)
+	for _, in := range p.Inputs {
+		fmt.Fprintf(&b, "; %s sha256:%s", in.Path, in.SHA256)
+	}
+	if len(p.Flags) > 0 {
+		fmt.Fprintf(&b, "; flags: %s", strings.Join(p.Flags, " "))
+	}
+	return b.String()
+}
+
+// formatCoord writes a coordinate or an error in micrometres (or voxels) to
+// the nanometre (a thousandth), enough for any microscope and stable across
+// runs.
+func formatCoord(x float64) string {
+	if x == 0 {
+		// Never "-0.000".
+		x = 0
+	}
+	s := strconv.FormatFloat(x, 'f', 4, 64)
+	if s == "-0.0000" {
+		return "0.0000"
+	}
+	return s
+}
+
+// WriteMapped writes the mapped cells in the contract's columns: id, x, y, z
+// (mapped, in micrometres or, when voxel is not nil, in voxels of that size),
+// sd_x_um, sd_y_um, sd_z_um, r95_um, status, then the cells' own extra
+// columns. A point without an inverse has empty position and error fields.
+func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped []Mapped, voxel *transform.Vec) error {
+	if _, err := fmt.Fprintf(w, "# %s\n", prov.Line()); err != nil {
+		return err
+	}
+	cw := csv.NewWriter(w)
+	axes := []string{"x", "y", "z"}[:cells.Dim]
+	header := append([]string{"id"}, axes...)
+	for _, a := range axes {
+		header = append(header, "sd_"+a+"_um")
+	}
+	header = append(header, "r95_um", "status")
+	header = append(header, cells.ExtraColumns...)
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	row := make([]string, 0, len(header))
+	for i, c := range cells.Points {
+		m := mapped[i]
+		row = append(row[:0], c.ID)
+		if m.Status == StatusNoInverse {
+			for range 2*cells.Dim + 1 {
+				row = append(row, "")
+			}
+		} else {
+			for k := range cells.Dim {
+				v := m.Pos[k]
+				if voxel != nil {
+					v /= voxel[k]
+				}
+				row = append(row, formatCoord(v))
+			}
+			for k := range cells.Dim {
+				row = append(row, formatCoord(m.SD[k]))
+			}
+			row = append(row, formatCoord(m.R95))
+		}
+		row = append(row, m.Status)
+		row = append(row, c.Extra...)
+		if err := cw.Write(row); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// FormatCounts lists status counts in the order of seriousness.
+func FormatCounts(counts map[string]int) string {
+	var parts []string
+	for _, s := range []string{StatusOK, StatusIsolated, StatusExtrapolated, StatusFolded, StatusNoInverse} {
+		if n := counts[s]; n > 0 {
+			parts = append(parts, fmt.Sprintf("%d %s", n, s))
+		}
+	}
+	return strings.Join(parts, ", ")
+}

@@ -1,0 +1,133 @@
+package register
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/spatial/kdtree"
+
+	"ferry/transform"
+)
+
+// UncertaintyModel is what map and match need, beyond the transform, to give
+// each mapped point its covariance. It is stored in the transform file.
+//
+// The covariance of a point mapped from source position x is
+//
+//	P(x) = diag(√s)·(F(x) + ν·I)·diag(√s)
+//
+// the predictive covariance of a new landmark at x: F is the fitted model's
+// prediction factor (transform.Predictor), s the per-axis scale estimated
+// from the landmarks' leave-one-out errors, ν the noise factor of a pair of
+// unit weight (1 for the linear models, the smoothing S for the spline).
+// This is the quantity the leave-one-out errors calibrate. A cell whose own
+// localisation error is given (--cell-sd) has the landmarks' picking noise
+// taken out and its own carried through the Jacobian put in; see Covariance.
+type UncertaintyModel struct {
+	Method string `json:"method"`
+	// Scale is s, per target axis (µm²).
+	Scale       transform.Vec `json:"axis_scale_um2"`
+	NoiseFactor float64       `json:"noise_factor"`
+	// SourceSD and TargetSD are the picking errors of the landmarks when
+	// the user stated them (µm).
+	SourceSD *transform.Vec `json:"source_sd_um,omitempty"`
+	TargetSD *transform.Vec `json:"target_sd_um,omitempty"`
+	// Source and Weights are the landmarks the transform was fitted to
+	// (source µm) and their weights, from which the predictor, the hull and
+	// the distances to the nearest landmark are rebuilt.
+	Source  []transform.Vec `json:"landmarks_source_um"`
+	Weights []float64       `json:"weights"`
+	// Spacing is the median distance from a landmark to its nearest
+	// neighbour (µm): a point farther than isolatedSpacings times this from
+	// every landmark is isolated.
+	Spacing float64 `json:"landmark_spacing_um"`
+	// Calibration is the check's share of leave-one-out errors inside their
+	// 95 % radius.
+	CalibrationInside int `json:"calibration_inside"`
+	CalibrationN      int `json:"calibration_n"`
+}
+
+const (
+	methodName = "leave-one-out calibrated predictive covariance"
+	// isolatedSpacings: how many typical landmark spacings from the nearest
+	// landmark make a point isolated.
+	isolatedSpacings = 2.5
+)
+
+// NewUncertaintyModel builds the uncertainty model of an assessment.
+func NewUncertaintyModel(p *Problem, a *Assessment, s Settings) *UncertaintyModel {
+	u := &UncertaintyModel{
+		Method: methodName, Scale: a.Scale, NoiseFactor: 1,
+		SourceSD: s.SourceSD, TargetSD: s.TargetSD,
+		Source: append([]transform.Vec(nil), p.Source...), Weights: append([]float64(nil), a.Weights...),
+		Spacing:           nearestSpacing(p.Source),
+		CalibrationInside: a.Calibration.Inside, CalibrationN: a.Calibration.N,
+	}
+	if a.Chosen == transform.TPS {
+		u.NoiseFactor = a.Smoothing
+	}
+	return u
+}
+
+// Marshal encodes the model for the transform file.
+func (u *UncertaintyModel) Marshal() (json.RawMessage, error) { return json.Marshal(u) }
+
+// ParseUncertaintyModel decodes and checks the model of a transform file.
+func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, error) {
+	if len(raw) == 0 {
+		return nil, errors.New("the transform file has no uncertainty model")
+	}
+	var u UncertaintyModel
+	if err := json.Unmarshal(raw, &u); err != nil {
+		return nil, fmt.Errorf("uncertainty model: %v", err)
+	}
+	if u.Method != methodName {
+		return nil, fmt.Errorf("uncertainty model %q is not one this program knows", u.Method)
+	}
+	if len(u.Source) == 0 || len(u.Weights) != len(u.Source) {
+		return nil, fmt.Errorf("uncertainty model: %d landmarks with %d weights", len(u.Source), len(u.Weights))
+	}
+	for k := range dim {
+		if !(u.Scale[k] > 0) || math.IsInf(u.Scale[k], 0) {
+			return nil, fmt.Errorf("uncertainty model: axis scale %v is not positive", u.Scale)
+		}
+	}
+	if !(u.NoiseFactor >= 0) || math.IsInf(u.NoiseFactor, 0) || !(u.Spacing >= 0) {
+		return nil, errors.New("uncertainty model: noise factor or spacing is not a finite number ≥ 0")
+	}
+	for i, p := range u.Source {
+		if !p.IsFinite() || !(u.Weights[i] > 0) {
+			return nil, fmt.Errorf("uncertainty model: landmark %d is not finite or has no weight", i+1)
+		}
+	}
+	return &u, nil
+}
+
+// nearestSpacing is the median nearest-neighbour distance of points.
+func nearestSpacing(points []transform.Vec) float64 {
+	if len(points) < 2 {
+		return 0
+	}
+	tree := newPointTree(points)
+	d := make([]float64, len(points))
+	for i, p := range points {
+		keep := kdtree.NewNKeeper(2)
+		tree.NearestSet(keep, kdtree.Point(p[:]))
+		for _, c := range keep.Heap {
+			if c.Comparable != nil && c.Dist > 0 {
+				d[i] = math.Sqrt(c.Dist)
+			}
+		}
+	}
+	return median(d)
+}
+
+func newPointTree(points []transform.Vec) *kdtree.Tree {
+	pts := make(kdtree.Points, len(points))
+	for i, p := range points {
+		pts[i] = kdtree.Point{p[0], p[1], p[2]}
+	}
+	return kdtree.New(pts, false)
+}
