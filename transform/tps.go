@@ -434,7 +434,7 @@ func fitSpline(dim int, src, dst []Vec, opt Options) (*Result, error) {
 	if !opt.LeaveOneOut {
 		return res, nil
 	}
-	res.LOO, err = sys.leaveOneOut(sp.Weights)
+	res.LOO, res.LOOFactor, err = sys.leaveOneOut(sp.Weights)
 	if err != nil {
 		return nil, err
 	}
@@ -1012,27 +1012,38 @@ func invertUpper(t blas64.Triangular) bool {
 // keeps each remaining pair's smoothing S·w̄/w_j, w̄ the mean over all N
 // pairs: leaving a pair out does not renormalise the others.
 //
+// The second result is Result.LOOFactor, 1/(M⁻¹)_ii of the contract's
+// micrometre system. Its top-left block of M⁻¹ is that of the normalised
+// system divided by s in 3-D and by s² in 2-D (in 2-D the extra r² term of
+// the kernel vanishes on the projection: Zᵀ R Z = 0 because Zᵀ1 = 0 and
+// ZᵀU = 0).
+//
 // A pair whose affine leverage is 1 alone fixes a direction of the affine
 // part (the others lie on a line or a plane); its (M⁻¹)_ii is 0 and its
 // leave-one-out error undefined, which is an error.
-func (sys *splineSystem) leaveOneOut(w []Vec) ([]Vec, error) {
+func (sys *splineSystem) leaveOneOut(w []Vec) (loo []Vec, factor []float64, err error) {
 	for i, h := range sys.leverage() {
 		if 1-h <= leverageTol {
-			return nil, fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
+			return nil, nil, fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
 		}
 	}
 	d, err := sys.inverseDiagonal()
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	loo := make([]Vec, len(w))
+	unit := sys.scale // (M_µm⁻¹)_ii = (M_u⁻¹)_ii / unit
+	if sys.dim == 2 {
+		unit *= sys.scale
+	}
+	loo, factor = make([]Vec, len(w)), make([]float64, len(w))
 	for i, di := range d {
 		if !(di > 0) {
-			return nil, fmt.Errorf("leave-one-out of pair %d: the inverse of the spline system has diagonal %g, not positive; the system is too ill-conditioned", i, di)
+			return nil, nil, fmt.Errorf("leave-one-out of pair %d: the inverse of the spline system has diagonal %g, not positive; the system is too ill-conditioned", i, di)
 		}
 		loo[i] = w[i].Scale(1 / di)
+		factor[i] = unit / di
 	}
-	return loo, nil
+	return loo, factor, nil
 }
 
 // parallelRows splits [0, n) into one contiguous range per core for work of

@@ -59,31 +59,18 @@ func (c warpCase) pairs(seed uint64) (src, dst []Vec, w []float64) {
 	return src, dst, w
 }
 
-// directSpline solves the contract's bordered system in raw micrometre
-// coordinates with a dense LU factorisation — no centring, no scaling, no
-// projection — and returns the fitted function, an independent check of the
-// normalised solve.
-func directSpline(t *testing.T, dim int, src, dst []Vec, smoothing float64, weights []float64) func(Vec) Vec {
-	t.Helper()
+// directSystem builds the contract's bordered matrix M = [[K + S·D, P],
+// [Pᵀ, 0]] in raw micrometre coordinates.
+func directSystem(dim int, src []Vec, smoothing float64, weights []float64) *mat.Dense {
 	n, m := len(src), dim+1
-	phi := func(r float64) float64 {
-		if dim == 3 {
-			return -r
-		}
-		if r == 0 {
-			return 0
-		}
-		return r * r * math.Log(r)
-	}
 	mean := 0.0
 	for _, w := range weights {
 		mean += w / float64(n)
 	}
 	a := mat.NewDense(n+m, n+m, nil)
-	b := mat.NewDense(n+m, dim, nil)
 	for i := range n {
 		for j := range n {
-			a.Set(i, j, phi(src[i].Sub(src[j]).Norm()))
+			a.Set(i, j, directKernel(dim, src[i].Sub(src[j]).Norm()))
 		}
 		d := 1.0
 		if weights != nil {
@@ -95,6 +82,33 @@ func directSpline(t *testing.T, dim int, src, dst []Vec, smoothing float64, weig
 		for k := range dim {
 			a.Set(i, n+1+k, src[i][k])
 			a.Set(n+1+k, i, src[i][k])
+		}
+	}
+	return a
+}
+
+// directKernel is the contract's φ(r), r in µm.
+func directKernel(dim int, r float64) float64 {
+	if dim == 3 {
+		return -r
+	}
+	if r == 0 {
+		return 0
+	}
+	return r * r * math.Log(r)
+}
+
+// directSpline solves the contract's bordered system in raw micrometre
+// coordinates with a dense LU factorisation — no centring, no scaling, no
+// projection — and returns the fitted function, an independent check of the
+// normalised solve.
+func directSpline(t *testing.T, dim int, src, dst []Vec, smoothing float64, weights []float64) func(Vec) Vec {
+	t.Helper()
+	n := len(src)
+	a := directSystem(dim, src, smoothing, weights)
+	b := mat.NewDense(n+dim+1, dim, nil)
+	for i := range n {
+		for k := range dim {
 			b.Set(i, k, dst[i][k])
 		}
 	}
@@ -110,7 +124,7 @@ func directSpline(t *testing.T, dim int, src, dst []Vec, smoothing float64, weig
 				s += x.At(n+1+l, k) * p[l]
 			}
 			for j := range n {
-				s += x.At(j, k) * phi(p.Sub(src[j]).Norm())
+				s += x.At(j, k) * directKernel(dim, p.Sub(src[j]).Norm())
 			}
 			out[k] = s
 		}
@@ -181,8 +195,21 @@ func TestSplineMatchesDirectSolve(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			src, dst, w := c.pairs(2)
-			_, sp := fitSplineT(t, c.dim, src, dst, Options{Smoothing: c.smoothing, Weights: w})
+			res, sp := fitSplineT(t, c.dim, src, dst, Options{Smoothing: c.smoothing, Weights: w, LeaveOneOut: true})
 			direct := directSpline(t, c.dim, src, dst, c.smoothing, w)
+			// Result.LOOFactor is 1/(M⁻¹)_ii of the micrometre system.
+			var inv mat.Dense
+			if err := inv.Inverse(directSystem(c.dim, src, c.smoothing, w)); err != nil {
+				t.Fatalf("direct inverse: %v", err)
+			}
+			for i, f := range res.LOOFactor {
+				if want := 1 / inv.At(i, i); math.Abs(f-want) > 1e-7*math.Abs(want) {
+					t.Errorf("LOOFactor[%d] = %.10g, direct inverse gives %.10g", i, f, want)
+				}
+			}
+			if len(res.LOOFactor) != len(src) {
+				t.Errorf("%d leave-one-out factors for %d pairs", len(res.LOOFactor), len(src))
+			}
 			for _, p := range c.queryPoints(3, 50) {
 				got, want := sp.Apply(p), direct(p)
 				if d := got.Sub(want).Norm(); d > 1e-7*500 {
