@@ -26,8 +26,8 @@
 // in any case; an empty kind is other. Ids are unique within a file and not
 // empty. Coordinates are decimal numbers ("12.5", "-3", "1e3") and must be
 // finite. Columns beyond the required ones are kept, in file order, and
-// passed through unchanged: ExtraColumns names them and each row's Extra
-// holds its values.
+// passed through unchanged but for spaces after the comma: ExtraColumns names
+// them and each row's Extra holds its values.
 //
 // Line numbers in messages count every physical line of the file from 1,
 // comments and blank lines included, so that they agree with an editor.
@@ -37,4 +37,10 @@
 // Coordinates are micrometres unless voxel sizes are given; ScaleVoxels then
 // turns voxel indices into micrometres. ParseTriple and ParseIDList read the
 // per-axis and id-list flags of the commands.
+//
+// # Checks for the fit
+//
+// PairSet gives the fit its positions, ids and kinds as plain slices, and
+// Exclude drops the pairs named by --exclude. CheckSpread says in plain words
+// when landmarks lie on a line or a plane that a model needs them off.
 package landmarks

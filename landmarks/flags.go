@@ -64,6 +64,7 @@ func ParseIDList(flagName, value string) ([]string, error) {
 	}
 	r := csv.NewReader(strings.NewReader(value))
 	r.TrimLeadingSpace = true
+	r.FieldsPerRecord = -1
 	ids, err := r.Read()
 	if err == nil {
 		if _, more := r.Read(); more == nil {

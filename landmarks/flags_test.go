@@ -69,6 +69,7 @@ func TestParseIDList(t *testing.T) {
 		{value: "A,", err: `--exclude: empty id (item 2) in "A,"`},
 		{value: "A,B,A", err: `--exclude: id "A" given twice`},
 		{value: `"A`, err: `--exclude: cannot read the id list "\"A": extraneous or missing " in quoted-field`},
+		{value: "A\nB,C", err: `--exclude: cannot read the id list "A\nB,C": the list holds a line break`},
 		{value: "A\nB", err: `--exclude: cannot read the id list "A\nB": the list holds a line break`},
 	}
 	for _, tt := range tests {
