@@ -10,8 +10,8 @@ import (
 
 // ParseTriple reads the value of a per-axis flag such as
 // "--source-voxel 0.5,0.5,2" or "--cell-sd 1,1,3": dim comma-separated
-// numbers (X,Y,Z in 3-D, X,Y in 2-D, when Z is zero), each positive and
-// finite, in micrometres. flagName, with its dashes, starts every message.
+// numbers (X,Y,Z in 3-D; X,Y in 2-D, where the Z of the result is left
+// zero), each positive and finite, in micrometres. flagName, with its dashes, starts every message.
 func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 	var v transform.Vec
 	axes := "X,Y,Z"

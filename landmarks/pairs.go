@@ -43,7 +43,7 @@ type Pair struct {
 	Source, Target transform.Vec
 	// Line is the physical line of the file the pair was read from.
 	Line int
-	// Extra holds the row's values of the set's ExtraColumns, unchanged.
+	// Extra holds the row's values of the set's ExtraColumns, as read.
 	Extra []string
 }
 

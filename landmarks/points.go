@@ -15,7 +15,7 @@ type Point struct {
 	Pos transform.Vec
 	// Line is the physical line of the file the point was read from.
 	Line int
-	// Extra holds the row's values of the set's ExtraColumns, unchanged.
+	// Extra holds the row's values of the set's ExtraColumns, as read.
 	Extra []string
 }
 

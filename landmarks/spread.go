@@ -28,16 +28,17 @@ const (
 )
 
 // CheckSpread reports, in plain words, when points in dim dimensions (2 or
-// 3) do not spread in need of them: for need 1 when they are all at one
+// 3) fail to spread over need dimensions: for need 1 when they are all at one
 // position, for need 2 when they lie on a line, for need 3 when they lie on a
 // plane. need is what the model to be fitted asks for (an affine map in 3-D
-// needs 3, a translation 0).
+// needs 3, a translation 0). It returns nil when the points spread enough.
 //
 // The test uses the singular values s₁ ≥ s₂ ≥ s₃ of the coordinates centred
 // on their mean: s_k/√n is the root-mean-square distance of the points from
 // their centre along the k-th principal axis. The points spread in k
-// dimensions when s_k exceeds flatTolerance (10⁻⁶) times s₁; they are at one
-// position when s₁ is at most 10⁻¹² times the largest coordinate times √n.
+// dimensions when s_k exceeds 10⁻⁶ times s₁ (a nanometre across a
+// millimetre); they are at one position when s₁ is at most 10⁻¹² times the
+// largest coordinate times √n.
 func CheckSpread(points []transform.Vec, dim, need int) error {
 	if dim != 2 && dim != 3 {
 		return fmt.Errorf("dimension %d: want 2 or 3", dim)
