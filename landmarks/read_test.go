@@ -174,6 +174,14 @@ func TestParseFormats(t *testing.T) {
 			}},
 		},
 		{
+			name:  "byte-order mark and CRLF",
+			input: "\uFEFF# from a spreadsheet\r\nid,x,y,z,note\r\na,1,2,3,\"x\r\ny\"\r\n\r\nb,4,5,6,\r\n",
+			want: &PointSet{Dim: 3, ExtraColumns: []string{"note"}, Points: []Point{
+				{ID: "a", Pos: transform.Vec{1, 2, 3}, Line: 3, Extra: []string{"x\ny"}},
+				{ID: "b", Pos: transform.Vec{4, 5, 6}, Line: 6, Extra: []string{""}},
+			}},
+		},
+		{
 			name:  "2-D",
 			input: "id,x,y,area\np,1.25,-2,7\nq,3,4,8\n",
 			want: &PointSet{Dim: 2, ExtraColumns: []string{"area"}, Points: []Point{
