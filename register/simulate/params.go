@@ -184,7 +184,7 @@ func DefaultParams() Params {
 		VesselLandmarks:      40,
 		SomaLandmarks:        15,
 		LandmarkMinSpacingUM: 30,
-		LandmarkDepthScaleUM: 300,
+		LandmarkDepthScaleUM: 200,
 		VesselSourceSDUM:     transform.Vec{1, 1, 3},
 		SomaSourceSDUM:       transform.Vec{1.5, 1.5, 4},
 		VesselTargetSDUM:     0.3,
@@ -203,7 +203,7 @@ func SmallParams() Params {
 	p.FieldUM = transform.Vec{200, 200, 150}
 	p.WarpBumps = 3
 	p.WarpWidthUM = 70
-	p.Vessels = 4
+	p.Vessels = 6
 	p.SegmentLengthUM = [2]float64{12, 30}
 	p.BranchProbability = 0.5
 	p.Layer1DepthUM = 40
@@ -212,7 +212,7 @@ func SmallParams() Params {
 	p.VesselLandmarks = 12
 	p.SomaLandmarks = 5
 	p.LandmarkMinSpacingUM = 18
-	p.LandmarkDepthScaleUM = 150
+	p.LandmarkDepthScaleUM = 100
 	return p
 }
 

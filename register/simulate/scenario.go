@@ -166,7 +166,23 @@ func Generate(p Params, seed uint64) (*Scenario, error) {
 	p.ImagingPlanesUM = slices.Clone(p.ImagingPlanesUM)
 	s := &Scenario{Params: p, Seed: seed}
 	s.Map = newTrueMap(p, stream(seed, streamMap))
-	s.Vessels, s.BranchPoints = growVessels(p, stream(seed, streamVessels))
+	// A tree too poor in branch points for the vessel landmarks asked for
+	// is drawn again from the same stream: the EM block will hold only part
+	// of the field, and users leave some branch points alone.
+	rng := stream(seed, streamVessels)
+	inner := Box{Max: p.FieldUM}.shrink(landmarkMargin)
+	for attempt := 0; ; attempt++ {
+		s.Vessels, s.BranchPoints = growVessels(p, rng)
+		usable := 0
+		for _, b := range s.BranchPoints {
+			if inner.Contains(b.PositionUM) {
+				usable++
+			}
+		}
+		if usable >= 2*p.VesselLandmarks || attempt == 20 {
+			break
+		}
+	}
 
 	field := Box{Max: p.FieldUM}
 	cellSide := p.SomaMinSpacingUM
@@ -421,9 +437,21 @@ func (s *Scenario) makeCandidates(nuclei *pointGrid, walls *segmentGrid) error {
 
 	// Number them as a segmentation of the EM volume would, section by
 	// section, so that an id says nothing of the kind.
-	slices.SortStableFunc(cands, func(a, b Candidate) int {
-		return cmp.Or(cmp.Compare(a.TargetUM[2], b.TargetUM[2]), cmp.Compare(a.TargetUM[1], b.TargetUM[1]), cmp.Compare(a.TargetUM[0], b.TargetUM[0]))
+	// Sort a permutation rather than the records, with the drawing order as
+	// the last key so that the order is total.
+	order := make([]int, len(cands))
+	for i := range order {
+		order[i] = i
+	}
+	slices.SortFunc(order, func(i, j int) int {
+		a, b := cands[i].TargetUM, cands[j].TargetUM
+		return cmp.Or(cmp.Compare(a[2], b[2]), cmp.Compare(a[1], b[1]), cmp.Compare(a[0], b[0]), cmp.Compare(i, j))
 	})
+	sorted := make([]Candidate, len(cands))
+	for k, i := range order {
+		sorted[k] = cands[i]
+	}
+	cands = sorted
 	width := max(6, digits(len(cands)))
 	for i := range cands {
 		cands[i].ID = fmt.Sprintf("n%0*d", width, i+1)

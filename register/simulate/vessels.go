@@ -32,11 +32,12 @@ type BranchPoint struct {
 // generation run away; far above what the default tree needs.
 const maxSegments = 20000
 
-// sprout is a vessel end still growing.
+// sprout is a vessel end still growing; grown counts its segments so far.
 type sprout struct {
 	at, dir       transform.Vec
 	radius        float64
 	order, vessel int
+	grown         int
 }
 
 // growVessels grows the penetrating vessels from the pia, depth first.
@@ -46,6 +47,8 @@ type sprout struct {
 // 12:207–214), with the side branch the thinner one, down to the capillary
 // radius, which the capillaries keep. A side branch ends after
 // MaxSideSegments segments, and any branch where it would leave the field.
+// A side branch whose first segment would leave the field is not made, so
+// that every branch point has three vessels meeting at it.
 func growVessels(p Params, rng *rand.Rand) ([]Segment, []BranchPoint) {
 	field := p.FieldUM
 	var segments []Segment
@@ -84,41 +87,52 @@ func growVessels(p Params, rng *rand.Rand) ([]Segment, []BranchPoint) {
 	inField := func(q transform.Vec) bool {
 		return q[0] >= 0 && q[0] <= field[0] && q[1] >= 0 && q[1] <= field[1] && q[2] >= 0 && q[2] <= field[2]
 	}
+	// step grows s by one segment, or reports that it would leave the field.
+	step := func(s *sprout) bool {
+		// Bend: the trunk keeps descending, side branches wander.
+		wiggle := 0.2
+		if s.order == 0 {
+			wiggle = 0.12
+		}
+		dir := s.dir.Add(transform.Vec{wiggle * rng.NormFloat64(), wiggle * rng.NormFloat64(), wiggle * rng.NormFloat64()})
+		if s.order == 0 {
+			dir = dir.Add(transform.Vec{0, 0, 0.3})
+		}
+		dir = normalise(dir)
+		length := p.SegmentLengthUM[0] + rng.Float64()*(p.SegmentLengthUM[1]-p.SegmentLengthUM[0])
+		end := s.at.Add(dir.Scale(length))
+		if !inField(end) {
+			return false
+		}
+		segments = append(segments, Segment{Start: s.at, End: end, RadiusUM: s.radius, Vessel: s.vessel, Order: s.order})
+		s.at, s.dir = end, dir
+		s.grown++
+		return true
+	}
 	for len(stack) > 0 && len(segments) < maxSegments {
 		s := stack[len(stack)-1]
 		stack = stack[:len(stack)-1]
-		for n := 0; len(segments) < maxSegments; n++ {
-			if s.order > 0 && n >= p.MaxSideSegments {
+		for len(segments) < maxSegments {
+			if s.order > 0 && s.grown >= p.MaxSideSegments {
 				break
 			}
-			// Bend: the trunk keeps descending, side branches wander.
-			wiggle := 0.2
-			if s.order == 0 {
-				wiggle = 0.12
-			}
-			dir := s.dir.Add(transform.Vec{wiggle * rng.NormFloat64(), wiggle * rng.NormFloat64(), wiggle * rng.NormFloat64()})
-			if s.order == 0 {
-				dir = dir.Add(transform.Vec{0, 0, 0.3})
-			}
-			dir = normalise(dir)
-			length := p.SegmentLengthUM[0] + rng.Float64()*(p.SegmentLengthUM[1]-p.SegmentLengthUM[0])
-			end := s.at.Add(dir.Scale(length))
-			if !inField(end) {
+			if !step(&s) {
 				break
 			}
-			segments = append(segments, Segment{Start: s.at, End: end, RadiusUM: s.radius, Vessel: s.vessel, Order: s.order})
-			s.at, s.dir = end, dir
 			s.radius = math.Max(0.98*s.radius, p.CapillaryRadiusUM) // a slow taper
 			if s.order >= p.MaxBranchOrder || rng.Float64() >= p.BranchProbability {
 				continue
 			}
 			ratio := 0.55 + 0.25*rng.Float64()
-			side := math.Max(s.radius*ratio, p.CapillaryRadiusUM)
-			main := math.Max(math.Cbrt(s.radius*s.radius*s.radius-side*side*side), p.CapillaryRadiusUM)
 			angle := (p.BranchAngleDeg[0] + rng.Float64()*(p.BranchAngleDeg[1]-p.BranchAngleDeg[0])) * math.Pi / 180
+			side := sprout{at: s.at, dir: turn(s.dir, angle, rng), order: s.order + 1, vessel: s.vessel}
+			side.radius = math.Max(s.radius*ratio, p.CapillaryRadiusUM)
+			if !step(&side) {
+				continue
+			}
 			branches = append(branches, BranchPoint{PositionUM: s.at, RadiusUM: s.radius, Vessel: s.vessel, Order: s.order})
-			stack = append(stack, sprout{at: s.at, dir: turn(s.dir, angle, rng), radius: side, order: s.order + 1, vessel: s.vessel})
-			s.radius = main
+			stack = append(stack, side)
+			s.radius = math.Max(math.Cbrt(s.radius*s.radius*s.radius-side.radius*side.radius*side.radius), p.CapillaryRadiusUM)
 		}
 	}
 	return segments, branches
