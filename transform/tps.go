@@ -110,6 +110,8 @@ type Spline struct {
 	invScale   float64
 }
 
+var _ Transform = (*Spline)(nil)
+
 // Kind is TPS.
 func (s *Spline) Kind() Kind { return TPS }
 
