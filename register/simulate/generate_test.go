@@ -214,24 +214,39 @@ func TestVesselTree(t *testing.T) {
 }
 
 func TestEMCoverage(t *testing.T) {
-	for _, seed := range []uint64{1, 2, 3, 4} {
+	tests := []struct {
+		coverage float64
+		seed     uint64
+	}{
+		{0.83, 1}, {0.83, 2}, {0.83, 3}, {0.83, 4}, {0.5, 1}, {0.95, 2}, {1, 3},
+	}
+	for _, tt := range tests {
 		p := DefaultParams()
-		s := mustGenerate(t, p, seed)
+		p.EMCoverage = tt.coverage
+		s := mustGenerate(t, p, tt.seed)
 		outside := 0
 		for _, c := range s.Cells {
 			if s.EMBlock.Contains(c.TrueTargetUM) != c.InsideEM {
-				t.Fatalf("seed %d: cell %s inside_em %v disagrees with the block", seed, c.ID, c.InsideEM)
+				t.Fatalf("coverage %v seed %d: cell %s inside_em %v disagrees with the block", tt.coverage, tt.seed, c.ID, c.InsideEM)
 			}
 			if !c.InsideEM {
 				outside++
 				if c.TrueCandidate != "" {
-					t.Errorf("seed %d: cell %s lies outside the EM block but has candidate %s", seed, c.ID, c.TrueCandidate)
+					t.Errorf("coverage %v seed %d: cell %s lies outside the EM block but has candidate %s", tt.coverage, tt.seed, c.ID, c.TrueCandidate)
 				}
 			}
 		}
 		share := float64(outside) / float64(len(s.Cells))
 		if want := 1 - p.EMCoverage; math.Abs(share-want) > 0.02 {
-			t.Errorf("seed %d: %.3f of the imaged cells lie outside the EM block, want %.3f", seed, share, want)
+			t.Errorf("coverage %v seed %d: %.3f of the imaged cells lie outside the EM block, want %.3f", tt.coverage, tt.seed, share, want)
+		}
+		if tt.coverage == 1 {
+			// Nothing to cut: the block holds the whole field.
+			for i, so := range s.Somata {
+				if so.Candidate == "" {
+					t.Fatalf("full coverage, yet soma %d at %v µm lies outside the EM block", i, so.PositionUM)
+				}
+			}
 		}
 	}
 }

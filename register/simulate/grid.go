@@ -63,19 +63,19 @@ func (g *pointGrid) near(p transform.Vec, r float64) bool {
 	return false
 }
 
-// segmentGrid answers "does p lie within clearance of any vessel wall",
-// listing in each cell the segments whose padded bounding box touches it.
+// segmentGrid answers "does p lie within a clearance of any vessel wall",
+// listing in each cell the segments whose bounding box, padded by the
+// largest clearance asked for, touches it.
 type segmentGrid struct {
-	cell      float64
-	origin    transform.Vec
-	n         [3]int
-	cells     [][]int32
-	segments  []Segment
-	clearance float64
+	cell     float64
+	origin   transform.Vec
+	n        [3]int
+	cells    [][]int32
+	segments []Segment
 }
 
 func newSegmentGrid(lo, hi transform.Vec, cell float64, segments []Segment, clearance float64) *segmentGrid {
-	g := &segmentGrid{cell: cell, origin: lo, segments: segments, clearance: clearance}
+	g := &segmentGrid{cell: cell, origin: lo, segments: segments}
 	total := 1
 	for i := range 3 {
 		g.n[i] = max(1, int(math.Ceil((hi[i]-lo[i])/cell)))

@@ -338,20 +338,35 @@ func (s *Scenario) cutEMBlock() {
 		}
 		return float64(in) / float64(len(s.Cells))
 	}
-	// The share falls as the cut deepens; bisect for the depth where it
-	// crosses the coverage asked for.
-	t0, t1 := 0.0, 1.0
-	for range 60 {
-		mid := 0.5 * (t0 + t1)
-		if share(cut(mid)) >= p.EMCoverage {
-			t0 = mid
-		} else {
-			t1 = mid
+	// The share falls as the cut deepens. Bisect for the depth where it
+	// crosses the coverage asked for, take the attainable share nearest to
+	// it, then place the cut midway along the range of depths that give
+	// exactly that share, so that no cell sits on a face of the block.
+	bisect := func(keep func(float64) bool) (float64, float64) {
+		lo, hi := 0.0, 1.0 // keep(lo) holds, keep(hi) does not
+		for range 60 {
+			if mid := 0.5 * (lo + hi); keep(mid) {
+				lo = mid
+			} else {
+				hi = mid
+			}
 		}
+		return lo, hi
 	}
-	t := t0
-	if math.Abs(share(cut(t1))-p.EMCoverage) < math.Abs(share(cut(t0))-p.EMCoverage) {
-		t = t1
+	shareAt := func(t float64) float64 { return share(cut(t)) }
+	t0, t1 := bisect(func(t float64) bool { return shareAt(t) >= p.EMCoverage })
+	level := shareAt(t0)
+	if other := shareAt(t1); math.Abs(other-p.EMCoverage) < math.Abs(level-p.EMCoverage) {
+		level = other
+	}
+	t := 0.0
+	if level < 1 {
+		_, first := bisect(func(t float64) bool { return shareAt(t) > level })
+		last := 1.0
+		if shareAt(1) < level {
+			last, _ = bisect(func(t float64) bool { return shareAt(t) >= level })
+		}
+		t = 0.5 * (first + last)
 	}
 	// Round the faces to 0.1 µm, as a block's extent would be recorded.
 	b := cut(t)
