@@ -237,6 +237,7 @@ func (lp *LinearPredictor) Factor(p Vec) Mat {
 		if lp.invScale != 0 {
 			addOuter(&f, q, lp.invScale)
 		}
+		f[1][0], f[2][0], f[2][1] = f[0][1], f[0][2], f[1][2]
 	}
 	for k := range lp.dim {
 		f[k][k] += iso
@@ -244,17 +245,13 @@ func (lp *LinearPredictor) Factor(p Vec) Mat {
 	return f
 }
 
-// addOuter adds c·u uᵀ to f, exactly symmetric.
+// addOuter adds c·u uᵀ to the upper triangle of f; Factor copies it to the
+// lower one, so that F is exactly symmetric.
 func addOuter(f *Mat, u Vec, c float64) {
 	for i := range 3 {
 		cu := c * u[i]
 		for j := i; j < 3; j++ {
 			f[i][j] += cu * u[j]
-		}
-	}
-	for i := range 3 {
-		for j := range i {
-			f[i][j] = f[j][i]
 		}
 	}
 }
