@@ -7,6 +7,8 @@ import (
 	"sort"
 	"strings"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"ferry/landmarks"
 	"ferry/transform"
 )
@@ -17,10 +19,6 @@ const (
 	// without any wrong landmark has one flagged: each landmark is tested at
 	// familyAlpha/N (Bonferroni).
 	familyAlpha = 0.05
-	// medianChiSquare1 is the median of the χ² distribution with one degree
-	// of freedom, which turns a median of squared standardised errors into a
-	// variance.
-	medianChiSquare1 = 0.454936423119572
 	// maxFlagShare bounds the share of landmarks the check will set aside:
 	// past it the set is not a good set with a few mistakes but a poor
 	// registration, and flags would only hide that.
@@ -136,6 +134,12 @@ func (a *Assessment) MaxLOO() float64 {
 // Assess runs the check: it flags landmarks that look wrong, compares the
 // models by exact leave-one-out on the others, chooses one (or takes the one
 // asked for), estimates the scale of its errors and calibrates it.
+//
+// The verdicts (Landmarks) are of the clean set: every unflagged landmark
+// predicted from the other unflagged ones, every flagged landmark from all
+// the unflagged ones, so that a wrong landmark's error does not leak into
+// its neighbours'. Result is the chosen model fitted to every landmark of
+// the problem, flagged ones included: what the user asked to be fitted.
 func Assess(p *Problem, s Settings) (*Assessment, error) {
 	if p.Len() == 0 {
 		return nil, errors.New("no landmark pairs")
@@ -151,69 +155,80 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	a := &Assessment{Dim: p.Dim, Radii: NewRadiusTable(p.Dim, 0.95)}
 	weights := equalWeights(p.Len())
 
-	// Flag with the most flexible model the set supports, choose on the
-	// rest, then flag again with the model chosen: a warp that only the
-	// spline follows must not make landmarks look wrong, and the final
-	// flags must be those of the model the user gets.
-	flagModel := s.Model
-	if flagModel == "" {
-		flagModel = mostFlexible(p)
+	// Flag with the model asked for or else with the most flexible model
+	// the set supports: a wrong landmark is a local inconsistency, which the
+	// spline sees best, and a warp that only the spline follows must not make
+	// landmarks look wrong. An affine check would miss a wrong section hidden
+	// in its own misfit, and would then let the mistake make the spline look
+	// no better than an affine map.
+	model := s.Model
+	if model == "" {
+		model = mostFlexible(p)
 	}
-	flags, err := flagLandmarks(p, flagModel, weights, s, a.Radii)
+	flags, err := flagLandmarks(p, model, weights, s, a.Radii)
 	if err != nil {
 		return nil, err
 	}
 	if s.SourceSD == nil && s.TargetSD == nil {
-		// Without stated picking errors, let each kind of landmark
-		// speak for its own noise.
+		// Without stated picking errors, let each kind of landmark speak
+		// for its own noise.
 		if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
 			weights, a.KindNoise = w, noise
-			if flags, err = flagLandmarks(p, flagModel, weights, s, a.Radii); err != nil {
+			if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
 				return nil, err
 			}
 		}
 	}
-	chosen := s.Model
-	if chosen == "" {
-		a.Models = compareModels(p, weights, s, flags.flagged)
-		chosen, a.Reason = chooseModel(a.Models)
-		if chosen == "" {
+	cleanIdx := indices(p.Len(), func(i int) bool { return !flags.flagged[i] })
+	cleanSet := p.subset(func(i int) bool { return !flags.flagged[i] })
+	if s.Model == "" {
+		a.Models = compareModels(cleanSet, pick(weights, cleanIdx), s)
+		var chosen transform.Kind
+		if chosen, a.Reason = chooseModel(a.Models); chosen == "" {
 			return nil, fmt.Errorf("no model could be fitted: %v", a.Models[0].Err)
 		}
-		if chosen != flagModel {
-			if flags, err = flagLandmarks(p, chosen, weights, s, a.Radii); err != nil {
-				return nil, err
-			}
-		}
+		model = chosen
 	}
-	final, err := fitModel(p, chosen, weights, s, flags.flagged)
+	a.Chosen, a.Weights = model, weights
+	clean, err := fitModel(cleanSet, model, pick(weights, cleanIdx), s)
 	if err != nil {
 		return nil, err
 	}
 	if s.Model != "" {
-		a.Models = []ModelScore{score(final, flags.flagged)}
+		a.Models = []ModelScore{score(clean)}
 		a.Reason = "asked for with --model"
 	}
-	a.Chosen, a.Smoothing, a.Result, a.Weights = chosen, final.smoothing, final.res, weights
-
-	a.Scale = axisScale(final.res, flags.flagged, p.Dim)
+	// The scale of the clean fit's errors, and the verdicts in its terms.
+	a.Scale = axisScale(clean.res, nil, p.Dim)
 	a.Landmarks = make([]LandmarkCheck, p.Len())
 	for i := range a.Landmarks {
-		loo := final.res.LOO[i]
-		cov := looCovariance(a.Scale, final.res.LOOFactor[i], p.Dim)
-		a.Landmarks[i] = LandmarkCheck{
-			ID: p.IDs[i], Kind: p.Kinds[i], LOO: loo, LOOError: loo.Norm(),
-			R95:   a.Radii.Radius(cov),
-			Score: standardised(loo, cov, p.Dim),
-			Flag:  flags.reason[i],
-		}
-		if !flags.flagged[i] {
-			a.Calibration.N++
-			if a.Landmarks[i].LOOError <= a.Landmarks[i].R95 {
-				a.Calibration.Inside++
-			}
+		a.Landmarks[i] = LandmarkCheck{ID: p.IDs[i], Kind: p.Kinds[i], Score: flags.score[i], Flag: flags.reason[i]}
+	}
+	for k, i := range cleanIdx {
+		l := &a.Landmarks[i]
+		l.LOO = clean.res.LOO[k]
+		cov := looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
+		addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
+		l.R95 = a.Radii.Radius(cov)
+		a.Calibration.N++
+		if l.LOO.Norm() <= l.R95 {
+			a.Calibration.Inside++
 		}
 	}
+	for i, loo := range flags.loo {
+		l := &a.Landmarks[i]
+		l.LOO, l.R95 = loo, flags.r95[i]
+	}
+	for i := range a.Landmarks {
+		a.Landmarks[i].LOOError = a.Landmarks[i].LOO.Norm()
+	}
+
+	// The fit the user gets: every landmark they gave.
+	full, err := fitModel(p, model, weights, s)
+	if err != nil {
+		return nil, err
+	}
+	a.Smoothing, a.Result = full.smoothing, full.res
 	return a, nil
 }
 
@@ -271,13 +286,13 @@ type fitted struct {
 	res       *transform.Result
 }
 
-// fitModel fits kind to every pair of p with leave-one-out. The spline's
-// smoothing, when automatic, is chosen on the unflagged pairs.
-func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings, flagged []bool) (*fitted, error) {
+// fitModel fits kind to every pair of p with leave-one-out, the spline's
+// smoothing, when automatic, chosen on the same pairs.
+func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*fitted, error) {
 	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
-			sm, err := chooseSmoothing(p, weights, flagged)
+			sm, err := chooseSmoothing(p, weights)
 			if err != nil {
 				return nil, err
 			}
@@ -299,15 +314,7 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings, fl
 // interpolation to nearly affine, refined around the best. The scale of the
 // grid follows the kernel: a typical landmark distance in 3-D, its square
 // times its logarithm in 2-D.
-func chooseSmoothing(p *Problem, weights []float64, flagged []bool) (float64, error) {
-	keep := func(i int) bool { return flagged == nil || !flagged[i] }
-	q := p.subset(keep)
-	var w []float64
-	for i := range weights {
-		if keep(i) {
-			w = append(w, weights[i])
-		}
-	}
+func chooseSmoothing(q *Problem, w []float64) (float64, error) {
 	unit := kernelScale(q)
 	cost := func(sm float64) float64 {
 		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
@@ -369,45 +376,53 @@ func kernelScale(p *Problem) float64 {
 type flagResult struct {
 	flagged []bool
 	reason  []string
-	// score is each landmark's standardised leave-one-out error in the
-	// last fit that held it.
+	// score is each landmark's externally studentised score: in the clean
+	// fit for an unflagged landmark, against the clean set for a flagged
+	// one.
 	score []float64
+	// loo and r95 are the flagged landmarks' errors against the clean set
+	// and their 95 % radii.
+	loo map[int]transform.Vec
+	r95 map[int]float64
 }
 
-// flagLandmarks finds the landmarks that look wrong by sequential deletion:
-// fit with leave-one-out, standardise each landmark's error by its predicted
-// covariance with a scale estimated robustly (a median) from the landmarks
-// not yet set aside, and set aside the worst one while its score exceeds the
-// χ² quantile at familyAlpha/N; then refit without it and look again. A wrong
-// landmark inflates its neighbours' leave-one-out errors, so the neighbours
-// are only judged once it is gone, and a smaller mistake that the first one
-// masked shows up after it. Last, every set-aside landmark is tried again
-// alone against the others' clean fit, and cleared when it fits after all.
+// flagLandmarks finds the landmarks that look wrong by sequential deletion.
+// Each landmark's leave-one-out error is standardised by its predicted
+// covariance with the per-axis scale estimated from the other landmarks
+// still in the set (external studentisation: Cook & Weisberg 1982,
+// "Residuals and Influence in Regression", §2.2), so that a wrong landmark
+// does not hide itself by inflating the scale. While the worst score
+// exceeds the threshold of studentisedThreshold, that landmark is set aside
+// and the rest refitted: a wrong landmark inflates its neighbours'
+// leave-one-out errors, so they are only judged once it is gone, and a
+// smaller mistake that the first one masked shows up after it. Last, every
+// set-aside landmark is tried again alone against the clean set and cleared
+// when it fits after all.
 func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settings, radii *RadiusTable) (*flagResult, error) {
 	n := p.Len()
-	out := &flagResult{flagged: make([]bool, n), reason: make([]string, n), score: make([]float64, n)}
-	threshold := chiSquareQuantile(p.Dim, 1-familyAlpha/float64(n))
+	out := &flagResult{
+		flagged: make([]bool, n), reason: make([]string, n), score: make([]float64, n),
+		loo: map[int]transform.Vec{}, r95: map[int]float64{},
+	}
 	limit := int(maxFlagShare * float64(n))
-	if n-limit < transform.MinPairs(model, p.Dim)+2 {
-		limit = max(0, n-transform.MinPairs(model, p.Dim)-2)
+	if n-limit < transform.MinPairs(model, p.Dim)+3 {
+		limit = max(0, n-transform.MinPairs(model, p.Dim)-3)
 	}
 	var setAside []int
 	for {
 		keep := func(i int) bool { return !out.flagged[i] }
-		q := p.subset(keep)
 		idx := indices(n, keep)
-		f, err := fitModel(q, model, pick(weights, idx), s, nil)
+		f, err := fitModel(p.subset(keep), model, pick(weights, idx), s)
 		if err != nil {
 			return nil, err
 		}
-		scale := robustScale(f.res, p.Dim)
+		scores := studentise(f.res, p.Dim, s, p.subset(keep).Source, -1)
+		threshold := studentisedThreshold(p.Dim, len(idx), n)
 		worst, worstScore := -1, threshold
 		for k, i := range idx {
-			cov := looCovariance(scale, f.res.LOOFactor[k], p.Dim)
-			addPickNoise(&cov, s, f.res.Transform.Jacobian(q.Source[k]), p.Dim)
-			out.score[i] = standardised(f.res.LOO[k], cov, p.Dim)
-			if out.score[i] > worstScore {
-				worst, worstScore = i, out.score[i]
+			out.score[i] = scores[k]
+			if scores[k] > worstScore {
+				worst, worstScore = i, scores[k]
 			}
 		}
 		if worst < 0 || len(setAside) >= limit {
@@ -419,26 +434,95 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 	// Try each set-aside landmark again against the clean set.
 	for _, i := range setAside {
 		keep := func(j int) bool { return j == i || !out.flagged[j] }
-		q := p.subset(keep)
 		idx := indices(n, keep)
-		f, err := fitModel(q, model, pick(weights, idx), s, nil)
+		q := p.subset(keep)
+		f, err := fitModel(q, model, pick(weights, idx), s)
 		if err != nil {
 			return nil, err
 		}
 		k := sort.SearchInts(idx, i)
-		others := make([]bool, len(idx))
-		others[k] = true
-		scale := axisScale(f.res, others, p.Dim)
-		cov := looCovariance(scale, f.res.LOOFactor[k], p.Dim)
-		addPickNoise(&cov, s, f.res.Transform.Jacobian(q.Source[k]), p.Dim)
-		out.score[i] = standardised(f.res.LOO[k], cov, p.Dim)
-		if out.score[i] <= threshold {
+		out.score[i] = studentise(f.res, p.Dim, s, q.Source, k)[k]
+		if out.score[i] <= studentisedThreshold(p.Dim, len(idx), n) {
 			out.flagged[i] = false
 			continue
 		}
-		out.reason[i] = flagReason(f.res.LOO[k], cov, radii.Radius(cov), p.Dim)
+		scale := externalScale(f.res, p.Dim, k)
+		cov := looCovariance(scale, f.res.LOOFactor[k], p.Dim)
+		addPickNoise(&cov, s, f.res.Transform.Jacobian(q.Source[k]), p.Dim)
+		out.loo[i], out.r95[i] = f.res.LOO[k], radii.Radius(cov)
+		out.reason[i] = flagReason(f.res.LOO[k], cov, out.r95[i], p.Dim)
 	}
 	return out, nil
+}
+
+// studentise scores every landmark of a fit (only landmark only, when
+// only ≥ 0): r_iᵀC_i⁻¹r_i with C_i the predicted covariance of its
+// leave-one-out error, the scale estimated without it, raised to the stated
+// picking noise.
+func studentise(res *transform.Result, dim int, s Settings, src []transform.Vec, only int) []float64 {
+	out := make([]float64, len(res.LOO))
+	total := axisSums(res, dim)
+	for i := range res.LOO {
+		if only >= 0 && i != only {
+			continue
+		}
+		scale := withoutOne(total, res, dim, i)
+		cov := looCovariance(scale, res.LOOFactor[i], dim)
+		addPickNoise(&cov, s, res.Transform.Jacobian(src[i]), dim)
+		out[i] = standardised(res.LOO[i], cov, dim)
+	}
+	return out
+}
+
+// externalScale is the per-axis scale without landmark i.
+func externalScale(res *transform.Result, dim, i int) transform.Vec {
+	return withoutOne(axisSums(res, dim), res, dim, i)
+}
+
+// axisSums are the per-axis sums of standardised squares of a fit.
+func axisSums(res *transform.Result, dim int) transform.Vec {
+	var t transform.Vec
+	for i, r := range res.LOO {
+		for k := range dim {
+			t[k] += r[k] * r[k] / res.LOOFactor[i]
+		}
+	}
+	return t
+}
+
+// withoutOne turns the sums into the mean without landmark i.
+func withoutOne(total transform.Vec, res *transform.Result, dim, i int) transform.Vec {
+	var sc transform.Vec
+	n := float64(max(len(res.LOO)-1, 1))
+	for k := range dim {
+		r := res.LOO[i][k]
+		sc[k] = math.Max(total[k]-r*r/res.LOOFactor[i], 0) / n
+	}
+	return floorScale(sc, dim)
+}
+
+// studentisedThreshold is the score above which a landmark looks wrong:
+// the 1 − familyAlpha/N quantile of an externally studentised score of d
+// axes, each axis's scale resting on the m−1 other landmarks in the set (N
+// is the size of the whole set, for the Bonferroni correction over every
+// landmark tested). Each axis's term is then F(1, m−1)-distributed; their sum
+// has no closed form, so it is matched in mean and variance by a scaled χ²
+// (Satterthwaite 1946, Biometrics Bulletin 2(6):110–114), which is accurate
+// in the upper tail for m above about ten. With many landmarks the threshold
+// tends to the χ²_d quantile.
+func studentisedThreshold(dim, m, n int) float64 {
+	p := 1 - familyAlpha/float64(n)
+	nu := float64(m - 1)
+	if nu <= 4.5 {
+		// Too few landmarks for the variance of F to exist: fall back to
+		// the common-denominator bound d·F(d, ν), which is larger.
+		return float64(dim) * distuv.F{D1: float64(dim), D2: math.Max(nu, 1)}.Quantile(p)
+	}
+	d := float64(dim)
+	mean := d * nu / (nu - 2)
+	variance := d * 2 * nu * nu * (nu - 1) / ((nu - 2) * (nu - 2) * (nu - 4))
+	c := variance / (2 * mean)
+	return c * distuv.ChiSquared{K: mean / c}.Quantile(p)
 }
 
 // flagReason says in a few words what is wrong and what it may be.
@@ -529,33 +613,28 @@ func kindWeights(p *Problem, score []float64, flagged []bool) ([]float64, map[la
 	return w, noise
 }
 
-// compareModels fits every model the set supports and scores it on the
-// unflagged landmarks.
-func compareModels(p *Problem, weights []float64, s Settings, flagged []bool) []ModelScore {
+// compareModels fits every model the set supports and scores it.
+func compareModels(p *Problem, weights []float64, s Settings) []ModelScore {
 	var scores []ModelScore
 	for _, k := range transform.Kinds() {
 		if err := enoughFor(p, k); err != nil {
 			scores = append(scores, ModelScore{Model: k, Err: err})
 			continue
 		}
-		f, err := fitModel(p, k, weights, s, flagged)
+		f, err := fitModel(p, k, weights, s)
 		if err != nil {
 			scores = append(scores, ModelScore{Model: k, Err: err})
 			continue
 		}
-		scores = append(scores, score(f, flagged))
+		scores = append(scores, score(f))
 	}
 	return scores
 }
 
-// score summarises a fit's leave-one-out errors over the unflagged
-// landmarks.
-func score(f *fitted, flagged []bool) ModelScore {
+// score summarises a fit's leave-one-out errors.
+func score(f *fitted) ModelScore {
 	var sq, e []float64
-	for i, r := range f.res.LOO {
-		if flagged != nil && flagged[i] {
-			continue
-		}
+	for _, r := range f.res.LOO {
 		sq = append(sq, r.Dot(r))
 		e = append(e, r.Norm())
 	}
@@ -596,12 +675,12 @@ func chooseModel(models []ModelScore) (transform.Kind, string) {
 		}
 		mean, se := meanStdErr(diff)
 		if mean <= se {
-			return m.Model, fmt.Sprintf("the simplest model within one standard error of the best (%s, RMS %.2f µm): RMS %.2f µm",
-				models[best].Model, models[best].RMS, m.RMS)
+			return m.Model, fmt.Sprintf("RMS %.2f µm: the simplest model within one standard error of the best, %s (RMS %.2f µm)",
+				m.RMS, models[best].Model, models[best].RMS)
 		}
 	}
 	b := models[best]
-	reason := fmt.Sprintf("the lowest leave-one-out error (RMS %.2f µm)", b.RMS)
+	reason := fmt.Sprintf("RMS %.2f µm: the lowest leave-one-out error", b.RMS)
 	if best > 0 {
 		var simpler []string
 		for _, m := range models[:best] {
@@ -614,21 +693,6 @@ func chooseModel(models []ModelScore) (transform.Kind, string) {
 		}
 	}
 	return b.Model, reason
-}
-
-// robustScale estimates the per-axis scale of a fit's leave-one-out errors
-// from the median of their standardised squares, so that a few wrong
-// landmarks do not inflate it.
-func robustScale(res *transform.Result, dim int) transform.Vec {
-	var s transform.Vec
-	v := make([]float64, len(res.LOO))
-	for k := range dim {
-		for i, r := range res.LOO {
-			v[i] = r[k] * r[k] / res.LOOFactor[i]
-		}
-		s[k] = median(v) / medianChiSquare1
-	}
-	return floorScale(s, dim)
 }
 
 // axisScale estimates the per-axis scale as the mean standardised square
