@@ -1,0 +1,172 @@
+package imaging
+
+import (
+	"image"
+	"image/color"
+	"math"
+	"os"
+	"testing"
+)
+
+// plane is a stack of depth 1 with values f(i, j).
+func plane(t testing.TB, w, h, bits int, f func(i, j int) uint16) *Stack {
+	t.Helper()
+	s, err := NewStack(w, h, 1, bits)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j := range h {
+		for i := range w {
+			s.Set(i, j, 0, f(i, j))
+		}
+	}
+	return s
+}
+
+func rgb(c Colour) color.RGBA {
+	r, g, b := c.bytes()
+	return color.RGBA{r, g, b, 255}
+}
+
+func TestOverlayColours(t *testing.T) {
+	// Each plane is 0 or 1000 in quarters of a 40 × 40 image, so that the
+	// percentiles are 0 (or, without zeros, 1000) and 1000.
+	target := plane(t, 40, 40, 16, func(i, j int) uint16 { return uint16(1000 * (i / 20)) })
+	source := plane(t, 40, 40, 16, func(i, j int) uint16 { return uint16(1000 * (j / 20)) })
+	img := Overlay(target, source, nil, OverlayOptions{KeepZeros: true})
+	sum := func(a, b Colour) color.RGBA {
+		x, y := rgb(a), rgb(b)
+		c := func(p, q uint8) uint8 { return uint8(min(int(p)+int(q), 255)) }
+		return color.RGBA{c(x.R, y.R), c(x.G, y.G), c(x.B, y.B), 255}
+	}
+	tests := []struct {
+		x, y int
+		want color.RGBA
+	}{
+		{5, 5, rgb(Black)},
+		{30, 5, rgb(SkyBlue)},
+		{5, 30, rgb(Orange)},
+		{30, 30, sum(SkyBlue, Orange)},
+	}
+	for _, tt := range tests {
+		if got := img.RGBAAt(tt.x, tt.y); got != tt.want {
+			t.Errorf("pixel (%d, %d) = %v, want %v", tt.x, tt.y, got, tt.want)
+		}
+	}
+	// Other colours are taken.
+	img = Overlay(target, nil, nil, OverlayOptions{TargetColour: Vermillion})
+	if got := img.RGBAAt(30, 5); got != rgb(Vermillion) {
+		t.Errorf("target colour %v, want vermillion", got)
+	}
+}
+
+func TestOverlaySizes(t *testing.T) {
+	big := plane(t, 30, 20, 8, func(i, j int) uint16 { return uint16(i + j) })
+	small := plane(t, 10, 50, 8, func(i, j int) uint16 { return 200 })
+	tests := []struct {
+		name         string
+		target, src  *Stack
+		wantW, wantH int
+	}{
+		{"both", big, small, 30, 20},
+		{"no target", nil, small, 10, 50},
+		{"no source", big, nil, 30, 20},
+		{"neither", nil, nil, 0, 0},
+		{"damaged target", &Stack{Width: 5, Height: 5, Depth: 1, Bits: 8}, small, 10, 50},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			img := Overlay(tt.target, tt.src, []Mark{{X: 3, Y: 3}, {X: -50, Y: 1e300}, {X: math.NaN(), Y: 2}}, OverlayOptions{})
+			if b := img.Bounds(); b.Dx() != tt.wantW || b.Dy() != tt.wantH {
+				t.Errorf("size %v, want %d × %d", b, tt.wantW, tt.wantH)
+			}
+		})
+	}
+}
+
+func TestPercentiles(t *testing.T) {
+	ramp := make([]uint16, 1000)
+	for n := range ramp {
+		ramp[n] = uint16(n)
+	}
+	withZeros := append(make([]uint16, 1000), ramp[1:]...)
+	tests := []struct {
+		name      string
+		data      []uint16
+		low, high float64
+		skip      bool
+		lo, hi    float64
+	}{
+		{"ramp", ramp, 0.5, 99.5, false, 4, 994},
+		{"ramp, whole range", ramp, 0, 100, false, 0, 999},
+		{"zeros kept", withZeros, 0.5, 99.5, false, 0, 990},
+		{"zeros skipped", withZeros, 0.5, 99.5, true, 5, 995},
+		{"flat", []uint16{7, 7, 7}, 0.5, 99.5, false, 7, 8},
+		{"all zeros skipped", []uint16{0, 0}, 0.5, 99.5, true, 0, 1},
+	}
+	for _, tt := range tests {
+		lo, hi := percentiles(tt.data, tt.low, tt.high, tt.skip)
+		if lo != tt.lo || hi != tt.hi {
+			t.Errorf("%s: percentiles %g, %g; want %g, %g", tt.name, lo, hi, tt.lo, tt.hi)
+		}
+	}
+}
+
+func TestMarks(t *testing.T) {
+	grey := plane(t, 60, 60, 8, func(i, j int) uint16 { return uint16(100 + (i*7+j*3)%50) })
+	marks := []Mark{{X: 20, Y: 20, Status: "ok"}, {X: 40.4, Y: 19.6, Status: "extrapolated"}, {X: 20, Y: 40, Status: "ambiguous"}, {X: 59, Y: 0, Status: "unmatched"}}
+	plain := Overlay(grey, nil, nil, OverlayOptions{})
+	img := Overlay(grey, nil, marks, OverlayOptions{})
+	sh := markShape(7)
+	for _, m := range marks[:3] {
+		c := image.Pt(int(math.Round(m.X)), int(math.Round(m.Y)))
+		// The cell itself and the diamond's corners stay visible.
+		for _, p := range []image.Point{{0, 0}, {7, 0}, {0, 7}, {-7, 0}, {0, -7}} {
+			q := c.Add(p)
+			if img.RGBAAt(q.X, q.Y) != plain.RGBAAt(q.X, q.Y) {
+				t.Errorf("%s mark at %v covers (%d, %d)", m.Status, c, q.X, q.Y)
+			}
+		}
+		for _, p := range sh.stroke {
+			q := c.Add(p)
+			if got := img.RGBAAt(q.X, q.Y); got != rgb(MarkColour(m.Status)) {
+				t.Fatalf("%s mark: stroke pixel %v is %v", m.Status, q, got)
+			}
+		}
+		for _, p := range sh.outline {
+			q := c.Add(p)
+			if got := img.RGBAAt(q.X, q.Y); got != rgb(Black) {
+				t.Fatalf("%s mark: outline pixel %v is %v", m.Status, q, got)
+			}
+		}
+	}
+	// The shape is symmetric under quarter turns and has four strokes.
+	in := make(map[image.Point]bool)
+	for _, p := range sh.stroke {
+		in[p] = true
+	}
+	for _, p := range sh.stroke {
+		if !in[image.Pt(-p.Y, p.X)] {
+			t.Errorf("stroke pixel %v has no quarter-turned twin", p)
+		}
+		if p.X == 0 || p.Y == 0 {
+			t.Errorf("stroke pixel %v lies on an axis: the corners must stay open", p)
+		}
+	}
+	if len(sh.stroke)%4 != 0 || len(sh.stroke) < 8 {
+		t.Errorf("%d stroke pixels", len(sh.stroke))
+	}
+	// Colours follow the status.
+	for status, want := range map[string]Colour{"": Yellow, "ok": Yellow, "matched": Yellow, "ambiguous": ReddishPurple, "extrapolated": Vermillion, "unmatched": Vermillion} {
+		if got := MarkColour(status); got != want {
+			t.Errorf("status %q: colour %06x, want %06x", status, uint32(got), uint32(want))
+		}
+	}
+
+	if path := os.Getenv("FERRY_OVERLAY_PNG"); path != "" {
+		// For looking at: FERRY_OVERLAY_PNG=/tmp/o.png go test -run TestMarks
+		if err := WritePNG(path, img); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
