@@ -478,7 +478,7 @@ func splineNormalisation(dim int, src []Vec) (Vec, float64, error) {
 //	    [ Pᵀ  0 ].
 //
 // P = Q·[R; 0] is its Householder QR (Golub and Van Loan, Matrix
-// Computations, 4th ed. 2013, §5.2), kept as m reflectors
+// Computations, 4th ed. 2013, §5.2, cited from memory), kept as m reflectors
 // H_k = I − τ_k v_k v_kᵀ (v_k zero above row k, one at row k) so that
 // Q = H_0·H_1·…·H_{m−1} is never formed; applying Q or Qᵀ to a vector costs
 // O(N·m). Writing Q = [Y Z], Z (N×n, n = N − m) is an orthonormal basis of
@@ -489,18 +489,19 @@ func splineNormalisation(dim int, src []Vec) (Vec, float64, error) {
 //
 // C is positive definite because φ is conditionally positive definite of an
 // order the linear polynomial covers (−r of order 1, r² log r of order 2 in
-// 2-D; Micchelli 1986, Constr. Approx. 2:11–22) for distinct nodes, and for
-// any nodes once S > 0; chol holds its Cholesky factor C = UᵀU. Then
-// M [c; a] = [f; g] is solved by c = Q [α; γ] with
+// 2-D; Micchelli 1986, Constr. Approx. 2:11–22, cited from memory) for
+// distinct nodes, and for any nodes once S > 0; chol holds its Cholesky
+// factor C = UᵀU. Then M [c; a] = [f; g] is solved by c = Q [α; γ] with
 //
 //	Rᵀ α = g,  C γ = (Qᵀf)₂ − B21 α,  R a = (Qᵀf)₁ − B11 α − B12 γ,
 //
 // and the top-left N×N block of M⁻¹ is Z C⁻¹ Zᵀ (a standard identity for
 // saddle-point matrices; Benzi, Golub and Liesen 2005, Acta Numerica
-// 14:1–137, §6), which leaveOneOut uses. A posterior variance at x needs
-// [k(x); p(x)]ᵀ M⁻¹ [k(x); p(x)] with k(x) from kernelVector and p(x) =
-// [1, u(x)]: one call of solve per point, or, for many points, the factor
-// U and the reflectors directly.
+// 14:1–137, cited from memory), which leaveOneOut uses. A posterior
+// variance at x needs [k(x); p(x)]ᵀ M⁻¹ [k(x); p(x)] with k(x) from
+// kernelVector and p(x) = [1, u(x)]: one call of solve per point, or, for
+// many points, the factor U and the reflectors directly. Quantities from the
+// normalised M convert to the micrometre system as leaveOneOut describes.
 type splineSystem struct {
 	dim, m    int
 	centre    Vec
