@@ -23,6 +23,12 @@ type Grid struct {
 	Z             int
 }
 
+// GridLike is the grid of plane z of a space with voxels of voxel µm whose
+// planes have the size of like (for `ferry resample --like`).
+func GridLike(like *Stack, voxel transform.Vec, z int) Grid {
+	return Grid{Width: like.Width, Height: like.Height, Voxel: voxel, Z: z}
+}
+
 // ResampleOptions steer Resample.
 type ResampleOptions struct {
 	// Inverse resamples a stack of the transform's target space onto a
@@ -121,8 +127,8 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 	if err := checkVoxel(grid.Voxel); err != nil {
 		return nil, rep, fmt.Errorf("imaging: resample: voxel size of the output plane: %w", err)
 	}
-	if grid.Width > 1<<20 || grid.Height > 1<<20 {
-		return nil, rep, fmt.Errorf("imaging: resample: output plane of %d × %d pixels: at most 1048576 a side", grid.Width, grid.Height)
+	if grid.Width > 1<<20 || grid.Height > 1<<20 || grid.Width*grid.Height > 1<<31 {
+		return nil, rep, fmt.Errorf("imaging: resample: output plane of %d × %d pixels: at most 1048576 a side and 2³¹ in all", grid.Width, grid.Height)
 	}
 	tol := opt.ToleranceUM
 	if tol == 0 {

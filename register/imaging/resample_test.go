@@ -256,7 +256,7 @@ func TestInterpolationBound(t *testing.T) {
 func TestResampleValues(t *testing.T) {
 	src := patternStack(t, 13, 7, 4, 16)
 	voxel := transform.Vec{0.5, 0.5, 2}
-	same := Grid{13, 7, voxel, 2}
+	same := GridLike(src, voxel, 2)
 	type want func(i, j int) (uint16, bool) // value, inside
 	tests := []struct {
 		name    string
@@ -377,6 +377,7 @@ func TestResampleErrors(t *testing.T) {
 		{"NaN grid voxel", id, src, v, Grid{4, 3, transform.Vec{math.NaN(), 1, 1}, 0}, ResampleOptions{}, "output plane"},
 		{"empty grid", id, src, v, Grid{0, 3, v, 0}, ResampleOptions{}, "at least 1"},
 		{"huge grid", id, src, v, Grid{1 << 21, 3, v, 0}, ResampleOptions{}, "at most"},
+		{"huge plane", id, src, v, Grid{1 << 20, 1 << 20, v, 0}, ResampleOptions{}, "at most"},
 		{"negative tolerance", id, src, v, Grid{4, 3, v, 0}, ResampleOptions{ToleranceUM: -1}, "tolerance"},
 	}
 	for _, tt := range tests {

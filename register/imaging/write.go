@@ -47,7 +47,7 @@ func WriteTIFF(path string, s *Stack) error {
 			page := s.PageData(k)
 			if s.Bits == 8 {
 				for i, v := range page {
-					buf[i] = uint8(v)
+					buf[i] = uint8(min(v, 0xff))
 				}
 			} else {
 				for i, v := range page {
