@@ -24,6 +24,12 @@ func NewPredictor(t Transform, src []Vec, weights []float64) (Predictor, error) 
 			return nil, err
 		}
 		return lp, nil
+	case *Spline:
+		sp, err := newSplinePredictor(t, src, weights)
+		if err != nil {
+			return nil, err
+		}
+		return sp, nil
 	case *Chain:
 		// Each step was fitted to its own landmarks; the error of an early
 		// step would have to be carried through the later steps'
