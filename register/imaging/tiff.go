@@ -679,8 +679,9 @@ func unpackBits(dst, src []byte) error {
 
 // luma is the grey value of an RGB colour given in 16-bit channels, with the
 // weights 0.299, 0.587 and 0.114 of ITU-R BT.601 (recalled from memory) in
-// the 16-bit fixed point that the standard library's color.GrayModel uses, so that TIFF and PNG
-// colour planes turn into the same grey. bits is the depth of the result.
+// the 16-bit fixed point that the standard library's color.GrayModel uses,
+// so that TIFF and PNG colour planes turn into the same grey. bits is the
+// depth of the result.
 func luma(r, g, b uint32, bits int) uint16 {
 	y := 19595*r + 38470*g + 7471*b + 1<<15
 	if bits == 8 {
