@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"sort"
-	"strings"
 
 	"gonum.org/v1/gonum/stat/distuv"
 
@@ -681,15 +680,10 @@ func chooseModel(models []ModelScore) (transform.Kind, string) {
 	}
 	b := models[best]
 	reason := fmt.Sprintf("RMS %.2f µm: the lowest leave-one-out error", b.RMS)
-	if best > 0 {
-		var simpler []string
-		for _, m := range models[:best] {
-			if m.Err == nil {
-				simpler = append(simpler, fmt.Sprintf("%s %.2f µm", m.Model, m.RMS))
-			}
-		}
-		if len(simpler) > 0 {
-			reason += "; every simpler model is clearly worse (" + strings.Join(simpler, ", ") + ")"
+	for i := best - 1; i >= 0; i-- {
+		if models[i].Err == nil {
+			reason += fmt.Sprintf("; the next simpler model, %s (RMS %.2f µm), is worse by more than one standard error", models[i].Model, models[i].RMS)
+			break
 		}
 	}
 	return b.Model, reason

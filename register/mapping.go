@@ -79,9 +79,12 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 // own localisation error (µm per axis, one standard deviation), in the space
 // it is given in.
 func (m *Mapper) Map(x transform.Vec, cellSD *transform.Vec) Mapped {
-	y := m.t.Apply(x)
+	return m.finishForward(x, m.t.Apply(x), m.pred.Factor(x), cellSD)
+}
+
+func (m *Mapper) finishForward(x, y transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
 	jac := m.t.Jacobian(x)
-	cov := m.covariance(x, jac, cellSD)
+	cov := m.covariance(factor, jac, cellSD)
 	return m.finish(Mapped{Pos: y, Cov: cov}, x, jac)
 }
 
@@ -94,12 +97,16 @@ func (m *Mapper) MapInverse(q transform.Vec, cellSD *transform.Vec) Mapped {
 	if err != nil {
 		return Mapped{Status: StatusNoInverse}
 	}
+	return m.finishInverse(x, m.pred.Factor(x), cellSD)
+}
+
+func (m *Mapper) finishInverse(x transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
 	jac := m.t.Jacobian(x)
 	inv, ok := jac.Inverse()
 	if !ok {
 		return Mapped{Pos: x, Status: StatusFolded}
 	}
-	cov := m.covariance(x, jac, nil)
+	cov := m.covariance(factor, jac, nil)
 	if cellSD != nil {
 		cov = subtractPickNoise(cov, m.landmarkNoise(jac), m.dim)
 		for k := range m.dim {
@@ -129,10 +136,10 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 	return p
 }
 
-// covariance is P(x), or with cellSD the same with the landmarks' picking
-// noise replaced by the cell's own, carried through the Jacobian.
-func (m *Mapper) covariance(x transform.Vec, jac transform.Mat, cellSD *transform.Vec) transform.Mat {
-	f := m.pred.Factor(x)
+// covariance is P(x) from the predictor's factor at x, or with cellSD the
+// same with the landmarks' picking noise replaced by the cell's own,
+// carried through the Jacobian.
+func (m *Mapper) covariance(f transform.Mat, jac transform.Mat, cellSD *transform.Vec) transform.Mat {
 	var c transform.Mat
 	for i := range m.dim {
 		for j := range m.dim {
@@ -190,27 +197,55 @@ func (m *Mapper) nearestLandmark(x transform.Vec) float64 {
 }
 
 // MapAll maps every point of xs on all cores, forward or (inverse) back.
+// The predictor's factors are computed for all points together, which for a
+// large spline is several times faster than point by point.
 func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool) []Mapped {
 	out := make([]Mapped, len(xs))
-	workers := min(runtime.GOMAXPROCS(0), max(1, len(xs)/256))
+	src := make([]transform.Vec, len(xs))
+	ok := make([]bool, len(xs))
+	each(len(xs), func(i int) {
+		if inverse {
+			x, err := m.t.Invert(xs[i])
+			src[i], ok[i] = x, err == nil
+		} else {
+			src[i], ok[i] = xs[i], true
+		}
+	})
+	factors := make([]transform.Mat, len(xs))
+	if bp, isBatch := m.pred.(transform.BatchPredictor); isBatch {
+		bp.FactorAll(src, factors)
+	} else {
+		each(len(xs), func(i int) { factors[i] = m.pred.Factor(src[i]) })
+	}
+	each(len(xs), func(i int) {
+		switch {
+		case !ok[i]:
+			out[i] = Mapped{Status: StatusNoInverse}
+		case inverse:
+			out[i] = m.finishInverse(src[i], factors[i], cellSD)
+		default:
+			out[i] = m.finishForward(src[i], m.t.Apply(src[i]), factors[i], cellSD)
+		}
+	})
+	return out
+}
+
+// each runs f for every index in [0, n) on all cores.
+func each(n int, f func(i int)) {
+	workers := min(runtime.GOMAXPROCS(0), max(1, n/256))
 	var wg sync.WaitGroup
-	chunk := (len(xs) + workers - 1) / max(workers, 1)
-	for lo := 0; lo < len(xs); lo += chunk {
-		hi := min(lo+chunk, len(xs))
+	chunk := (n + workers - 1) / max(workers, 1)
+	for lo := 0; lo < n; lo += chunk {
+		hi := min(lo+chunk, n)
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			for i := lo; i < hi; i++ {
-				if inverse {
-					out[i] = m.MapInverse(xs[i], cellSD)
-				} else {
-					out[i] = m.Map(xs[i], cellSD)
-				}
+				f(i)
 			}
 		}()
 	}
 	wg.Wait()
-	return out
 }
 
 func centroidOf(points []transform.Vec) transform.Vec {

@@ -46,13 +46,23 @@ type splinePredictor struct {
 
 // newSplinePredictor builds the predictor of s. src and weights must be
 // the spline's own nodes and pair weights (the fit records them); they are
-// checked for length only.
-func newSplinePredictor(s *Spline, src []Vec, weights []float64) (*splinePredictor, error) {
+// checked for length only. Up to localNodes nodes it is exact; beyond, it
+// is the neighbourhood predictor of localPredictor.
+func newSplinePredictor(s *Spline, src []Vec, weights []float64) (Predictor, error) {
 	if src != nil && len(src) != len(s.Nodes) {
 		return nil, fmt.Errorf("predictor given %d source points for a spline of %d nodes", len(src), len(s.Nodes))
 	}
-	_ = weights // the spline's own PairWeights are the ones its system used
-	sys, err := s.system()
+	if len(s.Nodes) > localNodes {
+		return newLocalPredictor(s)
+	}
+	return newExactSplinePredictor(s, s.Nodes, s.PairWeights)
+}
+
+// newExactSplinePredictor is the exact predictor of the spline of s's
+// normalisation and smoothing on the given nodes and pair weights (all of
+// s's, or a neighbourhood of them).
+func newExactSplinePredictor(s *Spline, nodes []Vec, pairWeights []float64) (*splinePredictor, error) {
+	sys, err := newSplineSystem(s.Dimension, s.Centre, s.Scale, nodes, s.Smoothing, pairWeights)
 	if err != nil {
 		return nil, err
 	}

@@ -212,7 +212,7 @@ func BenchmarkSplinePredictor(b *testing.B) {
 	dst2 := make([]Mat, len(xs))
 	b.ResetTimer()
 	for b.Loop() {
-		pred.(*splinePredictor).FactorAll(xs, dst2)
+		pred.(BatchPredictor).FactorAll(xs, dst2)
 	}
 	b.ReportMetric(float64(len(xs))*float64(b.N)/b.Elapsed().Seconds(), "points/s")
 }

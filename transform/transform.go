@@ -103,6 +103,14 @@ type Predictor interface {
 	Factor(p Vec) Mat
 }
 
+// BatchPredictor is a Predictor that computes many points faster together
+// than one by one, as the spline's does.
+type BatchPredictor interface {
+	Predictor
+	// FactorAll sets dst[i] = Factor(ps[i]) for every point.
+	FactorAll(ps []Vec, dst []Mat)
+}
+
 // Options steer a fit.
 type Options struct {
 	// Weights, when not nil, give each pair a relative weight (its

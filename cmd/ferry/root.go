@@ -30,6 +30,8 @@ Results are for research and must be checked by eye before tracing.`,
 		newFitCommand(),
 		newCheckCommand(),
 		newMapCommand(),
+		newSimulateCommand(),
+		newDemoCommand(),
 	)
 	return root
 }
@@ -45,3 +47,5 @@ func newVersionCommand() *cobra.Command {
 		},
 	}
 }
+
+func fprintf(w io.Writer, format string, a ...any) { fmt.Fprintf(w, format, a...) }

@@ -1,0 +1,285 @@
+package demo
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"time"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/outfile"
+	"ferry/register/simulate"
+	"ferry/transform"
+)
+
+// Options steer the demo.
+type Options struct {
+	// Dir receives every file.
+	Dir string
+	// Seed of the scenario.
+	Seed uint64
+	// Params of the scenario; the zero value means simulate.DefaultParams.
+	Params *simulate.Params
+	// Progress, when not nil, receives a line as each step starts: for a
+	// terminal, not for a pipe.
+	Progress io.Writer
+}
+
+// Files are the paths the demo wrote.
+type Files struct {
+	simulate.Files
+	Transform, Mapped string
+	Extra             []string
+}
+
+// Outcome is what the demo found, set against the truth.
+type Outcome struct {
+	Files      Files
+	Assessment *register.Assessment
+	// Flagged are the landmarks the check flagged; Wrong the ones the
+	// simulator spoiled.
+	Flagged, Wrong []string
+	// Mapped cell errors against their true positions (µm).
+	Cells                      int
+	MedianError, P95Error      float64
+	CoveredR95, CoveredR95Good int
+	Good                       int
+	Statuses                   map[string]int
+	Elapsed                    time.Duration
+	// flaggedVerdicts are the first check's verdicts on the landmarks it
+	// flagged.
+	flaggedVerdicts []register.LandmarkCheck
+}
+
+// Run simulates the scenario into o.Dir and does the job on its files.
+func Run(ctx context.Context, o Options) (*Outcome, error) {
+	start := time.Now()
+	step := func(format string, a ...any) {
+		if o.Progress != nil {
+			fmt.Fprintf(o.Progress, "  … "+format+"\n", a...)
+		}
+	}
+	params := simulate.DefaultParams()
+	if o.Params != nil {
+		params = *o.Params
+	}
+	step("simulating the scenario (seed %d)", o.Seed)
+	scen, err := simulate.Generate(params, o.Seed)
+	if err != nil {
+		return nil, err
+	}
+	out := &Outcome{Statuses: map[string]int{}}
+	if out.Files.Files, err = scen.Write(o.Dir); err != nil {
+		return nil, err
+	}
+	f := &out.Files
+
+	step("checking %d landmarks by leave-one-out", len(scen.Landmarks))
+	set, err := landmarks.ReadPairs(f.Landmarks)
+	if err != nil {
+		return nil, err
+	}
+	vox := register.Voxels{}
+	if params.TargetVoxelUM != (transform.Vec{}) {
+		v := params.TargetVoxelUM
+		vox.Target = &v
+	}
+	settings := register.Settings{Smoothing: register.Smoothing{Auto: true}}
+	problem, err := register.PrepareLandmarks(set, nil, vox)
+	if err != nil {
+		return nil, err
+	}
+	check, err := register.Assess(problem, settings)
+	if err != nil {
+		return nil, err
+	}
+	out.Flagged = check.Flagged()
+	for _, l := range check.Landmarks {
+		if l.Flag != "" {
+			out.flaggedVerdicts = append(out.flaggedVerdicts, l)
+		}
+	}
+	out.Wrong = scen.WrongLandmarks()
+
+	// A user who looked at the flagged landmarks and found them wrong
+	// leaves them out of the fit.
+	step("fitting without the %d flagged landmarks", len(out.Flagged))
+	if problem, err = register.PrepareLandmarks(set, out.Flagged, vox); err != nil {
+		return nil, err
+	}
+	a, err := register.Assess(problem, settings)
+	if err != nil {
+		return nil, err
+	}
+	out.Assessment = a
+	prov := register.Provenance{Command: "demo", Inputs: []register.Input{{Path: f.Landmarks, SHA256: set.SHA256}},
+		Flags: []string{fmt.Sprintf("--seed=%d", o.Seed), "--exclude=" + strings.Join(out.Flagged, ",")}}
+	tf, err := register.TransformFile(set, problem, a, settings, vox, out.Flagged, prov)
+	if err != nil {
+		return nil, err
+	}
+	data, err := tf.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	f.Transform = filepath.Join(o.Dir, "transform.json")
+	if err := outfile.WriteBytes(ctx, f.Transform, data); err != nil {
+		return nil, err
+	}
+	// Read the file back, as map would: the demo uses what it wrote.
+	if tf, err = transform.ReadFile(f.Transform); err != nil {
+		return nil, err
+	}
+
+	step("mapping %d cells", len(scen.Cells))
+	cells, pos, err := register.ReadCells(f.Cells, "cells", tf, false)
+	if err != nil {
+		return nil, err
+	}
+	mapper, err := register.NewMapper(tf)
+	if err != nil {
+		return nil, err
+	}
+	cellSD := params.CellSDUM
+	mapped := mapper.MapAll(pos, &cellSD, false)
+	f.Mapped = filepath.Join(o.Dir, "mapped.csv")
+	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
+		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}},
+		Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
+	if err := outfile.Write(ctx, f.Mapped, func(w io.Writer) error {
+		return register.WriteMapped(w, mprov, cells, mapped, tf.TargetVoxel)
+	}); err != nil {
+		return nil, err
+	}
+
+	// Against the truth.
+	truth := map[string]simulate.Cell{}
+	for _, c := range scen.Cells {
+		truth[c.ID] = c
+	}
+	var errs []float64
+	for i, c := range cells.Points {
+		m := mapped[i]
+		out.Statuses[m.Status]++
+		e := m.Pos.Sub(truth[c.ID].TrueTargetUM).Norm()
+		errs = append(errs, e)
+		inside := e <= m.R95
+		if inside {
+			out.CoveredR95++
+		}
+		if m.Status == register.StatusOK {
+			out.Good++
+			if inside {
+				out.CoveredR95Good++
+			}
+		}
+	}
+	out.Cells = len(errs)
+	sort.Float64s(errs)
+	out.MedianError = quantile(errs, 0.5)
+	out.P95Error = quantile(errs, 0.95)
+	out.Elapsed = time.Since(start)
+	return out, nil
+}
+
+func sha(path string) string {
+	s, err := register.FileSHA256(path)
+	if err != nil {
+		return ""
+	}
+	return s
+}
+
+func quantile(sorted []float64, p float64) float64 {
+	if len(sorted) == 0 {
+		return math.NaN()
+	}
+	return sorted[min(len(sorted)-1, int(p*float64(len(sorted))))]
+}
+
+// Print writes the summary a user reads.
+func (o *Outcome) Print(w io.Writer) {
+	a := o.Assessment
+	fmt.Fprintln(w, "ferry demo: an invented block of mouse visual cortex, imaged in vivo and by EM")
+	fmt.Fprintln(w)
+	fmt.Fprintf(w, "1. Check of %d landmark pairs\n", len(a.Landmarks)+len(o.Flagged))
+	if len(o.Flagged) == 0 {
+		fmt.Fprintln(w, "   No landmark looks wrong.")
+	}
+	for _, l := range o.flaggedVerdicts {
+		fmt.Fprintf(w, "   flagged %s (%s): %s\n", l.ID, l.Kind, l.Flag)
+	}
+	fmt.Fprintf(w, "   The simulator spoiled %d: %s; the check flagged %d: %s.\n",
+		len(o.Wrong), list(o.Wrong), len(o.Flagged), list(o.Flagged))
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "2. Fit without the flagged landmarks")
+	register.WriteComparison(indent(w), a)
+	j := a.JSON()
+	fmt.Fprintf(w, "   Leave-one-out error: RMS %.2f µm, median %.2f µm, max %.2f µm.\n", j.RMSUM, j.MedianUM, j.MaxUM)
+	fmt.Fprintf(w, "   Calibration: %d of %d landmarks (%.0f %%) inside their predicted 95 %% radius.\n",
+		a.Calibration.Inside, a.Calibration.N, 100*a.Calibration.Share())
+	fmt.Fprintln(w)
+	fmt.Fprintf(w, "3. %d imaged cells mapped into the EM volume: %s\n", o.Cells, register.FormatCounts(o.Statuses))
+	fmt.Fprintf(w, "   Against the truth: median error %.2f µm, 95th percentile %.2f µm.\n", o.MedianError, o.P95Error)
+	fmt.Fprintf(w, "   r95_um holds the true position for %d of %d cells (%.0f %%); for %d of %d cells with status ok (%.0f %%).\n",
+		o.CoveredR95, o.Cells, pct(o.CoveredR95, o.Cells), o.CoveredR95Good, o.Good, pct(o.CoveredR95Good, o.Good))
+	fmt.Fprintln(w)
+	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))
+	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Transform, o.Files.Mapped} {
+		fmt.Fprintf(w, "   %s\n", p)
+	}
+	for _, p := range o.Files.Extra {
+		fmt.Fprintf(w, "   %s\n", p)
+	}
+	fmt.Fprintf(w, "   truth: %s, %s\n", o.Files.TruthCells, o.Files.TruthLandmarks)
+	fmt.Fprintf(w, "Done in %.1f s. Results are for research: check them by eye before tracing.\n", o.Elapsed.Seconds())
+}
+
+func list(ids []string) string {
+	if len(ids) == 0 {
+		return "none"
+	}
+	return strings.Join(ids, ", ")
+}
+
+func pct(a, b int) float64 {
+	if b == 0 {
+		return 0
+	}
+	return 100 * float64(a) / float64(b)
+}
+
+// indent prefixes every line written through it with three spaces.
+func indent(w io.Writer) io.Writer { return &indenter{w: w, start: true} }
+
+type indenter struct {
+	w     io.Writer
+	start bool
+}
+
+func (i *indenter) Write(p []byte) (int, error) {
+	for _, b := range p {
+		if i.start {
+			if _, err := io.WriteString(i.w, "   "); err != nil {
+				return 0, err
+			}
+		}
+		if _, err := i.w.Write([]byte{b}); err != nil {
+			return 0, err
+		}
+		i.start = b == '\n'
+	}
+	return len(p), nil
+}
+
+// IsTerminal reports whether f is a terminal, where progress lines belong.
+func IsTerminal(f *os.File) bool {
+	info, err := f.Stat()
+	return err == nil && info.Mode()&os.ModeCharDevice != 0
+}
