@@ -1,0 +1,119 @@
+package match
+
+import (
+	"math"
+	"runtime"
+	"sync"
+
+	"ferry/transform"
+)
+
+// volume is the candidates' convex hull, grown outward by a margin,
+// approximated from outside by its support planes in a fixed set of
+// directions: the same construction as the landmarks' hull of package
+// register. It stands for the volume in which candidates were looked for.
+//
+// The margin is half the candidates' typical nearest-neighbour spacing: the
+// outermost candidates lie, on average, that far inside the edge of the
+// volume that was searched.
+type volume struct {
+	dim   int
+	dirs  []transform.Vec
+	reach []float64
+}
+
+func newVolume(pos []transform.Vec, dim int, margin float64) volume {
+	v := volume{dim: dim, dirs: directions(dim)}
+	v.reach = make([]float64, len(v.dirs))
+	// One pass over the candidates per direction, the directions shared
+	// among the cores: 642 directions × 200 000 candidates is 10⁸ dot
+	// products.
+	workers := max(1, min(runtime.GOMAXPROCS(0), len(v.dirs)))
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for k := w; k < len(v.dirs); k += workers {
+				d := v.dirs[k]
+				far := math.Inf(-1)
+				for _, p := range pos {
+					far = math.Max(far, d.Dot(p))
+				}
+				v.reach[k] = far + margin
+			}
+		}()
+	}
+	wg.Wait()
+	return v
+}
+
+// directions spreads unit vectors evenly: on the circle in 2-D, on the
+// sphere by a Fibonacci lattice in 3-D.
+func directions(dim int) []transform.Vec {
+	var dirs []transform.Vec
+	if dim == 2 {
+		const n = 160
+		for k := range n {
+			a := 2 * math.Pi * float64(k) / n
+			dirs = append(dirs, transform.Vec{math.Cos(a), math.Sin(a), 0})
+		}
+		return dirs
+	}
+	const n = 642
+	golden := math.Pi * (3 - math.Sqrt(5))
+	for k := range n {
+		z := 1 - (2*float64(k)+1)/n
+		r := math.Sqrt(1 - z*z)
+		a := golden * float64(k)
+		dirs = append(dirs, transform.Vec{r * math.Cos(a), r * math.Sin(a), z})
+	}
+	return dirs
+}
+
+// depth is the signed distance (µm) from x to the edge of the volume,
+// positive inside, and the outward normal of the face that sets it. Inside,
+// it is the distance to the nearest support plane, which is the distance to
+// the polytope's boundary; outside, it is minus the largest overshoot of a
+// plane, which is at most the true distance.
+func (v volume) depth(x transform.Vec) (float64, transform.Vec) {
+	best := math.Inf(1)
+	var normal transform.Vec
+	for k, d := range v.dirs {
+		if s := v.reach[k] - d.Dot(x); s < best {
+			best, normal = s, d
+		}
+	}
+	return best, normal
+}
+
+// ballShare is the share of a ball (disc in 2-D) of radius r whose centre
+// lies at signed depth h inside a half-space: the edge correction of a
+// density counted in that ball.
+func ballShare(dim int, r, h float64) float64 {
+	switch {
+	case r <= 0 || h >= r:
+		return 1
+	case h <= -r:
+		return 0
+	}
+	if dim == 2 {
+		// The circular segment beyond the edge.
+		seg := r*r*math.Acos(h/r) - h*math.Sqrt(r*r-h*h)
+		return 1 - seg/(math.Pi*r*r)
+	}
+	// The spherical cap of height a beyond the edge, π a² (3r − a)/3.
+	a := r - h
+	return 1 - (a*a*(3*r-a)/4)/(r*r*r)
+}
+
+// ballVolume is the volume (µm³) of a ball of radius r, or the area (µm²) of
+// a disc in 2-D.
+func ballVolume(dim int, r float64) float64 {
+	if dim == 2 {
+		return math.Pi * r * r
+	}
+	return 4 * math.Pi * r * r * r / 3
+}
+
+func sqrt(x float64) float64 { return math.Sqrt(math.Max(x, 0)) }
