@@ -30,6 +30,7 @@ Results are for research and must be checked by eye before tracing.`,
 		newFitCommand(),
 		newCheckCommand(),
 		newMapCommand(),
+		newReportCommand(),
 		newSimulateCommand(),
 		newDemoCommand(),
 	)

@@ -1,0 +1,187 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+
+	"github.com/spf13/cobra"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/outfile"
+	"ferry/register/report"
+	"ferry/transform"
+)
+
+func newReportCommand() *cobra.Command {
+	var flags modelFlags
+	var out, transformPath, mappedPath, matchesPath string
+	cmd := &cobra.Command{
+		Use:   "report LANDMARKS -o REPORT.html [--transform T.json] [--mapped MAPPED.csv] [--matches MATCHES.csv]",
+		Short: "Write the quality report: one self-contained HTML page to read before tracing",
+		Long: `report writes one HTML page that opens offline: the leave-one-out error of
+every landmark against its predicted 95 % radius with the flags and their
+reasons, the error vectors in the projections of the source volume, the
+predicted 95 % radius over the imaged field with the landmarks and (with
+--mapped) the cells on it, the calibration of the predicted errors, the models
+compared and (with --matches) the ambiguous matches.
+
+With --transform the page shows that transform and the check made when it was
+fitted; LANDMARKS must be the file it was fitted from, and the model, smoothing,
+exclusions, voxel sizes and picking errors are the transform file's. Without
+it the landmarks are checked and fitted here with the flags given, as fit does.`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			inputs := []string{args[0]}
+			for _, p := range []string{transformPath, mappedPath, matchesPath} {
+				if p != "" {
+					inputs = append(inputs, p)
+				}
+			}
+			if err := requireOutput(out, inputs...); err != nil {
+				return err
+			}
+			in := &report.Input{LandmarkFile: args[0], TransformFile: transformPath, CellsFile: mappedPath, MatchesFile: matchesPath}
+			var err error
+			if transformPath != "" {
+				err = reportFromTransform(cmd, in, args[0], transformPath)
+			} else {
+				err = reportFromLandmarks(cmd, in, &flags, args[0])
+			}
+			if err != nil {
+				return err
+			}
+			hashes, err := inputsOf(inputs...)
+			if err != nil {
+				return err
+			}
+			in.Provenance = register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
+			if mappedPath != "" {
+				if in.Cells, err = readMappedFor(mappedPath, in); err != nil {
+					return err
+				}
+			}
+			if matchesPath != "" {
+				if in.Matches, err = report.ReadMatches(matchesPath); err != nil {
+					return err
+				}
+			}
+			page, err := report.New(in)
+			if err != nil {
+				return err
+			}
+			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+				_, err := page.WriteTo(w)
+				return err
+			}); err != nil {
+				return err
+			}
+			for _, w := range page.Warnings {
+				fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %s\n", w)
+			}
+			fmt.Fprintf(cmd.OutOrStdout(), "Wrote %s: %d landmarks, %d flagged, %d figures.\n",
+				out, len(in.Check.Landmarks), len(in.Check.Flagged), page.Figures())
+			return nil
+		},
+	}
+	flags.register(cmd)
+	fl := cmd.Flags()
+	fl.StringVarP(&out, "output", "o", "", "report to write (HTML)")
+	fl.StringVar(&transformPath, "transform", "", "transform file to report on (default: fit one from LANDMARKS)")
+	fl.StringVar(&mappedPath, "mapped", "", "mapped cells from ferry map, drawn on the uncertainty map")
+	fl.StringVar(&matchesPath, "matches", "", "matches from ferry match, summarised with the ambiguous cells listed")
+	return cmd
+}
+
+// reportFromLandmarks checks and fits the landmarks with the flags, as fit
+// does, for a report without a transform file.
+func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags, path string) error {
+	job, err := flags.load(path)
+	if err != nil {
+		return err
+	}
+	a, err := register.Assess(job.problem, job.settings)
+	if err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	hashes, err := inputsOf(path)
+	if err != nil {
+		return err
+	}
+	prov := register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
+	file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
+	if err != nil {
+		return err
+	}
+	check := a.JSON()
+	in.Check, in.Source, in.Excluded, in.Transform = &check, job.problem.Source, job.exclude, file
+	return nil
+}
+
+// reportFromTransform reports on a transform file with the check it keeps,
+// drawn at the landmarks of the file it was fitted from.
+func reportFromTransform(cmd *cobra.Command, in *report.Input, path, transformPath string) error {
+	for _, name := range []string{"model", "smoothing", "exclude", "source-voxel", "target-voxel", "source-sd", "target-sd", "no-mirror"} {
+		if cmd.Flags().Changed(name) {
+			return fmt.Errorf("--%s: the transform file %s fixes it; leave the flag out, or leave out --transform to check the landmarks with it", name, transformPath)
+		}
+	}
+	file, err := transform.ReadFile(transformPath)
+	if err != nil {
+		return err
+	}
+	set, err := landmarks.ReadPairs(path)
+	if err != nil {
+		return err
+	}
+	if file.Landmarks.SHA256 != "" && set.SHA256 != file.Landmarks.SHA256 {
+		return fmt.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out --transform to check this one",
+			path, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256))
+	}
+	if len(file.Summary) == 0 {
+		return fmt.Errorf("%s holds no leave-one-out check: refit it with ferry fit", transformPath)
+	}
+	var check register.CheckJSON
+	if err := json.Unmarshal(file.Summary, &check); err != nil {
+		return fmt.Errorf("%s: leave-one-out check: %v", transformPath, err)
+	}
+	problem, err := register.PrepareLandmarks(set, file.Landmarks.Excluded, register.Voxels{Source: file.SourceVoxel, Target: file.TargetVoxel})
+	if err != nil {
+		return fmt.Errorf("%s: %w", transformPath, err)
+	}
+	at := make(map[string]int, problem.Len())
+	for i, id := range problem.IDs {
+		at[id] = i
+	}
+	in.Source = make([]transform.Vec, len(check.Landmarks))
+	for k, l := range check.Landmarks {
+		i, ok := at[l.ID]
+		if !ok {
+			return fmt.Errorf("%s: landmark %q of the check is not in %s", transformPath, l.ID, path)
+		}
+		in.Source[k] = problem.Source[i]
+	}
+	in.Check, in.Excluded, in.Transform = &check, file.Landmarks.Excluded, file
+	return nil
+}
+
+// readMappedFor reads a mapped table in the voxels of the transform's
+// target side, and checks its dimension.
+func readMappedFor(path string, in *report.Input) ([]report.Cell, error) {
+	cells, dim, err := report.ReadMapped(path, in.Transform.TargetVoxel)
+	if err != nil {
+		return nil, err
+	}
+	if dim != in.Check.Dim {
+		return nil, fmt.Errorf("%s: %d-D mapped cells for %d-D landmarks", path, dim, in.Check.Dim)
+	}
+	return cells, nil
+}
+
+func short(sum string) string {
+	if len(sum) > 12 {
+		return sum[:12] + "…"
+	}
+	return sum
+}

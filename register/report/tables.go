@@ -1,0 +1,275 @@
+package report
+
+import (
+	"bytes"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+
+	"ferry/landmarks"
+	"ferry/transform"
+)
+
+// Cell is one row of the table of `ferry map`.
+type Cell struct {
+	ID string
+	// Target is the mapped position in target micrometres; Placed is false
+	// where the table gives none (status no_inverse).
+	Target transform.Vec
+	Placed bool
+	// R95 is the row's r95_um (NaN when empty).
+	R95    float64
+	Status string
+}
+
+// Match is one row of the table of `ferry match`. Numbers left empty in the
+// table are NaN.
+type Match struct {
+	ID, Candidate string
+	PMatch        float64
+	DistanceUM    float64
+	RunnerUp      string
+	PRunnerUp     float64
+	Status        string
+}
+
+// The statuses of a match, as the contract names them.
+const (
+	MatchMatched   = "matched"
+	MatchAmbiguous = "ambiguous"
+	MatchUnmatched = "unmatched"
+)
+
+// ReadMapped reads the mapped cells written by `ferry map`, by column name:
+// id, x, y, z (absent in 2-D), r95_um and status; any other column is
+// ignored. targetVoxel, when not nil, says that x, y and z are target voxel
+// indices of that size (µm), as map writes them for a transform fitted in
+// voxels; positions are returned in micrometres. A table written by
+// `ferry map --inverse` holds source positions and is refused.
+func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int, err error) {
+	t, err := readTable(path)
+	if err != nil {
+		return nil, 0, err
+	}
+	if t.mentions("--inverse=true") {
+		return nil, 0, &landmarks.InputError{File: path, Msg: "was written by ferry map --inverse and holds source positions: the report draws cells mapped forward into the target"}
+	}
+	cols, err := t.require("id", "x", "y", "r95_um", "status")
+	if err != nil {
+		return nil, 0, err
+	}
+	dim = 2
+	axes := []int{cols[1], cols[2], -1}
+	if z := t.column("z"); z >= 0 {
+		dim, axes[2] = 3, z
+	}
+	cells = make([]Cell, len(t.rows))
+	for r, row := range t.rows {
+		c := Cell{ID: strings.TrimSpace(row[cols[0]]), Status: strings.TrimSpace(row[cols[4]])}
+		if c.ID == "" {
+			return nil, 0, t.fail(r, cols[0], "empty id: every row needs one")
+		}
+		empty := 0
+		for k := range dim {
+			v, ok, err := t.number(r, axes[k])
+			if err != nil {
+				return nil, 0, err
+			}
+			if !ok {
+				empty++
+				continue
+			}
+			if targetVoxel != nil {
+				v *= targetVoxel[k]
+			}
+			c.Target[k] = v
+		}
+		switch empty {
+		case 0:
+			c.Placed = true
+		case dim:
+		default:
+			return nil, 0, t.fail(r, axes[0], "some coordinates of the row are empty and some are not: give all or none")
+		}
+		if c.R95, _, err = t.number(r, cols[3]); err != nil {
+			return nil, 0, err
+		}
+		cells[r] = c
+	}
+	return cells, dim, nil
+}
+
+// ReadMatches reads the table of `ferry match` by column name: id,
+// candidate, p_match, distance_um, runner_up, p_runner_up and status; any
+// other column is ignored.
+func ReadMatches(path string) ([]Match, error) {
+	t, err := readTable(path)
+	if err != nil {
+		return nil, err
+	}
+	cols, err := t.require("id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status")
+	if err != nil {
+		return nil, err
+	}
+	out := make([]Match, len(t.rows))
+	for r, row := range t.rows {
+		m := Match{
+			ID:        strings.TrimSpace(row[cols[0]]),
+			Candidate: strings.TrimSpace(row[cols[1]]),
+			RunnerUp:  strings.TrimSpace(row[cols[4]]),
+			Status:    strings.ToLower(strings.TrimSpace(row[cols[6]])),
+		}
+		if m.ID == "" {
+			return nil, t.fail(r, cols[0], "empty id: every row needs one")
+		}
+		switch m.Status {
+		case MatchMatched, MatchAmbiguous, MatchUnmatched:
+		default:
+			return nil, t.fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(m.Status)))
+		}
+		for _, f := range []struct {
+			col int
+			dst *float64
+		}{{cols[2], &m.PMatch}, {cols[3], &m.DistanceUM}, {cols[5], &m.PRunnerUp}} {
+			if *f.dst, _, err = t.number(r, f.col); err != nil {
+				return nil, err
+			}
+		}
+		out[r] = m
+	}
+	return out, nil
+}
+
+// table is a CSV file of the contract read whole: a header naming the
+// columns (found in any case and order), rows of as many fields, "#"
+// comment lines, an optional byte-order mark, LF or CRLF line ends.
+type table struct {
+	name     string
+	header   []string
+	columns  map[string]int
+	rows     [][]string
+	lines    []int
+	comments []string
+}
+
+func readTable(path string) (*table, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("cannot read %s: %w", path, unwrapPath(err))
+	}
+	return parseTable(path, data)
+}
+
+func parseTable(name string, data []byte) (*table, error) {
+	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
+	t := &table{name: name, columns: map[string]int{}}
+	for _, line := range bytes.Split(data, []byte("\n")) {
+		if trimmed := bytes.TrimSpace(line); len(trimmed) > 0 && trimmed[0] == '#' {
+			t.comments = append(t.comments, string(trimmed))
+		}
+	}
+	r := csv.NewReader(bytes.NewReader(data))
+	r.Comment = '#'
+	r.FieldsPerRecord = -1
+	r.TrimLeadingSpace = true
+	for {
+		rec, err := r.Read()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			var pe *csv.ParseError
+			if errors.As(err, &pe) {
+				return nil, &landmarks.InputError{File: name, Line: pe.Line, Msg: pe.Err.Error()}
+			}
+			return nil, &landmarks.InputError{File: name, Msg: err.Error()}
+		}
+		line, _ := r.FieldPos(0)
+		if t.header == nil {
+			t.header = make([]string, len(rec))
+			for i, h := range rec {
+				h = strings.TrimSpace(h)
+				key := strings.ToLower(h)
+				if h == "" {
+					return nil, &landmarks.InputError{File: name, Line: line, Msg: fmt.Sprintf("header column %d has no name", i+1)}
+				}
+				if _, dup := t.columns[key]; dup {
+					return nil, &landmarks.InputError{File: name, Line: line, Column: h, Msg: "named twice in the header"}
+				}
+				t.header[i], t.columns[key] = h, i
+			}
+			continue
+		}
+		if len(rec) != len(t.header) {
+			return nil, &landmarks.InputError{File: name, Line: line,
+				Msg: fmt.Sprintf("the row has %d fields but the header has %d columns", len(rec), len(t.header))}
+		}
+		t.rows = append(t.rows, rec)
+		t.lines = append(t.lines, line)
+	}
+	if t.header == nil {
+		return nil, &landmarks.InputError{File: name, Msg: "no header row: want a header row naming the columns"}
+	}
+	return t, nil
+}
+
+// mentions reports whether a comment line holds s.
+func (t *table) mentions(s string) bool {
+	for _, c := range t.comments {
+		if strings.Contains(c, s) {
+			return true
+		}
+	}
+	return false
+}
+
+func (t *table) column(name string) int {
+	if i, ok := t.columns[name]; ok {
+		return i
+	}
+	return -1
+}
+
+func (t *table) require(names ...string) ([]int, error) {
+	idx := make([]int, len(names))
+	for k, n := range names {
+		if idx[k] = t.column(n); idx[k] < 0 {
+			return nil, &landmarks.InputError{File: t.name, Column: n,
+				Msg: "missing from the header, which has " + strings.Join(t.header, ", ")}
+		}
+	}
+	return idx, nil
+}
+
+func (t *table) fail(row, col int, msg string) error {
+	return &landmarks.InputError{File: t.name, Line: t.lines[row], Column: t.header[col], Msg: msg}
+}
+
+// number reads field col of row as a finite number; an empty field gives
+// NaN and ok false.
+func (t *table) number(row, col int) (v float64, ok bool, err error) {
+	s := strings.TrimSpace(t.rows[row][col])
+	if s == "" {
+		return math.NaN(), false, nil
+	}
+	v, perr := strconv.ParseFloat(s, 64)
+	if perr != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, false, t.fail(row, col, strconv.Quote(s)+" is not a number")
+	}
+	return v, true, nil
+}
+
+// unwrapPath drops the operation and path of an *os.PathError, which the
+// caller's message already names.
+func unwrapPath(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
+}
