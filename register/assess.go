@@ -151,7 +151,7 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 			return nil, err
 		}
 	}
-	a := &Assessment{Dim: p.Dim, Radii: NewRadiusTable(p.Dim, 0.95)}
+	a := &Assessment{Dim: p.Dim, Radii: Radius95(p.Dim)}
 	weights := equalWeights(p.Len())
 
 	// Flag with the model asked for or else with the most flexible model

@@ -64,7 +64,7 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 		t: f.Transform, pred: pred, u: u, dim: dim,
 		hull:  newSupportHull(u.Source, dim),
 		tree:  newPointTree(u.Source),
-		radii: NewRadiusTable(dim, 0.95),
+		radii: Radius95(dim),
 	}
 	// The handedness of the transform as a whole: a fold is where the local
 	// Jacobian disagrees with it.

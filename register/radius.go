@@ -253,3 +253,16 @@ func chiSquareQuantile(k int, p float64) float64 {
 	}
 	return 0.5 * (lo + hi)
 }
+
+// Radius95 is the table of 95 % radii for dim dimensions, read from the
+// values that NewRadiusTable computes, kept in radius_table.go so that no
+// run pays for the integration (TestRadius95TableCurrent checks them).
+func Radius95(dim int) *RadiusTable {
+	t := &RadiusTable{dim: dim, p: 0.95}
+	if dim == 2 {
+		t.g = radius95Table2D()
+	} else {
+		t.g = radius95Table3D()
+	}
+	return t
+}
