@@ -131,3 +131,28 @@ func ExampleFile_Marshal() {
 	fmt.Printf("%s %.0f %.0f\n", g.Transform.Kind(), p[0], p[1])
 	// Output: translation 6 -2
 }
+
+// FuzzUnmarshal: no input makes the reader panic, and whatever it accepts
+// is a transform that maps a point to finite numbers.
+func FuzzUnmarshal(f *testing.F) {
+	l := &Linear{Model: Rigid, D: 3, A: Identity(), T: Vec{1, 2, 3}, Scale: 1}
+	good, err := (&File{Program: "fuzz", Transform: l}).Marshal()
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Add(good)
+	f.Add([]byte(`{"format":"ferry-transform","version":1}`))
+	f.Add([]byte(`{}`))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		g, err := Unmarshal("fuzz.json", data)
+		if err != nil {
+			if !strings.HasPrefix(err.Error(), "fuzz.json: ") {
+				t.Fatalf("error does not name the file: %v", err)
+			}
+			return
+		}
+		if p := g.Transform.Apply(Vec{1, 2, 3}); !p.IsFinite() {
+			t.Fatalf("accepted a transform that maps to %v", p)
+		}
+	})
+}
