@@ -26,7 +26,7 @@ const (
 	// mapHeadroom: the colour scale ends this many times above the largest
 	// r95 inside the landmarks' hull, so that the extrapolated margins do
 	// not wash out the differences inside it.
-	mapHeadroom = 1.25
+	mapHeadroom  = 1.25
 	maxMapHeight = 540
 )
 

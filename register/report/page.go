@@ -348,7 +348,11 @@ func (d *pageData) drawVectors(pg *Page, ck *register.CheckJSON, source []transf
 	if v.bar > 0 {
 		caption += fmt.Sprintf("; the scale bar is %s µm of error", formatLength(v.bar))
 	}
-	caption += ". y and z grow downwards, as in the image stack."
+	if ck.Dim == 2 {
+		caption += ". y grows downwards, as in the image."
+	} else {
+		caption += ". y and z grow downwards, as in the image stack."
+	}
 	if v.shortened > 0 {
 		caption += fmt.Sprintf(" %d arrow(s) would leave the field and are drawn shorter, dashed; the table of every landmark's numbers gives their length.", v.shortened)
 	}
@@ -397,7 +401,12 @@ func (d *pageData) drawMap(pg *Page, in *Input, tr transform.Transform) {
 	}
 	caption += ". Outside the dashed line points are extrapolated."
 	if in.Cells != nil {
-		caption += fmt.Sprintf(" Cells of every depth are drawn at their source x, y, carried back from their mapped position through the inverse of the transform, by status.")
+		if in.Check.Dim == 3 {
+			caption += " Cells of every depth are drawn at their source x, y,"
+		} else {
+			caption += " Cells are drawn at their source position,"
+		}
+		caption += " carried back from their mapped position through the inverse of the transform, by status."
 		d.Cells = summariseCells(in.Cells, in.CellsFile, &res)
 		if res.cellsMissing > 0 {
 			pg.Warnings = append(pg.Warnings, fmt.Sprintf("%d mapped cell(s) have no position to draw", res.cellsMissing))

@@ -1,0 +1,148 @@
+package report
+
+import (
+	"bytes"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+	"github.com/google/go-cmp/cmp/cmpopts"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/transform"
+)
+
+func writeFile(t *testing.T, name, text string) string {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), name)
+	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return path
+}
+
+// The table that register.WriteMapped writes is the one ReadMapped reads:
+// the two must agree on the columns of the contract.
+func TestReadMappedRoundTrip(t *testing.T) {
+	cells := &landmarks.PointSet{Dim: 3, ExtraColumns: []string{"osi"}, Points: []landmarks.Point{
+		{ID: "c1", Extra: []string{"0.5"}}, {ID: "c2", Extra: []string{"0.1"}}, {ID: "c3", Extra: []string{""}},
+	}}
+	mapped := []register.Mapped{
+		{Pos: transform.Vec{10, 20, 30}, R95: 2.5, Status: register.StatusOK},
+		{Pos: transform.Vec{-1.25, 0, 7}, R95: 9, Status: register.StatusExtrapolated},
+		{Status: register.StatusNoInverse},
+	}
+	for _, voxel := range []*transform.Vec{nil, {0.5, 0.25, 2}} {
+		var buf bytes.Buffer
+		if err := register.WriteMapped(&buf, register.Provenance{Command: "map"}, cells, mapped, voxel); err != nil {
+			t.Fatal(err)
+		}
+		got, dim, err := ReadMapped(writeFile(t, "mapped.csv", buf.String()), voxel)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := []Cell{
+			{ID: "c1", Target: transform.Vec{10, 20, 30}, Placed: true, R95: 2.5, Status: "ok"},
+			{ID: "c2", Target: transform.Vec{-1.25, 0, 7}, Placed: true, R95: 9, Status: "extrapolated"},
+			{ID: "c3", R95: math.NaN(), Status: "no_inverse"},
+		}
+		if dim != 3 {
+			t.Errorf("dimension %d, want 3", dim)
+		}
+		if diff := cmp.Diff(want, got, cmpopts.EquateNaNs(), cmpopts.EquateApprox(0, 1e-9)); diff != "" {
+			t.Errorf("voxel %v: cells differ (-want +got):\n%s", voxel, diff)
+		}
+	}
+}
+
+func TestReadMapped(t *testing.T) {
+	for _, tc := range []struct {
+		name, text string
+		want       []Cell
+		dim        int
+		err        string
+	}{
+		{
+			name: "2-D, BOM, CRLF, comments, quotes, any order and case",
+			text: "\xef\xbb\xbf# made by hand\r\nStatus,R95_UM,y,id,x\r\nok,1.5,2,\"c,1\",1\r\n# a comment\r\n\"isolated\",3,4,c2,3\r\n",
+			want: []Cell{
+				{ID: "c,1", Target: transform.Vec{1, 2}, Placed: true, R95: 1.5, Status: "ok"},
+				{ID: "c2", Target: transform.Vec{3, 4}, Placed: true, R95: 3, Status: "isolated"},
+			},
+			dim: 2,
+		},
+		{name: "missing column", text: "id,x,y,z,status\nc1,1,2,3,ok\n", err: `column "r95_um": missing from the header`},
+		{name: "not a number", text: "id,x,y,z,r95_um,status\nc1,1,2,abc,1,ok\n", err: `mapped.csv:2: column "z": "abc" is not a number`},
+		{name: "part of a position", text: "id,x,y,z,r95_um,status\nc1,1,,3,1,ok\n", err: "some coordinates of the row are empty"},
+		{name: "short row", text: "id,x,y,z,r95_um,status\nc1,1,2,3,1\n", err: "mapped.csv:2: the row has 5 fields but the header has 6 columns"},
+		{name: "empty id", text: "id,x,y,z,r95_um,status\n ,1,2,3,1,ok\n", err: "empty id"},
+		{name: "inverse", text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n", err: "--inverse"},
+		{name: "no header", text: "# nothing\n", err: "no header row"},
+		{name: "bad quotes", text: "id,x,y,z,r95_um,status\n\"c1,1,2,3,1,ok\n", err: "mapped.csv:2:"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			got, dim, err := ReadMapped(writeFile(t, "mapped.csv", tc.text), nil)
+			if tc.err != "" {
+				if err == nil || !strings.Contains(err.Error(), tc.err) {
+					t.Fatalf("error %v, want one holding %q", err, tc.err)
+				}
+				return
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			if dim != tc.dim {
+				t.Errorf("dimension %d, want %d", dim, tc.dim)
+			}
+			if diff := cmp.Diff(tc.want, got, cmpopts.EquateNaNs()); diff != "" {
+				t.Errorf("cells differ (-want +got):\n%s", diff)
+			}
+		})
+	}
+}
+
+func TestReadMatches(t *testing.T) {
+	nan := math.NaN()
+	for _, tc := range []struct {
+		name, text string
+		want       []Match
+		err        string
+	}{
+		{
+			name: "the contract's columns with extras",
+			text: "# ferry match\nid,candidate,p_match,distance_um,runner_up,p_runner_up,status,osi\n" +
+				"c1,n7,0.97,1.5,n8,0.02,matched,0.3\nc2,n9,0.52,3.25,n4,0.44,Ambiguous,0.1\nc3,,,,,,unmatched,\n",
+			want: []Match{
+				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, Status: "matched"},
+				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, Status: "ambiguous"},
+				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, Status: "unmatched"},
+			},
+		},
+		{name: "unknown status", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,1,1,,0,maybe\n", err: `matches.csv:2: column "status": "maybe" is not a match status`},
+		{name: "missing runner-up", text: "id,candidate,p_match,distance_um,p_runner_up,status\n", err: `column "runner_up": missing`},
+		{name: "infinite", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,inf,1,,0,matched\n", err: `"inf" is not a number`},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			got, err := ReadMatches(writeFile(t, "matches.csv", tc.text))
+			if tc.err != "" {
+				if err == nil || !strings.Contains(err.Error(), tc.err) {
+					t.Fatalf("error %v, want one holding %q", err, tc.err)
+				}
+				return
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			if diff := cmp.Diff(tc.want, got, cmpopts.EquateNaNs()); diff != "" {
+				t.Errorf("matches differ (-want +got):\n%s", diff)
+			}
+		})
+	}
+	if _, err := ReadMatches(filepath.Join(t.TempDir(), "absent.csv")); err == nil || !strings.Contains(err.Error(), "cannot read") {
+		t.Errorf("absent file: error %v", err)
+	}
+}
