@@ -25,6 +25,9 @@ const (
 	// maxLabelRunes shortens long ids and reasons in figures; the tables
 	// give them whole.
 	maxLabelRunes = 22
+	// offScale: the error axis ends at this many times the largest error of
+	// a landmark that passed (or radius) when a flagged error lies beyond.
+	offScale = 1.6
 )
 
 // byError is the order of the landmarks from the largest leave-one-out
@@ -99,17 +102,28 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 	order := byError(ls)
 	p := newPlot("leave-one-out error (µm)", "")
 	var bars radiusBars
-	var good, bad plotter.XYs
+	var good, bad, off plotter.XYs
 	var ticks []plot.Tick
 	var leftLabels, rightLabels plotter.XYLabels
-	xMax := 0.0
+	// The axis ends a little past the landmarks that passed and the radii;
+	// a flagged error far beyond them is drawn at the end of the axis,
+	// marked as off the scale, so that one gross mistake does not squeeze
+	// every other row into a corner.
+	base, top := 0.0, 0.0
 	for _, l := range ls {
-		xMax = math.Max(xMax, math.Max(l.LOOErrorUM, l.R95UM))
+		base = math.Max(base, l.R95UM)
+		if l.Flag == "" {
+			base = math.Max(base, l.LOOErrorUM)
+		}
+		top = math.Max(top, l.LOOErrorUM)
 	}
-	if !(xMax > 0) {
-		xMax = 1
+	if !(base > 0) {
+		base = math.Max(top, 1)
 	}
-	xMax *= 1.04
+	xMax := math.Max(base, top) * 1.04
+	if top > offScale*base {
+		xMax = offScale * base
+	}
 	for rank, i := range order {
 		l := ls[i]
 		y := float64(n - 1 - rank)
@@ -122,7 +136,12 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 				label = "#" + number(float64(rank+1))
 			}
 		}
-		if l.Flag != "" {
+		if l.Flag != "" && l.LOOErrorUM > xMax {
+			pt.X = xMax
+			off = append(off, pt)
+			leftLabels.XYs = append(leftLabels.XYs, pt)
+			leftLabels.Labels = append(leftLabels.Labels, um(l.LOOErrorUM)+" µm, off the scale: "+flagHint(l.Flag))
+		} else if l.Flag != "" {
 			bad = append(bad, pt)
 			hint := flagHint(l.Flag)
 			// Labels go where the row has room: left of a point in the
@@ -147,10 +166,11 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 	p.Add(bars)
 	goodStyle := glyph(circleShape, colourLandmark, white, 3.6)
 	badStyle := glyph(upShape, colourFlagged, black, 4.6)
+	offStyle := glyph(rightShape, colourFlagged, black, 4.6)
 	for _, set := range []struct {
 		xys plotter.XYs
 		sty draw.GlyphStyle
-	}{{good, goodStyle}, {bad, badStyle}} {
+	}{{good, goodStyle}, {bad, badStyle}, {off, offStyle}} {
 		if len(set.xys) == 0 {
 			continue
 		}
@@ -185,7 +205,12 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 
 	legend := newLegend()
 	legend.Add("leave-one-out error", glyphThumb(goodStyle))
-	legend.Add("flagged landmark", glyphThumb(badStyle))
+	if len(bad) > 0 || len(off) == 0 {
+		legend.Add("flagged landmark", glyphThumb(badStyle))
+	}
+	if len(off) > 0 {
+		legend.Add("flagged, error off the scale", glyphThumb(offStyle))
+	}
 	legend.Add("R95: predicted 95 % radius", thumb(radiusThumb))
 	lw, lh := legendExtent(&legend)
 

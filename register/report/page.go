@@ -142,6 +142,8 @@ type pageData struct {
 	N, Dim, Flagged          int
 	Excluded                 string
 	Model, Reason, Smoothing string
+	SmoothingNote            string
+	ExcludeFlagged           string
 	Mirrored                 bool
 	TransformFrom            string
 	RMS, Median, Max         string
@@ -235,12 +237,22 @@ func (d *pageData) summarise(in *Input) {
 	d.Model, d.Reason, d.Mirrored = ck.Model, ck.Reason, ck.Mirrored
 	if ck.Model == string(transform.TPS) {
 		d.Smoothing = fmt.Sprintf("%.4g", ck.Smoothing)
+		// The transform is fitted to every landmark, flagged ones
+		// included, and its smoothing chosen on them; the comparison was
+		// made on the landmarks that passed. Say so where the two differ.
+		for _, m := range ck.Models {
+			if m.Model == ck.Model && m.Error == "" && math.Abs(m.Smoothing-ck.Smoothing) > 1e-9*math.Max(1, ck.Smoothing) && len(ck.Flagged) > 0 {
+				d.SmoothingNote = fmt.Sprintf("S = %.4g in the transform, which is fitted to every landmark, the flagged ones included; S = %.4g fitted to the landmarks that passed, as in the comparison of models.",
+					ck.Smoothing, m.Smoothing)
+			}
+		}
 	}
 	if in.TransformFile != "" {
 		d.TransformFrom = in.TransformFile
 	}
 	d.RMS, d.Median, d.Max = um(ck.RMSUM), um(ck.MedianUM), um(ck.MaxUM)
 	d.Flagged = len(ck.Flagged)
+	d.ExcludeFlagged = strings.Join(append(append([]string(nil), in.Excluded...), ck.Flagged...), ",")
 	c := ck.Calibration
 	d.CalibrationShare = fmt.Sprintf("%d of %d landmarks (%s) have their leave-one-out error inside their predicted 95 %% radius",
 		c.Inside, c.N, share(c.Inside, c.N))

@@ -112,8 +112,9 @@ const (
 	circleShape shape = iota
 	squareShape
 	diamondShape
-	upShape   // triangle pointing up
-	downShape // triangle pointing down
+	upShape    // triangle pointing up
+	downShape  // triangle pointing down
+	rightShape // triangle pointing right, for a value beyond the axis
 	crossShape
 )
 
@@ -171,6 +172,11 @@ func (m marker) DrawGlyph(c *draw.Canvas, sty draw.GlyphStyle, pt vg.Point) {
 		outline.Move(vg.Point{X: pt.X, Y: pt.Y + dir*s})
 		outline.Line(vg.Point{X: pt.X + s*0.866, Y: pt.Y - dir*s*0.5})
 		outline.Line(vg.Point{X: pt.X - s*0.866, Y: pt.Y - dir*s*0.5})
+	case rightShape:
+		s := r * 1.25
+		outline.Move(vg.Point{X: pt.X + s, Y: pt.Y})
+		outline.Line(vg.Point{X: pt.X - s*0.5, Y: pt.Y + s*0.866})
+		outline.Line(vg.Point{X: pt.X - s*0.5, Y: pt.Y - s*0.866})
 	}
 	outline.Close()
 	c.SetColor(sty.Color)

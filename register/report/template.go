@@ -62,11 +62,13 @@ footer ul { padding-left: 18px; margin: 4px 0; }
 <p class="sub">Leave-one-out check of <code>{{.LandmarkFile}}</code>: {{.N}} landmark pairs, {{.DimWords}}{{if .Excluded}}, with {{.Excluded}} excluded{{end}}.</p>
 <p class="caution"><strong>For research use.</strong> These results come from a statistical model of the landmarks you picked. They must be checked by eye, in both volumes, before tracing starts.</p>
 <dl class="facts">
-<dt>Model</dt><dd>{{.Model}}{{if .Smoothing}} (smoothing {{.Smoothing}}){{end}}{{if .Mirrored}}, mirrored (the target was imaged from the other face){{end}}: {{.Reason}}.</dd>
-<dt>Transform</dt><dd>{{if .TransformFrom}}from <code>{{.TransformFrom}}</code>, with the check made when it was fitted{{else}}fitted for this report from the landmarks, with the settings in the footer{{end}}.</dd>
+<dt>Model</dt><dd>{{.Model}}{{if .Smoothing}} (smoothing {{.Smoothing}}){{end}}{{if .Mirrored}}, mirrored (the target was imaged from the other face){{end}}.</dd>
+<dt>Why this model</dt><dd>{{.Reason}}.</dd>
+{{if .SmoothingNote}}<dt>Smoothing</dt><dd>{{.SmoothingNote}}</dd>
+{{end}}<dt>Transform</dt><dd>{{if .TransformFrom}}from <code>{{.TransformFrom}}</code>, with the check made when it was fitted{{else}}fitted for this report from the landmarks, with the settings in the footer{{end}}.</dd>
 <dt>Leave-one-out error</dt><dd>RMS {{.RMS}} µm, median {{.Median}} µm, largest {{.Max}} µm (flagged landmarks left out).</dd>
 <dt>Calibration</dt><dd>{{.CalibrationShare}}; 95 % are expected.</dd>
-<dt>Flagged</dt><dd>{{if .FlaggedRows}}<span class="bad">{{len .FlaggedRows}} landmark(s) look wrong:</span>{{range $i, $r := .FlaggedRows}}{{if $i}},{{end}} <code>{{$r.ID}}</code>{{end}}. Check them in both volumes, then correct them or refit with --exclude.{{else}}<span class="ok">none</span>: no landmark looks wrong.{{end}}</dd>
+<dt>Flagged</dt><dd>{{if .FlaggedRows}}<span class="bad">{{len .FlaggedRows}} landmark(s) look wrong:</span>{{range $i, $r := .FlaggedRows}}{{if $i}},{{end}} <code>{{$r.ID}}</code>{{end}}. They are still in the transform: check them in both volumes, then correct them or refit with <code>--exclude {{.ExcludeFlagged}}</code>.{{else}}<span class="ok">none</span>: no landmark looks wrong.{{end}}</dd>
 </dl>
 {{if .FlaggedRows}}<table>
 <tr><th>landmark</th><th>kind</th><th class="num">error µm</th><th class="num">R95 µm</th><th>why it is flagged</th></tr>
