@@ -40,11 +40,7 @@ ferry="$work/ferry"
 
 step "scenario"
 scen="$work/scenario"
-if "$ferry" simulate --help >/dev/null 2>&1; then
-  "$ferry" simulate "$scen" --seed 1
-else
-  go run ./register/report/internal/scenario "$scen"
-fi
+"$ferry" simulate "$scen" --seed 1
 for f in landmarks.csv cells.csv candidates.csv; do
   [ -s "$scen/$f" ] || fail "the scenario has no $f"
 done

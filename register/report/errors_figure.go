@@ -17,8 +17,10 @@ import (
 )
 
 const (
-	// rowHeight is the height of one landmark's row in the error figure.
-	rowHeight = 13
+	// rowHeight is the height of one landmark's row in the error figure
+	// (points); past maxNamedRows the rows share maxRowsHeight.
+	rowHeight     = 13
+	maxRowsHeight = maxNamedRows * rowHeight
 	// maxNamedRows is the most landmarks the error figure names one by one;
 	// past it the rows are numbered by rank.
 	maxNamedRows = 120
@@ -69,12 +71,13 @@ func flagHint(reason string) string {
 // radiusBars draws each landmark's predicted 95 % radius as a band from 0
 // to R95 across its row, with a mark at the radius itself.
 type radiusBars struct {
-	rows []plotter.XY // X: R95, Y: row
+	rows   []plotter.XY // X: R95, Y: row
+	height vg.Length    // of a row
 }
 
 func (b radiusBars) Plot(c draw.Canvas, p *plot.Plot) {
 	trX, trY := p.Transforms(&c)
-	half := vg.Length(rowHeight) * 0.32
+	half := b.height * 0.32
 	for _, r := range b.rows {
 		x0, x1, y := trX(0), trX(r.X), trY(r.Y)
 		c.FillPolygon(colourRadius.nrgba(110), []vg.Point{
@@ -101,7 +104,11 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 	n := len(ls)
 	order := byError(ls)
 	p := newPlot("leave-one-out error (µm)", "")
-	var bars radiusBars
+	row := vg.Length(rowHeight)
+	if n > maxNamedRows {
+		row = maxRowsHeight / vg.Length(n)
+	}
+	bars := radiusBars{height: row}
 	var good, bad, off plotter.XYs
 	var ticks []plot.Tick
 	var leftLabels, rightLabels plotter.XYLabels
@@ -215,7 +222,7 @@ func errorsFigure(ck *register.CheckJSON) (template.HTML, error) {
 	lw, lh := legendExtent(&legend)
 
 	dataW := vg.Length(maxFigureWidth) - lw - stripGap - 90
-	dataH := vg.Length(math.Max(float64(n)*rowHeight, 140))
+	dataH := vg.Length(math.Max(float64(vg.Length(n)*row), 140))
 	in := measure(p, dataW, dataH)
 	plotW := dataW + in.left + in.right
 	plotH := math.Max(float64(dataH+in.bottom+in.top), float64(lh)+10)

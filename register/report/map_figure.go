@@ -28,6 +28,8 @@ const (
 	// not wash out the differences inside it.
 	mapHeadroom  = 1.25
 	maxMapHeight = 540
+	// maxDrawnCells bounds the cells drawn on the map.
+	maxDrawnCells = 5000
 )
 
 // uncertaintyGrid is r95 of a point mapped from each node of a grid over one
@@ -302,12 +304,19 @@ type placedCell struct {
 // placeCells carries the mapped cells back into the source through the
 // transform's inverse, to draw them on the source field. It returns the
 // cells placed and how many could not be (no position, or no inverse).
-func placeCells(cells []Cell, tr transform.Transform) ([]placedCell, int) {
+//
+// Past maxDrawnCells only every k-th cell is drawn (k the smallest that
+// brings them under it), so that a table of a million cells makes a page a
+// browser can open; stride says which k.
+func placeCells(cells []Cell, tr transform.Transform) (placed []placedCell, missing, stride int) {
+	stride = max(1, (len(cells)+maxDrawnCells-1)/maxDrawnCells)
 	var out []placedCell
-	missing := 0
-	for _, c := range cells {
+	for i, c := range cells {
 		if !c.Placed {
 			missing++
+			continue
+		}
+		if i%stride != 0 {
 			continue
 		}
 		x, err := tr.Invert(c.Target)
@@ -317,7 +326,7 @@ func placeCells(cells []Cell, tr transform.Transform) ([]placedCell, int) {
 		}
 		out = append(out, placedCell{source: x, status: c.Status})
 	}
-	return out, missing
+	return out, missing, stride
 }
 
 // mapResult is the drawing of the uncertainty map, with what its caption
@@ -327,6 +336,7 @@ type mapResult struct {
 	grid          *uncertaintyGrid
 	cellsPlaced   int
 	cellsMissing  int
+	cellStride    int
 	flaggedOnMap  int
 	statusesShown []string
 }
@@ -339,8 +349,8 @@ func uncertaintyFigure(ck *register.CheckJSON, source []transform.Vec, m *regist
 		return res, errors.New("no transform")
 	}
 	dim := ck.Dim
-	placed, missing := placeCells(cells, tr)
-	res.cellsPlaced, res.cellsMissing = len(placed), missing
+	placed, missing, stride := placeCells(cells, tr)
+	res.cellsPlaced, res.cellsMissing, res.cellStride = len(placed), missing, stride
 	cellPts := make([]transform.Vec, len(placed))
 	for i, c := range placed {
 		cellPts[i] = c.source

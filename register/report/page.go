@@ -419,6 +419,10 @@ func (d *pageData) drawMap(pg *Page, in *Input, tr transform.Transform) {
 			caption += " Cells are drawn at their source position,"
 		}
 		caption += " carried back from their mapped position through the inverse of the transform, by status."
+		if res.cellStride > 1 {
+			caption += fmt.Sprintf(" Of the %d cells every %s is drawn (%d), so that the page stays light; the table below counts them all.",
+				len(in.Cells), ordinal(res.cellStride), res.cellsPlaced)
+		}
 		d.Cells = summariseCells(in.Cells, in.CellsFile, &res)
 		if res.cellsMissing > 0 {
 			pg.Warnings = append(pg.Warnings, fmt.Sprintf("%d mapped cell(s) have no position to draw", res.cellsMissing))
@@ -530,4 +534,20 @@ func (d *pageData) calibrationText() {
 		}
 		d.CalibrationText = fmt.Sprintf("At %d of %d levels the observed share leaves the range expected of %d well-predicted landmarks, mostly %s.", outside, len(cv.expected), cv.n, what)
 	}
+}
+
+// ordinal writes 2 as "2nd", 3 as "3rd", 11 as "11th".
+func ordinal(k int) string {
+	suffix := "th"
+	if k%100 < 11 || k%100 > 13 {
+		switch k % 10 {
+		case 1:
+			suffix = "st"
+		case 2:
+			suffix = "nd"
+		case 3:
+			suffix = "rd"
+		}
+	}
+	return fmt.Sprintf("%d%s", k, suffix)
 }
