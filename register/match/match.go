@@ -219,7 +219,7 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 		prior = estimatePrior(opts)
 	}
 	assoc := buildAssociation(opts, len(cands), prior)
-	marg := assoc.marginalise()
+	marg := assoc.posteriors()
 	chosen, err := assign(assoc, marg)
 	if err != nil {
 		return nil, err
@@ -588,43 +588,10 @@ func buildAssociation(opts []cellOptions, nCands int, prior float64) *associatio
 // bipartite graph falls apart into connected components that are solved
 // apart: they are small, since a cell reaches only candidates near it.
 func assign(a *association, m marginals) ([]int, error) {
-	parent := make([]int, a.cells+a.cands)
-	for i := range parent {
-		parent[i] = i
-	}
-	find := func(x int) int {
-		for parent[x] != x {
-			parent[x] = parent[parent[x]]
-			x = parent[x]
-		}
-		return x
-	}
-	for i := range a.cells {
-		for k := a.start[i]; k < a.start[i+1]; k++ {
-			if m.edge[k] >= minEdgeP {
-				x, y := find(i), find(a.cells+a.rank[k])
-				if x != y {
-					// The lower root wins, so components are named by
-					// their first cell.
-					parent[max(x, y)] = min(x, y)
-				}
-			}
-		}
-	}
-	members := map[int][]int{}
-	var roots []int
-	for i := range a.cells {
-		r := find(i)
-		if _, ok := members[r]; !ok {
-			roots = append(roots, r)
-		}
-		members[r] = append(members[r], i)
-	}
-
+	kept := func(k int) bool { return m.edge[k] >= minEdgeP }
 	chosen := make([]int, a.cells)
 	local := map[int]int{}
-	for _, root := range roots {
-		rows := members[root]
+	for _, rows := range a.components(kept) {
 		if len(rows) == 1 && edgesOf(a, m, rows[0]) == 0 {
 			chosen[rows[0]] = -1
 			continue
@@ -635,7 +602,7 @@ func assign(a *association, m marginals) ([]int, error) {
 		var ranks []int
 		for _, i := range rows {
 			for k := a.start[i]; k < a.start[i+1]; k++ {
-				if m.edge[k] >= minEdgeP {
+				if kept(k) {
 					if _, ok := local[a.rank[k]]; !ok {
 						local[a.rank[k]] = 0
 						ranks = append(ranks, a.rank[k])
@@ -650,7 +617,7 @@ func assign(a *association, m marginals) ([]int, error) {
 		p := &sparseProblem{rows: len(rows), cols: len(ranks) + len(rows), start: make([]int, len(rows)+1)}
 		for r, i := range rows {
 			for k := a.start[i]; k < a.start[i+1]; k++ {
-				if m.edge[k] >= minEdgeP {
+				if kept(k) {
 					p.col = append(p.col, local[a.rank[k]])
 					p.cost = append(p.cost, -math.Log(m.edge[k]))
 				}

@@ -27,11 +27,123 @@ type marginals struct {
 }
 
 // The stopping rule of the belief propagation: the largest change of a
-// message below bpTolerance, or bpMaxIterations sweeps.
+// message below bpTolerance, or bpMaxIterations sweeps. exactStates bounds
+// the joint assignments of a connected component whose marginals are
+// summed exactly instead.
 const (
 	bpTolerance     = 1e-10
 	bpMaxIterations = 1000
+	exactStates     = 1 << 16
 )
+
+// posteriors are the marginals of every option: exact, by summing over the
+// joint assignments, on each connected component of the graph small enough
+// for it, which is nearly all of them where cells are sparse among the
+// candidates; by belief propagation on the others.
+func (a *association) posteriors() marginals {
+	m := a.marginalise()
+	used := make([]bool, a.cands)
+	for _, cells := range a.components(func(int) bool { return true }) {
+		states := 1.0
+		for _, i := range cells {
+			states *= float64(a.start[i+1] - a.start[i] + 2)
+		}
+		if len(cells) > 1 && states <= exactStates {
+			a.exact(cells, &m, used)
+		}
+	}
+	return m
+}
+
+// exact replaces the marginals of the cells of one component by the sums
+// over all its joint assignments: each cell takes no match, one of the
+// candidates in reach beyond its table (rest) or one of its candidates, no
+// candidate twice. used is scratch, all false.
+func (a *association) exact(cells []int, m *marginals, used []bool) {
+	edge := map[int]float64{}
+	none := make([]float64, len(cells))
+	choice := make([]int, len(cells)) // edge index, −1 no match, −2 rest
+	total := 0.0
+	var walk func(c int, w float64)
+	walk = func(c int, w float64) {
+		if c == len(cells) {
+			total += w
+			for n, k := range choice {
+				switch {
+				case k >= 0:
+					edge[k] += w
+				case k == -1:
+					none[n] += w
+				}
+			}
+			return
+		}
+		i := cells[c]
+		choice[c] = -1
+		walk(c+1, w*a.none[i])
+		if a.rest[i] > 0 {
+			choice[c] = -2
+			walk(c+1, w*a.rest[i])
+		}
+		for k := a.start[i]; k < a.start[i+1]; k++ {
+			if r := a.rank[k]; !used[r] {
+				used[r] = true
+				choice[c] = k
+				walk(c+1, w*a.weight[k])
+				used[r] = false
+			}
+		}
+	}
+	walk(0, 1)
+	for n, i := range cells {
+		m.none[i] = none[n] / total
+		for k := a.start[i]; k < a.start[i+1]; k++ {
+			m.edge[k] = edge[k] / total
+		}
+	}
+}
+
+// components are the connected components of the graph of cells and
+// candidates on the edges that keep accepts, each as its cells in
+// ascending order, the components in the order of their first cell.
+func (a *association) components(keep func(k int) bool) [][]int {
+	parent := make([]int, a.cells+a.cands)
+	for i := range parent {
+		parent[i] = i
+	}
+	find := func(x int) int {
+		for parent[x] != x {
+			parent[x] = parent[parent[x]]
+			x = parent[x]
+		}
+		return x
+	}
+	for i := range a.cells {
+		for k := a.start[i]; k < a.start[i+1]; k++ {
+			if keep(k) {
+				x, y := find(i), find(a.cells+a.rank[k])
+				if x != y {
+					// The lower root wins, so a component's root is its
+					// first cell.
+					parent[max(x, y)] = min(x, y)
+				}
+			}
+		}
+	}
+	index := make(map[int]int)
+	var out [][]int
+	for i := range a.cells {
+		r := find(i)
+		c, ok := index[r]
+		if !ok {
+			c = len(out)
+			index[r] = c
+			out = append(out, nil)
+		}
+		out[c] = append(out[c], i)
+	}
+	return out
+}
 
 // marginalise computes the marginal probability of each option of each cell
 // given that no candidate is the counterpart of two cells, by belief
