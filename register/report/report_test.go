@@ -160,3 +160,18 @@ func TestNewRefusesBadInput(t *testing.T) {
 		})
 	}
 }
+
+// The cost of a report once the check is made: the figures, the map of r95
+// and the page.
+func BenchmarkNew(b *testing.B) {
+	for _, dim := range []int{2, 3} {
+		in := scenarioInput(b, dim, nil)
+		b.Run(map[int]string{2: "2-D", 3: "3-D"}[dim], func(b *testing.B) {
+			for b.Loop() {
+				if _, err := New(in); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
