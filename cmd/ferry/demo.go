@@ -58,11 +58,18 @@ landmarks were spoiled). See docs/simulation.md.`,
 			if err != nil {
 				return err
 			}
+			ip := s.DefaultImageParams()
+			stack, plane, err := s.WriteImages(args[0], ip)
+			if err != nil {
+				return err
+			}
 			w := cmd.OutOrStdout()
 			fprintf(w, "Wrote a scenario (seed %d) of %d landmarks, %d cells and %d candidates:\n", seed, len(s.Landmarks), len(s.Cells), len(s.Candidates))
 			for _, p := range []string{files.Landmarks, files.Cells, files.Candidates, files.TruthCells, files.TruthLandmarks, files.Scenario} {
 				fprintf(w, "  %s\n", p)
 			}
+			fprintf(w, "  %s (in vivo stack, %g×%g×%g µm voxels)\n", stack, ip.SourceVoxelUM[0], ip.SourceVoxelUM[1], ip.SourceVoxelUM[2])
+			fprintf(w, "  %s (EM section at target page %d of %g µm pixels)\n", plane, ip.TargetZ, ip.TargetVoxelUM[0])
 			return nil
 		},
 	}

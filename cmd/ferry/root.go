@@ -33,6 +33,8 @@ Results are for research and must be checked by eye before tracing.`,
 		newReportCommand(),
 		newSimulateCommand(),
 		newDemoCommand(),
+		newResampleCommand(),
+		newOverlayCommand(),
 	)
 	return root
 }

@@ -13,6 +13,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/imaging"
 	"ferry/register/outfile"
 	"ferry/register/simulate"
 	"ferry/transform"
@@ -52,6 +53,11 @@ type Outcome struct {
 	Good                       int
 	Statuses                   map[string]int
 	Elapsed                    time.Duration
+	// OverlayMarks is how many mapped cells the overlay marks;
+	// OverlayOutside the share of its pixels the in vivo stack does not
+	// reach.
+	OverlayMarks   int
+	OverlayOutside float64
 	// flaggedVerdicts are the first check's verdicts on the landmarks it
 	// flagged.
 	flaggedVerdicts []register.LandmarkCheck
@@ -158,6 +164,19 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 
+	step("drawing the scenario's images and the overlay")
+	ip := scen.DefaultImageParams()
+	stackPath, planePath, err := scen.WriteImages(o.Dir, ip)
+	if err != nil {
+		return nil, err
+	}
+	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, ip, mapped)
+	if err != nil {
+		return nil, err
+	}
+	f.Extra = append(f.Extra, stackPath, planePath, overlay.path)
+	out.OverlayMarks, out.OverlayOutside = overlay.marks, overlay.outside
+
 	// Against the truth.
 	truth := map[string]simulate.Cell{}
 	for _, c := range scen.Cells {
@@ -186,6 +205,46 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	out.P95Error = quantile(errs, 0.95)
 	out.Elapsed = time.Since(start)
 	return out, nil
+}
+
+type overlayResult struct {
+	path    string
+	marks   int
+	outside float64
+}
+
+// writeOverlay resamples the in vivo stack onto the EM plane through the
+// fitted transform, as ferry overlay does, and marks the mapped cells near
+// the plane.
+func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, ip simulate.ImageParams, mapped []register.Mapped) (overlayResult, error) {
+	stack, err := imaging.ReadStack(stackPath)
+	if err != nil {
+		return overlayResult{}, err
+	}
+	plane, err := imaging.ReadPlane(planePath)
+	if err != nil {
+		return overlayResult{}, err
+	}
+	grid := imaging.GridLike(plane, ip.TargetVoxelUM, ip.TargetZ)
+	resampled, rep, err := imaging.ResampleWithReport(t, stack, ip.SourceVoxelUM, grid, imaging.ResampleOptions{})
+	if err != nil {
+		return overlayResult{}, err
+	}
+	pos := make([]transform.Vec, len(mapped))
+	reach := make([]float64, len(mapped))
+	status := make([]string, len(mapped))
+	for i, m := range mapped {
+		pos[i], reach[i], status[i] = m.Pos, m.R95, m.Status
+	}
+	marks := imaging.PlaneMarks(pos, reach, status, grid)
+	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{})
+	if err := ctx.Err(); err != nil {
+		return overlayResult{}, err
+	}
+	if err := imaging.WritePNG(path, img); err != nil {
+		return overlayResult{}, err
+	}
+	return overlayResult{path: path, marks: len(marks), outside: rep.OutsideShare()}, nil
 }
 
 func sha(path string) string {
@@ -229,6 +288,9 @@ func (o *Outcome) Print(w io.Writer) {
 	fmt.Fprintf(w, "   Against the truth: median error %.2f µm, 95th percentile %.2f µm.\n", o.MedianError, o.P95Error)
 	fmt.Fprintf(w, "   r95_um holds the true position for %d of %d cells (%.0f %%); for %d of %d cells with status ok (%.0f %%).\n",
 		o.CoveredR95, o.Cells, pct(o.CoveredR95, o.Cells), o.CoveredR95Good, o.Good, pct(o.CoveredR95Good, o.Good))
+	if o.OverlayMarks > 0 || len(o.Files.Extra) > 0 {
+		fmt.Fprintf(w, "   overlay.png: the in vivo stack (orange) resampled onto an EM section (sky blue), %d mapped cells near the section marked.\n", o.OverlayMarks)
+	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))
 	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Transform, o.Files.Mapped} {

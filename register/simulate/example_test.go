@@ -46,6 +46,6 @@ func Example() {
 	// 17 landmarks, wrong: [v03 v08]
 	// 50 of 60 imaged cells lie inside the EM block
 	// mirrored: true
-	// field centre lands near (20998, 14000, 2994) µm in EM
+	// field centre lands near (298, 300, 174) µm in EM
 	// inverse recovers it: true
 }

@@ -148,7 +148,7 @@ func DefaultParams() Params {
 		WarpBumps:          4,
 		WarpWidthUM:        150,
 		WarpAmplitudeUM:    [2]float64{4, 8},
-		OffsetUM:           transform.Vec{21000, 14000, 3000},
+		OffsetUM:           transform.Vec{300, 300, 180},
 
 		Vessels:            8,
 		VesselRootRadiusUM: [2]float64{4, 7},
