@@ -222,8 +222,12 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		a.Landmarks[i].LOOError = a.Landmarks[i].LOO.Norm()
 	}
 
-	// The fit the user gets: every landmark they gave.
-	full, err := fitModel(p, model, weights, s)
+	// The fit the user gets: every landmark they gave, with the smoothing
+	// chosen on the clean ones, so that a wrong landmark does not decide how
+	// stiff the spline is and the smoothing reported is the one used.
+	fixed := s
+	fixed.Smoothing = Smoothing{Value: clean.smoothing}
+	full, err := fitModel(p, model, weights, fixed)
 	if err != nil {
 		return nil, err
 	}
