@@ -1,0 +1,50 @@
+package suggest
+
+import (
+	"testing"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/simulate"
+	"ferry/transform"
+)
+
+// scenarioProblem is the scenario's landmark set without its wrong pairs,
+// which the tests know from the truth.
+func scenarioProblem(sc *simulate.Scenario) *register.Problem {
+	p := &register.Problem{Dim: 3}
+	for _, l := range sc.Landmarks {
+		if l.Wrong {
+			continue
+		}
+		p.IDs = append(p.IDs, l.ID)
+		p.Kinds = append(p.Kinds, landmarks.Kind(l.Kind))
+		p.Source = append(p.Source, l.SourceUM)
+		p.Target = append(p.Target, l.TargetUM)
+	}
+	return p
+}
+
+// fitFile assesses p with s and puts the fit into a transform file, as
+// `ferry fit` does.
+func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*transform.File, *register.Assessment) {
+	t.Helper()
+	a, err := register.Assess(p, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	set := &landmarks.PairSet{Path: "landmarks.csv", Dim: p.Dim}
+	f, err := register.TransformFile(set, p, a, s, register.Voxels{}, nil, register.Provenance{Command: "test"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return f, a
+}
+
+func scenarioCells(sc *simulate.Scenario) []transform.Vec {
+	xs := make([]transform.Vec, len(sc.Cells))
+	for i, c := range sc.Cells {
+		xs[i] = c.SourceUM
+	}
+	return xs
+}

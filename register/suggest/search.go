@@ -1,0 +1,387 @@
+package suggest
+
+import (
+	"math"
+	"runtime"
+	"sync"
+	"sync/atomic"
+
+	"ferry/transform"
+)
+
+// score is the objective after adding one candidate: the median and the
+// mean r95 (µm) of the search cells. A candidate that cannot be added has
+// ok false.
+type score struct {
+	median, mean float64
+	ok           bool
+}
+
+// better reports whether a beats b: a lower median, then a lower mean.
+func (a score) better(b score) bool {
+	if !b.ok {
+		return a.ok
+	}
+	if !a.ok {
+		return false
+	}
+	if a.median != b.median {
+		return a.median < b.median
+	}
+	return a.mean < b.mean
+}
+
+// best is the index of the best score, the earliest among equals, or −1.
+func best(scores []score) int {
+	b := -1
+	for j, s := range scores {
+		if s.ok && (b < 0 || s.better(scores[b])) {
+			b = j
+		}
+	}
+	return b
+}
+
+// forCandidates runs work on every candidate index on all cores, each
+// worker with its own scratch of n numbers.
+func forCandidates(count, n int, work func(j int, scratch []float64)) {
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), max(count, 1)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			scratch := make([]float64, n)
+			for {
+				j := int(next.Add(1)) - 1
+				if j >= count {
+					return
+				}
+				work(j, scratch)
+			}
+		}()
+	}
+	wg.Wait()
+}
+
+// parallelRange splits [0, n) into one contiguous range per core.
+func parallelRange(n int, work func(lo, hi int)) {
+	workers := min(runtime.GOMAXPROCS(0), max(1, n/64))
+	var wg sync.WaitGroup
+	chunk := (n + workers - 1) / workers
+	for lo := 0; lo < n; lo += chunk {
+		hi := min(lo+chunk, n)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			work(lo, hi)
+		}()
+	}
+	wg.Wait()
+}
+
+// radiusKnots is the number of knots of a cell's table of r95 against its
+// remaining variance.
+const radiusKnots = 33
+
+// scalarSearch is the greedy search for a predictor whose factors are
+// scalars (the spline, a translation, an affine map). It holds the current
+// covariance between every candidate and every search cell.
+type scalarSearch struct {
+	sp    transform.ScalarCrossPredictor
+	nu    float64
+	cand  []transform.Vec
+	cells int
+	// t[i] and vz[j] are the current variance factors at cell i and
+	// candidate j; c[j·cells+i] their current covariance.
+	t, vz, c []float64
+	// uz[l] is the l-th choice's correction column at the candidates.
+	uz     [][]float64
+	chosen []bool
+	// curve holds each cell's r95 at radiusKnots values of √(σ² + ν)
+	// from √ν to √(σ²₀ + ν): knots[i·radiusKnots + k], with w0[i] the
+	// first and inv[i] the inverse of the step.
+	knots, w0, inv []float64
+	// tiny is the size below which σ²(z) + ν means a location that adds
+	// nothing.
+	tiny float64
+}
+
+func newScalarSearch(sp transform.ScalarCrossPredictor, nu float64, model *cellModel, cells, cand []transform.Vec) *scalarSearch {
+	s := &scalarSearch{sp: sp, nu: nu, cand: cand, cells: len(cells)}
+	s.t = make([]float64, len(cells))
+	s.vz = make([]float64, len(cand))
+	sp.VarianceAll(cells, s.t)
+	sp.VarianceAll(cand, s.vz)
+	s.c = make([]float64, len(cand)*len(cells))
+	sp.CrossAll(cand, cells, s.c)
+	s.chosen = make([]bool, len(cand))
+	top := nu
+	for _, v := range s.vz {
+		top = math.Max(top, v+nu)
+	}
+	s.tiny = 1e-12 * top
+
+	s.knots = make([]float64, len(cells)*radiusKnots)
+	s.w0 = make([]float64, len(cells))
+	s.inv = make([]float64, len(cells))
+	parallelRange(len(cells), func(lo, hi int) {
+		for i := lo; i < hi; i++ {
+			t0 := math.Max(s.t[i], 0)
+			w0, w1 := math.Sqrt(nu), math.Sqrt(t0+nu)
+			s.w0[i] = w0
+			step := (w1 - w0) / (radiusKnots - 1)
+			if step > 0 {
+				s.inv[i] = 1 / step
+			}
+			for k := range radiusKnots {
+				w := w0 + float64(k)*step
+				f := math.Max(w*w-nu, 0)
+				if k == radiusKnots-1 {
+					f = t0
+				}
+				s.knots[i*radiusKnots+k] = model.radius(i, scalarMat(f, model.dim))
+			}
+		}
+	})
+	return s
+}
+
+// radius is cell i's r95 at variance factor t, from its table.
+func (s *scalarSearch) radius(i int, t float64) float64 {
+	x := (math.Sqrt(t+s.nu) - s.w0[i]) * s.inv[i]
+	k := int(x)
+	if k < 0 {
+		k, x = 0, 0
+	}
+	if k >= radiusKnots-1 {
+		return s.knots[i*radiusKnots+radiusKnots-1]
+	}
+	r := s.knots[i*radiusKnots+k : i*radiusKnots+k+2]
+	f := x - float64(k)
+	return r[0] + f*(r[1]-r[0])
+}
+
+// run chooses up to n candidates greedily and returns their indices.
+func (s *scalarSearch) run(n int) []int {
+	var picks []int
+	scores := make([]score, len(s.cand))
+	for range n {
+		forCandidates(len(s.cand), s.cells, func(j int, r []float64) {
+			d := s.vz[j] + s.nu
+			if s.chosen[j] || !(d > s.tiny) {
+				scores[j] = score{}
+				return
+			}
+			inv := 1 / d
+			row := s.c[j*s.cells : (j+1)*s.cells]
+			sum := 0.0
+			for i, c := range row {
+				t := math.Max(s.t[i]-c*c*inv, 0)
+				r[i] = s.radius(i, t)
+				sum += r[i]
+			}
+			scores[j] = score{median: selectMedian(r), mean: sum / float64(s.cells), ok: true}
+		})
+		j := best(scores)
+		if j < 0 {
+			break
+		}
+		s.add(j)
+		picks = append(picks, j)
+	}
+	return picks
+}
+
+// add conditions the covariances on a landmark at candidate j.
+func (s *scalarSearch) add(j int) {
+	d := s.vz[j] + s.nu
+	scale := 1 / math.Sqrt(d)
+	ux := make([]float64, s.cells)
+	row := s.c[j*s.cells : (j+1)*s.cells]
+	for i, c := range row {
+		ux[i] = c * scale
+	}
+	// The current covariance of candidate j with every candidate: the
+	// original one less the corrections of the earlier choices.
+	uz := make([]float64, len(s.cand))
+	s.sp.CrossAll(s.cand[j:j+1], s.cand, uz)
+	for _, prev := range s.uz {
+		pj := prev[j]
+		for k := range uz {
+			uz[k] -= pj * prev[k]
+		}
+	}
+	for k := range uz {
+		uz[k] *= scale
+	}
+	s.uz = append(s.uz, uz)
+	parallelRange(len(s.cand), func(lo, hi int) {
+		for k := lo; k < hi; k++ {
+			a := uz[k]
+			r := s.c[k*s.cells : (k+1)*s.cells]
+			for i := range r {
+				r[i] -= a * ux[i]
+			}
+			s.vz[k] = math.Max(s.vz[k]-a*a, 0)
+		}
+	})
+	for i, u := range ux {
+		s.t[i] = math.Max(s.t[i]-u*u, 0)
+	}
+	s.chosen[j] = true
+}
+
+// blockSearch is the greedy search for a predictor with matrix factors (a
+// rigid motion or a similarity): covariances are computed when needed from
+// CrossFactor and the low-rank corrections of the choices so far.
+type blockSearch struct {
+	cp    transform.CrossPredictor
+	nu    float64
+	dim   int
+	model *cellModel
+	cells []transform.Vec
+	cand  []transform.Vec
+	// fx and fz are the current factors at the cells and candidates;
+	// ux[l] and uz[l] the l-th choice's corrections there.
+	fx, fz []transform.Mat
+	ux, uz [][]transform.Mat
+	chosen []bool
+}
+
+func newBlockSearch(cp transform.CrossPredictor, nu float64, model *cellModel, cells, cand []transform.Vec) *blockSearch {
+	b := &blockSearch{cp: cp, nu: nu, dim: model.dim, model: model, cells: cells, cand: cand}
+	b.fx = make([]transform.Mat, len(cells))
+	b.fz = make([]transform.Mat, len(cand))
+	for i, x := range cells {
+		b.fx[i] = cp.Factor(x)
+	}
+	for j, z := range cand {
+		b.fz[j] = cp.Factor(z)
+	}
+	b.chosen = make([]bool, len(cand))
+	return b
+}
+
+// cross is the current covariance factor between the errors at x, whose
+// corrections are us[l][i], and at candidate j.
+func (b *blockSearch) cross(x transform.Vec, us [][]transform.Mat, i, j int) transform.Mat {
+	c := b.cp.CrossFactor(x, b.cand[j])
+	for l := range b.uz {
+		c = subMat(c, us[l][i].Mul(b.uz[l][j].T()))
+	}
+	return c
+}
+
+func (b *blockSearch) run(n int) []int {
+	var picks []int
+	scores := make([]score, len(b.cand))
+	for range n {
+		forCandidates(len(b.cand), len(b.cells), func(j int, r []float64) {
+			if b.chosen[j] {
+				scores[j] = score{}
+				return
+			}
+			s, ok := invCholT(addNoise(b.fz[j], b.nu, b.dim), b.dim)
+			if !ok {
+				scores[j] = score{}
+				return
+			}
+			sum := 0.0
+			for i, x := range b.cells {
+				u := b.cross(x, b.ux, i, j).Mul(s)
+				f := clampFactor(subMat(b.fx[i], u.Mul(u.T())), b.dim)
+				r[i] = b.model.radius(i, f)
+				sum += r[i]
+			}
+			scores[j] = score{median: selectMedian(r), mean: sum / float64(len(b.cells)), ok: true}
+		})
+		j := best(scores)
+		if j < 0 {
+			break
+		}
+		b.add(j)
+		picks = append(picks, j)
+	}
+	return picks
+}
+
+func (b *blockSearch) add(j int) {
+	s, _ := invCholT(addNoise(b.fz[j], b.nu, b.dim), b.dim)
+	ux := make([]transform.Mat, len(b.cells))
+	uz := make([]transform.Mat, len(b.cand))
+	parallelRange(len(b.cells), func(lo, hi int) {
+		for i := lo; i < hi; i++ {
+			ux[i] = b.cross(b.cells[i], b.ux, i, j).Mul(s)
+		}
+	})
+	parallelRange(len(b.cand), func(lo, hi int) {
+		for k := lo; k < hi; k++ {
+			uz[k] = b.cross(b.cand[k], b.uz, k, j).Mul(s)
+		}
+	})
+	for i := range ux {
+		b.fx[i] = clampFactor(subMat(b.fx[i], ux[i].Mul(ux[i].T())), b.dim)
+	}
+	for k := range uz {
+		b.fz[k] = clampFactor(subMat(b.fz[k], uz[k].Mul(uz[k].T())), b.dim)
+	}
+	b.ux = append(b.ux, ux)
+	b.uz = append(b.uz, uz)
+	b.chosen[j] = true
+}
+
+// selectMedian returns the median of v (the mean of the middle two for an
+// even count), reordering v: Hoare's selection (Hoare 1961, Commun. ACM
+// 4(7):321, "Algorithm 65: Find", cited from memory) with a median-of-three
+// pivot, linear on average.
+func selectMedian(v []float64) float64 {
+	n := len(v)
+	k := (n - 1) / 2
+	lo, hi := 0, n-1
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		// Order v[lo], v[mid], v[hi] and take the middle as the pivot.
+		if v[mid] < v[lo] {
+			v[mid], v[lo] = v[lo], v[mid]
+		}
+		if v[hi] < v[lo] {
+			v[hi], v[lo] = v[lo], v[hi]
+		}
+		if v[hi] < v[mid] {
+			v[hi], v[mid] = v[mid], v[hi]
+		}
+		pivot := v[mid]
+		i, j := lo, hi
+		for i <= j {
+			for v[i] < pivot {
+				i++
+			}
+			for v[j] > pivot {
+				j--
+			}
+			if i <= j {
+				v[i], v[j] = v[j], v[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			lo, hi = k, k
+		}
+	}
+	m := v[k]
+	if n%2 == 1 {
+		return m
+	}
+	next := math.Inf(1)
+	for _, x := range v[k+1:] {
+		next = math.Min(next, x)
+	}
+	return 0.5 * (m + next)
+}

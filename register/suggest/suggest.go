@@ -1,0 +1,386 @@
+package suggest
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+
+	"ferry/register"
+	"ferry/transform"
+)
+
+// DefaultN is the number of landmarks suggested when Options.N is zero.
+const DefaultN = 5
+
+const (
+	// maxPairs bounds the cell–candidate covariances the spline's search
+	// holds (eight bytes each, 128 MiB); beyond it the search evaluates
+	// every k-th cell only.
+	maxPairs = 1 << 24
+	// minSearchCells is the fewest cells a strided search may look at.
+	minSearchCells = 200
+)
+
+// Options steer Suggest.
+type Options struct {
+	// N is how many landmarks to suggest; 0 means DefaultN.
+	N int
+	// Candidates are the source positions (µm) to choose from. Nil means
+	// the default grid over the box of the landmarks and the cells (Grid
+	// with GridTarget).
+	Candidates []transform.Vec
+	// CellSD, when not nil, is the cells' own localisation error (µm per
+	// axis, one standard deviation), as for `ferry map --cell-sd`.
+	CellSD *transform.Vec
+}
+
+// Suggestion is one suggested landmark.
+type Suggestion struct {
+	// Rank is 1 for the first choice.
+	Rank int
+	// Candidate is the index of the location in Result.Candidates.
+	Candidate int
+	// Source is the location (µm) and Target the position the current
+	// fit predicts for it (µm).
+	Source, Target transform.Vec
+	// TargetSD (µm per axis) and TargetR95 (µm) are the uncertainty of
+	// Target as the place of a new landmark's target: the predictive
+	// covariance of the current fit there, picking noise included.
+	TargetSD  transform.Vec
+	TargetR95 float64
+	// Status is the map status of the location (register.StatusOK,
+	// StatusExtrapolated, …).
+	Status string
+	// R95After is the median r95 (µm) of the cells once suggestions 1 to
+	// Rank are added, and Gain (µm) how much this one lowered it.
+	R95After, Gain float64
+	// MeanR95After is the mean r95 (µm) of the cells at the same point.
+	MeanR95After float64
+}
+
+// Result is the outcome of a search.
+type Result struct {
+	Dim int
+	// Model is the transform's model and Smoothing its S, both kept fixed.
+	Model     transform.Kind
+	Smoothing float64
+	// NoiseFactor is ν, the noise of a new landmark in units of the
+	// per-axis scale.
+	NoiseFactor float64
+	// Candidates are the locations searched (µm) and GridSpacing the
+	// spacing of the default grid (µm), 0 when they were given.
+	Candidates  []transform.Vec
+	GridSpacing float64
+	// SearchCells is how many cells the greedy search evaluated: all of
+	// them unless there were too many pairs with the candidates.
+	SearchCells int
+	// R95Before and MeanR95Before are the median and mean r95 (µm) of the
+	// cells now.
+	R95Before, MeanR95Before float64
+	// CellR95Before and CellR95After are each cell's r95 (µm) now and once
+	// all suggestions are added.
+	CellR95Before, CellR95After []float64
+	// Suggestions are in the order chosen; there are fewer than asked for
+	// when the candidates ran out.
+	Suggestions []Suggestion
+}
+
+// Suggest chooses where to pick the next landmarks for the transform file f
+// so that the median r95 of the cells (source positions in µm) shrinks
+// most, greedily (see the package documentation). f must carry its
+// uncertainty model, as fit writes it.
+func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, error) {
+	if f == nil || f.Transform == nil {
+		return nil, errors.New("no transform to suggest landmarks for")
+	}
+	dim := f.Transform.Dim()
+	n := opt.N
+	if n == 0 {
+		n = DefaultN
+	}
+	if n < 0 {
+		return nil, fmt.Errorf("%d landmarks asked for: want a positive number", n)
+	}
+	if len(cells) == 0 {
+		return nil, errors.New("no cells: the suggestions are judged by the cells' uncertainty")
+	}
+	if err := checkPoints("cell", cells, dim); err != nil {
+		return nil, err
+	}
+	u, err := register.ParseUncertaintyModel(f.Uncertainty, dim)
+	if err != nil {
+		return nil, err
+	}
+	cp, err := transform.NewCrossPredictor(f.Transform, u.Source, u.Weights)
+	if err != nil {
+		return nil, fmt.Errorf("uncertainty model: %v", err)
+	}
+	mapper, err := register.NewMapper(f)
+	if err != nil {
+		return nil, err
+	}
+	res := &Result{Dim: dim, Model: f.Transform.Kind(), Smoothing: f.Smoothing, NoiseFactor: u.NoiseFactor}
+	if opt.Candidates != nil {
+		if err := checkPoints("candidate location", opt.Candidates, dim); err != nil {
+			return nil, err
+		}
+		res.Candidates = opt.Candidates
+	} else {
+		lo, hi := Bounds(dim, u.Source, cells)
+		res.Candidates, res.GridSpacing, err = Grid(dim, lo, hi, GridTarget)
+		if err != nil {
+			return nil, err
+		}
+	}
+	if len(res.Candidates) == 0 {
+		return nil, errors.New("no candidate locations to choose from")
+	}
+	if max(len(res.Candidates), 1) > maxPairs/minSearchCells {
+		return nil, fmt.Errorf("%d candidate locations are too many to search (at most %d)", len(res.Candidates), maxPairs/minSearchCells)
+	}
+
+	model := newCellModel(f.Transform, u, cells, opt.CellSD)
+	// A suggestion's target is a new landmark's, with no cell error.
+	targets := &cellModel{dim: dim, scale: u.Scale, nu: u.NoiseFactor, radii: model.radii}
+	search := searchSubset(len(cells), len(res.Candidates))
+	res.SearchCells = len(search)
+	sub := make([]transform.Vec, len(search))
+	for k, i := range search {
+		sub[k] = cells[i]
+	}
+	var chosen []int
+	if sp, ok := transform.AsScalar(cp); ok {
+		s := newScalarSearch(sp, u.NoiseFactor, model.subset(search), sub, res.Candidates)
+		chosen = s.run(n)
+	} else {
+		s := newBlockSearch(cp, u.NoiseFactor, model.subset(search), sub, res.Candidates)
+		chosen = s.run(n)
+	}
+
+	// The radii reported, exactly, over all cells.
+	zs := make([]transform.Vec, len(chosen))
+	for k, j := range chosen {
+		zs[k] = res.Candidates[j]
+	}
+	steps := conditionSequence(cp, u.NoiseFactor, dim, cells, zs)
+	radii := make([]float64, len(cells))
+	for k := range steps {
+		for i := range cells {
+			radii[i] = model.radius(i, steps[k][i])
+		}
+		med, mean := medianOf(radii), meanOf(radii)
+		if k == 0 {
+			res.R95Before, res.MeanR95Before = med, mean
+			res.CellR95Before = append([]float64(nil), radii...)
+			continue
+		}
+		j := chosen[k-1]
+		z := res.Candidates[j]
+		prev := res.R95Before
+		if k > 1 {
+			prev = res.Suggestions[k-2].R95After
+		}
+		mapped := mapper.Map(z, nil)
+		target := targets.covariance(0, cp.Factor(z))
+		sug := Suggestion{
+			Rank: k, Candidate: j, Source: z, Target: mapped.Pos, Status: mapped.Status,
+			TargetR95: targets.radii.Radius(target),
+			R95After:  med, Gain: prev - med, MeanR95After: mean,
+		}
+		for a := range dim {
+			sug.TargetSD[a] = math.Sqrt(math.Max(target[a][a], 0))
+		}
+		res.Suggestions = append(res.Suggestions, sug)
+	}
+	res.CellR95After = radii
+	return res, nil
+}
+
+func checkPoints(what string, ps []transform.Vec, dim int) error {
+	for i, p := range ps {
+		if !p.IsFinite() {
+			return fmt.Errorf("%s %d has a coordinate that is not a finite number", what, i+1)
+		}
+		if dim == 2 && p[2] != 0 {
+			return fmt.Errorf("%s %d has a z coordinate for a 2-D transform", what, i+1)
+		}
+	}
+	return nil
+}
+
+// searchSubset lists the cells the greedy search evaluates: all of them,
+// or every k-th when the cells and candidates make more than maxPairs
+// pairs.
+func searchSubset(cells, candidates int) []int {
+	stride := 1
+	if cells*candidates > maxPairs {
+		stride = (cells*candidates + maxPairs - 1) / maxPairs
+		stride = min(stride, max(1, cells/minSearchCells))
+	}
+	var idx []int
+	for i := 0; i < cells; i += stride {
+		idx = append(idx, i)
+	}
+	return idx
+}
+
+// conditionSequence returns the factor at every point of xs before any of
+// zs is added (step 0) and after each of zs in turn (step k after z₁…z_k):
+// the sequential conditioning of the package documentation, with the
+// low-rank correction C − Σ_l U_l(x)U_l(z)ᵀ kept for the points of zs.
+func conditionSequence(cp transform.CrossPredictor, nu float64, dim int, xs, zs []transform.Vec) [][]transform.Mat {
+	K := len(zs)
+	// c0[l][p]: C(p, z_l) for p in zs followed by xs.
+	all := append(append([]transform.Vec(nil), zs...), xs...)
+	c0 := make([][]transform.Mat, K)
+	if sp, ok := transform.AsScalar(cp); ok && K > 0 {
+		flat := make([]float64, K*len(all))
+		sp.CrossAll(zs, all, flat)
+		for l := range K {
+			c0[l] = make([]transform.Mat, len(all))
+			for p := range all {
+				c0[l][p] = scalarMat(flat[l*len(all)+p], dim)
+			}
+		}
+	} else {
+		for l, z := range zs {
+			c0[l] = make([]transform.Mat, len(all))
+			for p, x := range all {
+				c0[l][p] = cp.CrossFactor(x, z)
+			}
+		}
+	}
+	f := make([]transform.Mat, len(all))
+	if bp, ok := cp.(transform.BatchPredictor); ok {
+		bp.FactorAll(all, f)
+	} else {
+		for p, x := range all {
+			f[p] = cp.Factor(x)
+		}
+	}
+	steps := make([][]transform.Mat, K+1)
+	steps[0] = append([]transform.Mat(nil), f[K:]...)
+	us := make([][]transform.Mat, K)
+	for l := range K {
+		// C_cur(p, z_l) = C(p, z_l) − Σ_{m<l} U_m(p) U_m(z_l)ᵀ.
+		cur := make([]transform.Mat, len(all))
+		for p := range all {
+			c := c0[l][p]
+			for m := range l {
+				c = subMat(c, us[m][p].Mul(us[m][l].T()))
+			}
+			cur[p] = c
+		}
+		s, ok := invCholT(addNoise(f[l], nu, dim), dim)
+		us[l] = make([]transform.Mat, len(all))
+		if ok {
+			for p := range all {
+				us[l][p] = cur[p].Mul(s)
+				f[p] = subMat(f[p], us[l][p].Mul(us[l][p].T()))
+			}
+		}
+		for p := range f {
+			f[p] = clampFactor(f[p], dim)
+		}
+		steps[l+1] = append([]transform.Mat(nil), f[K:]...)
+	}
+	return steps
+}
+
+// scalarMat is c·I on the first dim axes.
+func scalarMat(c float64, dim int) transform.Mat {
+	var m transform.Mat
+	for k := range dim {
+		m[k][k] = c
+	}
+	return m
+}
+
+func subMat(a, b transform.Mat) transform.Mat {
+	for i := range 3 {
+		for j := range 3 {
+			a[i][j] -= b[i][j]
+		}
+	}
+	return a
+}
+
+// addNoise is f + ν·I on the dim axes.
+func addNoise(f transform.Mat, nu float64, dim int) transform.Mat {
+	for k := range dim {
+		f[k][k] += nu
+	}
+	return f
+}
+
+// clampFactor keeps a factor's diagonal from going below zero by rounding
+// (a location picked where the variance is already nil).
+func clampFactor(f transform.Mat, dim int) transform.Mat {
+	for k := range dim {
+		f[k][k] = math.Max(f[k][k], 0)
+	}
+	return f
+}
+
+// invCholT returns L⁻ᵀ for the Cholesky factor L Lᵀ = d of the leading
+// dim×dim block, so that C·L⁻ᵀ·(C·L⁻ᵀ)ᵀ = C d⁻¹ Cᵀ. It reports false when
+// d is not positive definite relative to its own size: a location that
+// carries no information (the variance there and the noise both nil).
+func invCholT(d transform.Mat, dim int) (transform.Mat, bool) {
+	var l transform.Mat
+	scale := 0.0
+	for k := range dim {
+		scale = math.Max(scale, math.Abs(d[k][k]))
+	}
+	if !(scale > 0) {
+		return transform.Mat{}, false
+	}
+	for j := range dim {
+		s := d[j][j]
+		for k := range j {
+			s -= l[j][k] * l[j][k]
+		}
+		if !(s > 1e-12*scale) {
+			return transform.Mat{}, false
+		}
+		l[j][j] = math.Sqrt(s)
+		for i := j + 1; i < dim; i++ {
+			t := d[i][j]
+			for k := range j {
+				t -= l[i][k] * l[j][k]
+			}
+			l[i][j] = t / l[j][j]
+		}
+	}
+	for k := dim; k < 3; k++ {
+		l[k][k] = 1
+	}
+	inv, ok := l.Inverse()
+	if !ok {
+		return transform.Mat{}, false
+	}
+	inv = inv.T()
+	for k := dim; k < 3; k++ {
+		inv[k][k] = 0
+	}
+	return inv, true
+}
+
+// medianOf is the median, the mean of the middle two for an even count.
+func medianOf(v []float64) float64 {
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	if len(s)%2 == 1 {
+		return s[len(s)/2]
+	}
+	return 0.5 * (s[len(s)/2-1] + s[len(s)/2])
+}
+
+func meanOf(v []float64) float64 {
+	sum := 0.0
+	for _, x := range v {
+		sum += x
+	}
+	return sum / float64(len(v))
+}
