@@ -1,17 +1,14 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"io"
 
 	"github.com/spf13/cobra"
 
-	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/outfile"
 	"ferry/register/report"
-	"ferry/transform"
 )
 
 func newReportCommand() *cobra.Command {
@@ -58,12 +55,12 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 			}
 			in.Provenance = register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
 			if mappedPath != "" {
-				if in.Cells, err = readMappedFor(mappedPath, in); err != nil {
+				if err := report.AddMapped(in, mappedPath); err != nil {
 					return err
 				}
 			}
 			if matchesPath != "" {
-				if in.Matches, err = report.ReadMatches(matchesPath); err != nil {
+				if err := report.AddMatches(in, matchesPath); err != nil {
 					return err
 				}
 			}
@@ -119,69 +116,12 @@ func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags
 	return nil
 }
 
-// reportFromTransform reports on a transform file with the check it keeps,
-// drawn at the landmarks of the file it was fitted from.
+// reportFromTransform reports on a transform file with the check it keeps.
 func reportFromTransform(cmd *cobra.Command, in *report.Input, path, transformPath string) error {
 	for _, name := range []string{"model", "smoothing", "exclude", "source-voxel", "target-voxel", "source-sd", "target-sd", "no-mirror"} {
 		if cmd.Flags().Changed(name) {
 			return fmt.Errorf("--%s: the transform file %s fixes it; leave the flag out, or leave out --transform to check the landmarks with it", name, transformPath)
 		}
 	}
-	file, err := transform.ReadFile(transformPath)
-	if err != nil {
-		return err
-	}
-	set, err := landmarks.ReadPairs(path)
-	if err != nil {
-		return err
-	}
-	if file.Landmarks.SHA256 != "" && set.SHA256 != file.Landmarks.SHA256 {
-		return fmt.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out --transform to check this one",
-			path, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256))
-	}
-	if len(file.Summary) == 0 {
-		return fmt.Errorf("%s holds no leave-one-out check: refit it with ferry fit", transformPath)
-	}
-	var check register.CheckJSON
-	if err := json.Unmarshal(file.Summary, &check); err != nil {
-		return fmt.Errorf("%s: leave-one-out check: %v", transformPath, err)
-	}
-	problem, err := register.PrepareLandmarks(set, file.Landmarks.Excluded, register.Voxels{Source: file.SourceVoxel, Target: file.TargetVoxel})
-	if err != nil {
-		return fmt.Errorf("%s: %w", transformPath, err)
-	}
-	at := make(map[string]int, problem.Len())
-	for i, id := range problem.IDs {
-		at[id] = i
-	}
-	in.Source = make([]transform.Vec, len(check.Landmarks))
-	for k, l := range check.Landmarks {
-		i, ok := at[l.ID]
-		if !ok {
-			return fmt.Errorf("%s: landmark %q of the check is not in %s", transformPath, l.ID, path)
-		}
-		in.Source[k] = problem.Source[i]
-	}
-	in.Check, in.Excluded, in.Transform = &check, file.Landmarks.Excluded, file
-	return nil
-}
-
-// readMappedFor reads a mapped table in the voxels of the transform's
-// target side, and checks its dimension.
-func readMappedFor(path string, in *report.Input) ([]report.Cell, error) {
-	cells, dim, err := report.ReadMapped(path, in.Transform.TargetVoxel)
-	if err != nil {
-		return nil, err
-	}
-	if dim != in.Check.Dim {
-		return nil, fmt.Errorf("%s: %d-D mapped cells for %d-D landmarks", path, dim, in.Check.Dim)
-	}
-	return cells, nil
-}
-
-func short(sum string) string {
-	if len(sum) > 12 {
-		return sum[:12] + "…"
-	}
-	return sum
+	return report.FromTransform(in, path, transformPath)
 }

@@ -15,6 +15,7 @@ import (
 	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/register/outfile"
+	"ferry/register/report"
 	"ferry/register/simulate"
 	"ferry/transform"
 )
@@ -35,8 +36,8 @@ type Options struct {
 // Files are the paths the demo wrote.
 type Files struct {
 	simulate.Files
-	Transform, Mapped string
-	Extra             []string
+	Transform, Mapped, Matches string
+	Extra                      []string
 }
 
 // Outcome is what the demo found, set against the truth.
@@ -177,6 +178,13 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	f.Extra = append(f.Extra, stackPath, planePath, overlay.path)
 	out.OverlayMarks, out.OverlayOutside = overlay.marks, overlay.outside
 
+	step("writing the quality report")
+	reportPath := filepath.Join(o.Dir, "report.html")
+	if err := writeReport(ctx, reportPath, f); err != nil {
+		return nil, err
+	}
+	f.Extra = append(f.Extra, reportPath)
+
 	// Against the truth.
 	truth := map[string]simulate.Cell{}
 	for _, c := range scen.Cells {
@@ -245,6 +253,37 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 		return overlayResult{}, err
 	}
 	return overlayResult{path: path, marks: len(marks), outside: rep.OutsideShare()}, nil
+}
+
+// writeReport writes the quality report from the files the demo wrote, as
+// ferry report --transform --mapped does.
+func writeReport(ctx context.Context, path string, f *Files) error {
+	in := &report.Input{}
+	if err := report.FromTransform(in, f.Landmarks, f.Transform); err != nil {
+		return err
+	}
+	if err := report.AddMapped(in, f.Mapped); err != nil {
+		return err
+	}
+	if f.Matches != "" {
+		if err := report.AddMatches(in, f.Matches); err != nil {
+			return err
+		}
+	}
+	for _, p := range []string{f.Landmarks, f.Transform, f.Mapped, f.Matches} {
+		if p != "" {
+			in.Provenance.Inputs = append(in.Provenance.Inputs, register.Input{Path: p, SHA256: sha(p)})
+		}
+	}
+	in.Provenance.Command = "report"
+	page, err := report.New(in)
+	if err != nil {
+		return err
+	}
+	return outfile.Write(ctx, path, func(w io.Writer) error {
+		_, err := page.WriteTo(w)
+		return err
+	})
 }
 
 func sha(path string) string {

@@ -1,0 +1,85 @@
+package report
+
+import (
+	"encoding/json"
+	"fmt"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/transform"
+)
+
+// FromTransform fills in the check, landmarks and transform of a report on
+// a transform file: the check it keeps, drawn at the landmarks of the file
+// it was fitted from, which must be the file at landmarkPath (by SHA-256).
+func FromTransform(in *Input, landmarkPath, transformPath string) error {
+	file, err := transform.ReadFile(transformPath)
+	if err != nil {
+		return err
+	}
+	set, err := landmarks.ReadPairs(landmarkPath)
+	if err != nil {
+		return err
+	}
+	if file.Landmarks.SHA256 != "" && set.SHA256 != file.Landmarks.SHA256 {
+		return fmt.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out --transform to check this one",
+			landmarkPath, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256))
+	}
+	if len(file.Summary) == 0 {
+		return fmt.Errorf("%s holds no leave-one-out check: refit it with ferry fit", transformPath)
+	}
+	var check register.CheckJSON
+	if err := json.Unmarshal(file.Summary, &check); err != nil {
+		return fmt.Errorf("%s: leave-one-out check: %v", transformPath, err)
+	}
+	problem, err := register.PrepareLandmarks(set, file.Landmarks.Excluded, register.Voxels{Source: file.SourceVoxel, Target: file.TargetVoxel})
+	if err != nil {
+		return fmt.Errorf("%s: %w", transformPath, err)
+	}
+	at := make(map[string]int, problem.Len())
+	for i, id := range problem.IDs {
+		at[id] = i
+	}
+	in.Source = make([]transform.Vec, len(check.Landmarks))
+	for k, l := range check.Landmarks {
+		i, ok := at[l.ID]
+		if !ok {
+			return fmt.Errorf("%s: landmark %q of the check is not in %s", transformPath, l.ID, landmarkPath)
+		}
+		in.Source[k] = problem.Source[i]
+	}
+	in.LandmarkFile, in.TransformFile = landmarkPath, transformPath
+	in.Check, in.Excluded, in.Transform = &check, file.Landmarks.Excluded, file
+	return nil
+}
+
+// AddMapped reads a map output for the report, in the voxels of the
+// transform's target side, and checks its dimension.
+func AddMapped(in *Input, path string) error {
+	cells, dim, err := ReadMapped(path, in.Transform.TargetVoxel)
+	if err != nil {
+		return err
+	}
+	if dim != in.Check.Dim {
+		return fmt.Errorf("%s: %d-D mapped cells for %d-D landmarks", path, dim, in.Check.Dim)
+	}
+	in.Cells, in.CellsFile = cells, path
+	return nil
+}
+
+// AddMatches reads a match output for the report.
+func AddMatches(in *Input, path string) error {
+	m, err := ReadMatches(path)
+	if err != nil {
+		return err
+	}
+	in.Matches, in.MatchesFile = m, path
+	return nil
+}
+
+func short(sum string) string {
+	if len(sum) > 12 {
+		return sum[:12] + "…"
+	}
+	return sum
+}
