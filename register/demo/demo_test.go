@@ -1,0 +1,48 @@
+package demo
+
+import (
+	"bytes"
+	"context"
+	"os"
+	"slices"
+	"strings"
+	"testing"
+)
+
+// The whole job on the built-in scenario: the check finds exactly the
+// landmarks the simulator spoiled, the mapped cells are within a few
+// micrometres of the truth, r95 holds about 95 % of the cells inside the
+// landmarks' hull, every file is written, and the summary says so.
+func TestDemo(t *testing.T) {
+	dir := t.TempDir()
+	out, err := Run(context.Background(), Options{Dir: dir, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	wrong := slices.Clone(out.Wrong)
+	slices.Sort(wrong)
+	flagged := slices.Clone(out.Flagged)
+	slices.Sort(flagged)
+	if !slices.Equal(wrong, flagged) {
+		t.Errorf("flagged %v, the simulator spoiled %v", flagged, wrong)
+	}
+	if out.MedianError > 4 {
+		t.Errorf("median error against the truth %.2f µm", out.MedianError)
+	}
+	if share := float64(out.CoveredR95Good) / float64(out.Good); share < 0.90 || share > 0.99 {
+		t.Errorf("r95 holds %.3f of the cells with status ok", share)
+	}
+	files := []string{out.Files.Landmarks, out.Files.Cells, out.Files.Candidates, out.Files.Transform, out.Files.Mapped}
+	for _, p := range append(files, out.Files.Extra...) {
+		if info, err := os.Stat(p); err != nil || info.Size() == 0 {
+			t.Errorf("%s: not written (%v)", p, err)
+		}
+	}
+	var b bytes.Buffer
+	out.Print(&b)
+	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Results are for research"} {
+		if !strings.Contains(b.String(), want) {
+			t.Errorf("summary lacks %q:\n%s", want, b.String())
+		}
+	}
+}
