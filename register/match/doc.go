@@ -57,17 +57,19 @@
 //
 // The cells' odds are not independent: a candidate can be the counterpart of
 // one cell only. The marginal posterior probability of each option under
-// that constraint is computed by belief propagation on the bipartite graph
-// of cells and candidates (Williams & Lau 2014, IEEE Trans. Aerospace and
-// Electronic Systems 50(4):2942–2959), exact where the graph has no cycles
-// and close to exact on the sparse graphs met here. The assignment is then
-// the one that maximises the total log posterior of the choices, each cell
-// having a no-match column of its own: a rectangular linear assignment
-// problem, solved on each connected component of the sparse graph by the
-// shortest augmenting path method of Jonker & Volgenant (1987, Computing
-// 38:325–340) in the rectangular form of Crouse (2016, IEEE Trans.
-// Aerospace and Electronic Systems 52(4):1679–1696), with Dijkstra's search
-// over the sparse edges. gonum has no assignment solver.
+// that constraint is summed exactly over all joint assignments on each
+// connected component of the graph of cells and candidates with at most
+// 65 536 of them, which is nearly every component where cells are sparse
+// among the candidates, and computed by belief propagation on the others
+// (Williams & Lau 2014, IEEE Trans. Aerospace and Electronic Systems
+// 50(4):2942–2959), which is exact on components without cycles. The
+// assignment is then the one that maximises the total log posterior of the
+// choices, each cell having a no-match column of its own: a rectangular
+// linear assignment problem, solved on each connected component of the
+// sparse graph by the shortest augmenting path method of Jonker & Volgenant
+// (1987, Computing 38:325–340) in the rectangular form of Crouse (2016,
+// IEEE Trans. Aerospace and Electronic Systems 52(4):1679–1696), with
+// Dijkstra's search over the sparse edges. gonum has no assignment solver.
 //
 // # Status
 //
@@ -79,8 +81,8 @@
 //     at most a nineteenth of the match; and the cell's mapping is not
 //     folded.
 //   - StatusAmbiguous: any other assignment; the runner-up (the likeliest
-//     other candidate) is named beside it, and PNone says how likely no
-//     counterpart is.
+//     other candidate, when one has a posterior probability of at least
+//     10⁻⁴) is named beside it, and PNone says how likely no counterpart is.
 //
 // DistanceUM is the distance to the assigned candidate or, for an unmatched
 // cell, to the nearest candidate.

@@ -25,22 +25,41 @@ type volume struct {
 func newVolume(pos []transform.Vec, dim int, margin float64) volume {
 	v := volume{dim: dim, dirs: directions(dim)}
 	v.reach = make([]float64, len(v.dirs))
-	// One pass over the candidates per direction, the directions shared
-	// among the cores: 642 directions × 200 000 candidates is 10⁸ dot
-	// products.
-	workers := max(1, min(runtime.GOMAXPROCS(0), len(v.dirs)))
+	xs := make([]float64, len(pos))
+	ys := make([]float64, len(pos))
+	zs := make([]float64, len(pos))
+	for i, p := range pos {
+		xs[i], ys[i], zs[i] = p[0], p[1], p[2]
+	}
+	// 642 directions × 200 000 candidates is 10⁸ dot products: the
+	// directions are shared among the cores, a block of them per pass over
+	// the coordinates.
+	const block = 8
+	nBlocks := (len(v.dirs) + block - 1) / block
+	workers := max(1, min(runtime.GOMAXPROCS(0), nBlocks))
 	var wg sync.WaitGroup
 	for w := range workers {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			for k := w; k < len(v.dirs); k += workers {
-				d := v.dirs[k]
-				far := math.Inf(-1)
-				for _, p := range pos {
-					far = math.Max(far, d.Dot(p))
+			for blk := w; blk < nBlocks; blk += workers {
+				lo, hi := blk*block, min((blk+1)*block, len(v.dirs))
+				var far [block]float64
+				for k := range far {
+					far[k] = math.Inf(-1)
 				}
-				v.reach[k] = far + margin
+				dirs := v.dirs[lo:hi]
+				for i := range xs {
+					x, y, z := xs[i], ys[i], zs[i]
+					for k, d := range dirs {
+						if t := d[0]*x + d[1]*y + d[2]*z; t > far[k] {
+							far[k] = t
+						}
+					}
+				}
+				for k := range dirs {
+					v.reach[lo+k] = far[k] + margin
+				}
 			}
 		}()
 	}

@@ -60,6 +60,9 @@ const (
 	// minEdgeP drops options of negligible posterior from the assignment;
 	// the private no-match option keeps every cell assignable.
 	minEdgeP = 1e-9
+	// minRunnerUpP is the least posterior probability of a runner-up worth
+	// naming: one that shows in four decimals.
+	minRunnerUpP = 1e-4
 	// minBallShare bounds the edge correction of the density.
 	minBallShare = 1e-3
 	// priorMean and priorWeight make the Beta(18, 2) prior on the share of
@@ -113,8 +116,8 @@ type Result struct {
 	// it is −1, to the nearest candidate; NaN when there are none.
 	DistanceUM float64
 	// RunnerUp is the index of the likeliest candidate other than
-	// Candidate, −1 when there is none with a probability above 10⁻⁹, and
-	// PRunnerUp its posterior probability.
+	// Candidate, −1 when there is none with a probability of at least
+	// 10⁻⁴, and PRunnerUp its posterior probability (0 when none).
 	RunnerUp  int
 	PRunnerUp float64
 	Status    string
@@ -241,7 +244,7 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 				out.PMatch = p
 				continue
 			}
-			if p > bestP && p > minEdgeP {
+			if p > bestP && p >= minRunnerUpP {
 				best, bestP = rank, p
 			}
 		}

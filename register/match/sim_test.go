@@ -23,7 +23,7 @@ type fitted struct {
 }
 
 func fitScenario(t testing.TB, p simulate.Params, seed uint64, model transform.Kind) fitted {
-	return fitScenarioWith(t, p, seed, register.Settings{Model: model})
+	return fitScenarioWith(t, p, seed, register.Settings{Model: model, Smoothing: register.Smoothing{Auto: true}})
 }
 
 func fitScenarioWith(t testing.TB, p simulate.Params, seed uint64, base register.Settings) fitted {

@@ -137,9 +137,12 @@ func Summarise(cells, cands *landmarks.PointSet, res []Result) (Summary, error) 
 }
 
 // String is the summary in one line.
-func (s Summary) String() string {
+func (s Summary) String() string { return fmt.Sprintf("%d cells: %s", s.Cells, s.Counts()) }
+
+// Counts are the counts by status in a few words.
+func (s Summary) Counts() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "%d cells: %d matched, %d ambiguous, %d unmatched", s.Cells, s.Matched, s.Ambiguous, s.Unmatched)
+	fmt.Fprintf(&b, "%d matched, %d ambiguous, %d unmatched", s.Matched, s.Ambiguous, s.Unmatched)
 	if s.Outside > 0 {
 		fmt.Fprintf(&b, " (%d outside the candidates' volume)", s.Outside)
 	}

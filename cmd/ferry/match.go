@@ -1,0 +1,144 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"ferry/landmarks"
+	"ferry/register"
+	"ferry/register/match"
+	"ferry/register/outfile"
+	"ferry/transform"
+)
+
+// maxAmbiguousListed bounds the ambiguous cells printed; the output file
+// holds them all.
+const maxAmbiguousListed = 20
+
+func newMatchCommand() *cobra.Command {
+	var out, cellSD, prior string
+	var candidateSD, minP float64
+	cmd := &cobra.Command{
+		Use:   "match TRANSFORM CELLS CANDIDATES -o MATCHES.csv",
+		Short: "Assign each mapped cell to at most one candidate, one to one",
+		Long: `match maps each cell through the transform with its uncertainty and assigns it
+to at most one of the candidates (EM nuclei, say, in target space), no
+candidate to two cells, with the posterior probability of the choice. A cell is
+matched where the choice is clear (p_match ≥ --min-p), ambiguous where it is
+not (the runner-up is named), and unmatched where it most probably has no
+counterpart among the candidates, as for cells mapped outside the candidates'
+volume. distance_um is to the assigned candidate, or for an unmatched cell to
+the nearest one. See docs/matching.md for the method.`,
+		Args: cobra.ExactArgs(3),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := requireOutput(out, args...); err != nil {
+				return err
+			}
+			if !(candidateSD > 0) || math.IsInf(candidateSD, 0) {
+				return fmt.Errorf("--candidate-sd: want a positive number of micrometres, got %v", candidateSD)
+			}
+			if !(minP > 0.5 && minP < 1) {
+				return fmt.Errorf("--min-p: want a probability between 0.5 and 1, got %v", minP)
+			}
+			share, err := parsePrior(prior)
+			if err != nil {
+				return err
+			}
+			file, err := transform.ReadFile(args[0])
+			if err != nil {
+				return err
+			}
+			cells, pos, err := register.ReadCells(args[1], "cells", file, false)
+			if err != nil {
+				return err
+			}
+			cands, candPos, err := register.ReadCells(args[2], "candidates", file, true)
+			if err != nil {
+				return err
+			}
+			sd, err := optionalTriple("--cell-sd", cellSD, cells.Dim)
+			if err != nil {
+				return err
+			}
+			mapper, err := register.NewMapper(file)
+			if err != nil {
+				return fmt.Errorf("%s: %w", args[0], err)
+			}
+			res, err := match.Match(mapper, pos, sd, candPos, match.Options{
+				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
+				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands),
+			})
+			if err != nil {
+				return err
+			}
+			summary, err := match.Summarise(cells, cands, res)
+			if err != nil {
+				return err
+			}
+			inputs, err := inputsOf(args...)
+			if err != nil {
+				return err
+			}
+			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
+			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+				return match.WriteMatches(w, prov, cells, cands, res)
+			}); err != nil {
+				return err
+			}
+			w := cmd.OutOrStdout()
+			how := "estimated from the cells"
+			if share != 0 {
+				how = "as given"
+			}
+			fmt.Fprintf(w, "Matched %d cells against %d candidates: %s. Share of cells with a counterpart: %.3f (%s).\n",
+				summary.Cells, len(cands.Points), summary.Counts(), summary.PriorCounterpart, how)
+			if n := len(summary.AmbiguousCells); n > 0 {
+				fmt.Fprintln(w, "Ambiguous, to be checked by eye:")
+				listed := summary
+				if n > maxAmbiguousListed {
+					listed.AmbiguousCells = listed.AmbiguousCells[:maxAmbiguousListed]
+				}
+				if err := listed.WriteAmbiguous(w); err != nil {
+					return err
+				}
+				if n > maxAmbiguousListed {
+					fmt.Fprintf(w, "  and %d more (status ambiguous in %s)\n", n-maxAmbiguousListed, out)
+				}
+			}
+			fmt.Fprintf(w, "Wrote %s\n", out)
+			return nil
+		},
+	}
+	fl := cmd.Flags()
+	fl.StringVarP(&out, "output", "o", "", "matches to write (CSV)")
+	fl.StringVar(&cellSD, "cell-sd", "", "localisation error of the cells' own coordinates X,Y,Z in µm (one standard deviation)")
+	fl.Float64Var(&candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
+	fl.StringVar(&prior, "prior-counterpart", "auto", "share of cells inside the candidates' volume that have a counterpart there, in (0, 1), or auto to estimate it")
+	fl.Float64Var(&minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
+	return cmd
+}
+
+// parsePrior reads --prior-counterpart: "auto" (zero) or a probability.
+func parsePrior(s string) (float64, error) {
+	if strings.EqualFold(strings.TrimSpace(s), "auto") {
+		return 0, nil
+	}
+	p, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	if err != nil || !(p > 0 && p < 1) {
+		return 0, fmt.Errorf("--prior-counterpart: want auto or a probability between 0 and 1, got %q", s)
+	}
+	return p, nil
+}
+
+func pointIDs(set *landmarks.PointSet) []string {
+	ids := make([]string, len(set.Points))
+	for i, p := range set.Points {
+		ids[i] = p.ID
+	}
+	return ids
+}
