@@ -5,13 +5,15 @@ import (
 	"runtime"
 	"sync"
 
+	"gonum.org/v1/gonum/mat"
+
 	"ferry/transform"
 )
 
 // volume is the candidates' convex hull, grown outward by a margin,
 // approximated from outside by its support planes in a fixed set of
-// directions: the same construction as the landmarks' hull of package
-// register. It stands for the volume in which candidates were looked for.
+// directions, as the landmarks' hull of package register is, with the
+// coordinate and principal axes added. It stands for the volume in which candidates were looked for.
 //
 // The margin is half the candidates' typical nearest-neighbour spacing: the
 // outermost candidates lie, on average, that far inside the edge of the
@@ -23,7 +25,15 @@ type volume struct {
 }
 
 func newVolume(pos []transform.Vec, dim int, margin float64) volume {
-	v := volume{dim: dim, dirs: directions(dim)}
+	// Evenly spread directions leave the planes of a box's faces a few
+	// degrees off, which puts the middle of a 500 µm face some 20 µm too
+	// far out; the coordinate axes and the principal axes of the candidates
+	// catch the faces of a block cut square to either.
+	dirs := directions(dim)
+	for _, axis := range append(coordinateAxes(dim), principalAxes(pos, dim)...) {
+		dirs = append(dirs, axis, axis.Scale(-1))
+	}
+	v := volume{dim: dim, dirs: dirs}
 	v.reach = make([]float64, len(v.dirs))
 	xs := make([]float64, len(pos))
 	ys := make([]float64, len(pos))
@@ -65,6 +75,52 @@ func newVolume(pos []transform.Vec, dim int, margin float64) volume {
 	}
 	wg.Wait()
 	return v
+}
+
+func coordinateAxes(dim int) []transform.Vec {
+	axes := make([]transform.Vec, dim)
+	for k := range dim {
+		axes[k][k] = 1
+	}
+	return axes
+}
+
+// principalAxes are the eigenvectors of the covariance of pos, none when it
+// cannot be factorised.
+func principalAxes(pos []transform.Vec, dim int) []transform.Vec {
+	if len(pos) < 2 {
+		return nil
+	}
+	var mean transform.Vec
+	for _, p := range pos {
+		mean = mean.Add(p)
+	}
+	mean = mean.Scale(1 / float64(len(pos)))
+	cov := mat.NewSymDense(dim, nil)
+	for _, p := range pos {
+		d := p.Sub(mean)
+		for i := range dim {
+			for j := i; j < dim; j++ {
+				cov.SetSym(i, j, cov.At(i, j)+d[i]*d[j])
+			}
+		}
+	}
+	var eig mat.EigenSym
+	if !eig.Factorize(cov, true) {
+		return nil
+	}
+	var vecs mat.Dense
+	eig.VectorsTo(&vecs)
+	axes := make([]transform.Vec, dim)
+	for k := range dim {
+		for i := range dim {
+			axes[k][i] = vecs.At(i, k)
+		}
+		if n := axes[k].Norm(); n > 0 {
+			axes[k] = axes[k].Scale(1 / n)
+		}
+	}
+	return axes
 }
 
 // directions spreads unit vectors evenly: on the circle in 2-D, on the

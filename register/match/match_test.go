@@ -3,6 +3,7 @@ package match
 import (
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 	"strings"
 	"testing"
@@ -285,7 +286,8 @@ func TestMatchRefusesFlatCovarianceIn3D(t *testing.T) {
 }
 
 // TestMatchIgnoresRowOrder: with ids given, shuffling the cells and the
-// candidates changes nothing but the order of the results.
+// candidates changes nothing but the order of the results, and neither does
+// the number of cores.
 func TestMatchIgnoresRowOrder(t *testing.T) {
 	sc, err := simulate.Generate(simulate.SmallParams(), 5)
 	if err != nil {
@@ -306,7 +308,10 @@ func TestMatchIgnoresRowOrder(t *testing.T) {
 		shuffled.Candidates[j] = sc.Candidates[p]
 	}
 	_, again := exactMapRunWithIDs(t, &shuffled)
+	// And on one core instead of all of them.
+	procs := runtime.GOMAXPROCS(1)
 	_, orig := exactMapRunWithIDs(t, sc)
+	runtime.GOMAXPROCS(procs)
 	for i, p := range cellPerm {
 		a, b := again[i], orig[p]
 		id := func(s *simulate.Scenario, j int) string {
