@@ -39,9 +39,9 @@
 //   - Volume and c. The candidates' volume is their convex hull grown by
 //     half their median nearest-neighbour spacing (the outermost candidates
 //     lie about that far inside the searched volume), held as support
-//     planes in 642 directions and along the coordinate and principal axes. c = Φ(h/s_n), h the signed depth of μ below
-//     the nearest face (negative outside) and s_n the standard deviation of
-//     S across it. A cell outside the volume by more than its own 95 %
+//     planes in 642 directions and along the coordinate and principal
+//     axes. c = Φ(h/s_n), h the signed depth of μ below the nearest face
+//     (negative outside) and s_n the standard deviation of S across it. A cell outside the volume by more than its own 95 %
 //     radius (register.Mapped.R95) gets c = 0: it is unmatched whatever
 //     lies nearest, as are cells with no candidate in reach. Cells imaged in
 //     vivo beyond the EM block are common; they must not be matched to
