@@ -1,15 +1,15 @@
 package imaging
 
 import (
-	"bufio"
+	"context"
 	"encoding/binary"
-	"errors"
 	"fmt"
 	"image"
 	"image/png"
 	"io"
 	"os"
-	"path/filepath"
+
+	"ferry/register/outfile"
 )
 
 // WriteTIFF writes s as a classic little-endian multi-page TIFF: one
@@ -33,9 +33,8 @@ func WriteTIFF(path string, s *Stack) error {
 	if total > 1<<32-1 {
 		return fmt.Errorf("imaging: %s: %d bytes exceed the 4 GiB of a classic TIFF; write a folder of planes instead", path, total)
 	}
-	return writeAtomic(path, func(w io.Writer) error {
+	return writeAtomic(path, func(bw io.Writer) error {
 		le := binary.LittleEndian
-		bw := bufio.NewWriterSize(w, 1<<16)
 		header := []byte{'I', 'I', 42, 0, 0, 0, 0, 0}
 		le.PutUint32(header[4:], uint32(8+padded)) // the first directory follows page 0
 		if _, err := bw.Write(header); err != nil {
@@ -93,7 +92,7 @@ func WriteTIFF(path string, s *Stack) error {
 				return err
 			}
 		}
-		return bw.Flush()
+		return nil
 	})
 }
 
@@ -106,11 +105,7 @@ func WritePNG(path string, img image.Image) error {
 	}
 	enc := png.Encoder{CompressionLevel: png.DefaultCompression}
 	return writeAtomic(path, func(w io.Writer) error {
-		bw := bufio.NewWriterSize(w, 1<<16)
-		if err := enc.Encode(bw, img); err != nil {
-			return err
-		}
-		return bw.Flush()
+		return enc.Encode(w, img)
 	})
 }
 
@@ -130,41 +125,10 @@ func refuseOwnInput(path, input string) error {
 	return nil
 }
 
-// writeAtomic writes a file through fill into a temporary file next to path
-// and renames it into place once it is complete, so that readers never see
-// a partial file and a failure leaves nothing behind.
-func writeAtomic(path string, fill func(io.Writer) error) (err error) {
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	if info, statErr := os.Stat(path); statErr == nil && info.IsDir() {
-		return fmt.Errorf("imaging: %s: is a folder", path)
-	}
-	tmp, err := os.CreateTemp(dir, "."+base+".*.partial")
-	if err != nil {
-		return fmt.Errorf("imaging: %s: %w", path, err)
-	}
-	defer func() {
-		if err != nil {
-			tmp.Close()
-			os.Remove(tmp.Name())
-		}
-	}()
-	if err := fill(tmp); err != nil {
-		return fmt.Errorf("imaging: %s: writing: %w", path, err)
-	}
-	if err := tmp.Chmod(0o644); err != nil {
-		return fmt.Errorf("imaging: %s: %w", path, err)
-	}
-	if err := tmp.Sync(); err != nil && !errors.Is(err, os.ErrInvalid) {
-		return fmt.Errorf("imaging: %s: %w", path, err)
-	}
-	if err := tmp.Close(); err != nil {
-		return fmt.Errorf("imaging: %s: %w", path, err)
-	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
-		return fmt.Errorf("imaging: %s: %w", path, err)
-	}
-	return nil
+// writeAtomic writes a file through fill, whole or not at all, by the one
+// output path every ferry command takes (register/outfile), which buffers
+// fill's writes. A write of an image takes well under a second, so it is not
+// given a context: a caller checks for an interrupt before it starts.
+func writeAtomic(path string, fill func(io.Writer) error) error {
+	return outfile.Write(context.Background(), path, fill)
 }

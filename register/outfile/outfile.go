@@ -20,6 +20,9 @@ const tempPattern = ".ferry-partial-*"
 // renamed onto path. On any error, or when ctx is cancelled (an interrupt),
 // the temporary file is removed and path is left as it was.
 func Write(ctx context.Context, path string, fill func(w io.Writer) error) (err error) {
+	if info, err := os.Stat(path); err == nil && info.IsDir() {
+		return fmt.Errorf("cannot write %s: is a folder", path)
+	}
 	dir := filepath.Dir(path)
 	tmp, err := os.CreateTemp(dir, tempPattern)
 	if err != nil {
@@ -33,7 +36,7 @@ func Write(ctx context.Context, path string, fill func(w io.Writer) error) (err 
 	}()
 	buf := bufio.NewWriterSize(tmp, 1<<16)
 	if err := fill(buf); err != nil {
-		return err
+		return fmt.Errorf("%s not written: %w", path, err)
 	}
 	if err := buf.Flush(); err != nil {
 		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))

@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -85,5 +86,38 @@ func TestNotAnInput(t *testing.T) {
 		if (err != nil) != tc.wantErr {
 			t.Errorf("NotAnInput(%s) = %v, want error %v", tc.out, err, tc.wantErr)
 		}
+	}
+}
+
+func TestWriteErrorsNameThePath(t *testing.T) {
+	dir := t.TempDir()
+	folder := filepath.Join(dir, "sub")
+	if err := os.Mkdir(folder, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	boom := errors.New("boom")
+	tests := []struct {
+		name, path string
+		fill       func(w io.Writer) error
+		want       string
+	}{
+		{"over a folder", folder, func(io.Writer) error { return nil }, "is a folder"},
+		{"fill fails", filepath.Join(dir, "out.csv"), func(io.Writer) error { return boom }, "boom"},
+		{"missing folder", filepath.Join(dir, "no", "out.csv"), func(io.Writer) error { return nil }, "no such file"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			err := Write(context.Background(), tc.path, tc.fill)
+			if err == nil {
+				t.Fatal("Write succeeded, want an error")
+			}
+			if msg := err.Error(); !strings.Contains(msg, tc.path) || !strings.Contains(msg, tc.want) {
+				t.Errorf("error %q: want one naming %s and saying %q", msg, tc.path, tc.want)
+			}
+		})
+	}
+	entries, _ := os.ReadDir(dir)
+	if len(entries) != 1 {
+		t.Errorf("folder holds %v, want only sub", entries)
 	}
 }

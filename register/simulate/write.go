@@ -2,6 +2,7 @@ package simulate
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
@@ -9,6 +10,7 @@ import (
 	"path/filepath"
 	"strconv"
 
+	"ferry/register/outfile"
 	"ferry/transform"
 )
 
@@ -39,8 +41,7 @@ type Files struct {
 }
 
 // Write writes the scenario's files into dir, creating it if need be. Each
-// file is written whole or not at all: into a temporary file in dir that is
-// then renamed over the final name.
+// file is written whole or not at all (see register/outfile).
 func (s *Scenario) Write(dir string) (Files, error) {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return Files{}, fmt.Errorf("simulate: %w", err)
@@ -98,32 +99,12 @@ func (s *Scenario) Encode() (map[string][]byte, error) {
 	return out, nil
 }
 
+// writeAtomic writes one file of the scenario whole or not at all, by the
+// one output path every ferry command takes. Generating a scenario is not
+// interruptible, so neither is writing it.
 func writeAtomic(path string, data []byte) error {
-	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
-	if err != nil {
-		return fmt.Errorf("simulate: writing %s: %w", path, err)
-	}
-	fail := func(err error) error {
-		tmp.Close()
-		os.Remove(tmp.Name())
-		return fmt.Errorf("simulate: writing %s: %w", path, err)
-	}
-	if _, err := tmp.Write(data); err != nil {
-		return fail(err)
-	}
-	if err := tmp.Chmod(0o644); err != nil {
-		return fail(err)
-	}
-	if err := tmp.Sync(); err != nil {
-		return fail(err)
-	}
-	if err := tmp.Close(); err != nil {
-		os.Remove(tmp.Name())
-		return fmt.Errorf("simulate: writing %s: %w", path, err)
-	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
-		os.Remove(tmp.Name())
-		return fmt.Errorf("simulate: writing %s: %w", path, err)
+	if err := outfile.WriteBytes(context.Background(), path, data); err != nil {
+		return fmt.Errorf("simulate: %w", err)
 	}
 	return nil
 }
