@@ -258,17 +258,32 @@ func centroidOf(points []transform.Vec) transform.Vec {
 
 // supportHull is the landmarks' convex hull approximated from outside by
 // its support planes in a fixed set of directions: a point is inside when no
-// direction sees it beyond the farthest landmark. With 642 directions in
-// 3-D (160 in 2-D) the approximation exceeds the true hull by a thin margin
-// near its edges only, and costs one dot product a direction.
+// direction sees it beyond the farthest landmark. With 642 directions and
+// the six axes in 3-D (160 in 2-D) the approximation exceeds the true hull by a thin margin
+// near its edges only.
+//
+// Testing every direction for every point would cost more than the rest of
+// mapping, so the landmarks' bounding box is cut into a grid of boxes
+// classified once: a box whose corners are all inside lies inside (the
+// polytope is convex), a box whose corners are all beyond one plane lies
+// outside, and only points in the boxes between are tested plane by plane.
 type supportHull struct {
+	dim   int
 	dirs  []transform.Vec
 	reach []float64
 	tol   float64
+	// The classification grid: box (i, j, k) spans lo + (i, j, k)·step to
+	// one step more; class is +1 inside, −1 outside, 0 mixed.
+	lo, step transform.Vec
+	n        [3]int
+	class    []int8
 }
 
+// hullGrid is the number of classification boxes along each axis.
+const hullGrid = 24
+
 func newSupportHull(points []transform.Vec, dim int) supportHull {
-	var h supportHull
+	h := supportHull{dim: dim}
 	if dim == 2 {
 		const n = 160
 		for k := range n {
@@ -285,6 +300,13 @@ func newSupportHull(points []transform.Vec, dim int) supportHull {
 			a := golden * float64(k)
 			h.dirs = append(h.dirs, transform.Vec{r * math.Cos(a), r * math.Sin(a), z})
 		}
+		// The axes too, so that the polytope lies inside the bounding
+		// box that the classification grid covers.
+		for k := range 3 {
+			var d transform.Vec
+			d[k] = 1
+			h.dirs = append(h.dirs, d, d.Scale(-1))
+		}
 	}
 	h.reach = make([]float64, len(h.dirs))
 	extent := 0.0
@@ -299,12 +321,118 @@ func newSupportHull(points []transform.Vec, dim int) supportHull {
 		extent = math.Max(extent, h.reach[k]-lo)
 	}
 	h.tol = 1e-9 * extent
+	h.classify(points)
 	return h
 }
 
+// classify fills the grid of boxes over the points' bounding box.
+func (h *supportHull) classify(points []transform.Vec) {
+	hi := points[0]
+	h.lo = points[0]
+	for _, p := range points {
+		for k := range h.dim {
+			h.lo[k] = math.Min(h.lo[k], p[k])
+			hi[k] = math.Max(hi[k], p[k])
+		}
+	}
+	h.n = [3]int{1, 1, 1}
+	for k := range h.dim {
+		h.n[k] = hullGrid
+		h.step[k] = (hi[k] - h.lo[k]) / hullGrid
+		if !(h.step[k] > 0) {
+			// Flat along this axis: one box, and every point tested.
+			h.n[k], h.step[k] = 1, 0
+		}
+	}
+	// Which planes each grid corner lies beyond.
+	nc := [3]int{h.n[0] + 1, h.n[1] + 1, h.n[2] + 1}
+	if h.dim == 2 {
+		nc[2] = 1
+	}
+	corner := func(i, j, k int) transform.Vec {
+		return transform.Vec{h.lo[0] + float64(i)*h.step[0], h.lo[1] + float64(j)*h.step[1], h.lo[2] + float64(k)*h.step[2]}
+	}
+	words := (len(h.dirs) + 63) / 64
+	beyond := make([]uint64, nc[0]*nc[1]*nc[2]*words)
+	inside := make([]bool, nc[0]*nc[1]*nc[2])
+	for k := range nc[2] {
+		for j := range nc[1] {
+			for i := range nc[0] {
+				c := (k*nc[1]+j)*nc[0] + i
+				x := corner(i, j, k)
+				inside[c] = true
+				for d, dir := range h.dirs {
+					if dir.Dot(x) > h.reach[d]+h.tol {
+						beyond[c*words+d/64] |= 1 << (d % 64)
+						inside[c] = false
+					}
+				}
+			}
+		}
+	}
+	h.class = make([]int8, h.n[0]*h.n[1]*h.n[2])
+	for k := range h.n[2] {
+		for j := range h.n[1] {
+			for i := range h.n[0] {
+				allIn := true
+				common := make([]uint64, words)
+				for w := range common {
+					common[w] = ^uint64(0)
+				}
+				for dk := range 2 {
+					if h.dim == 2 && dk == 1 {
+						break
+					}
+					for dj := range 2 {
+						for di := range 2 {
+							c := ((k+dk)*nc[1]+j+dj)*nc[0] + i + di
+							allIn = allIn && inside[c]
+							for w := range common {
+								common[w] &= beyond[c*words+w]
+							}
+						}
+					}
+				}
+				out := false
+				for _, w := range common {
+					out = out || w != 0
+				}
+				b := (k*h.n[1]+j)*h.n[0] + i
+				switch {
+				case allIn && h.step[0] > 0 && h.step[1] > 0 && (h.dim == 2 || h.step[2] > 0):
+					h.class[b] = 1
+				case out:
+					h.class[b] = -1
+				}
+			}
+		}
+	}
+}
+
 func (h supportHull) contains(x transform.Vec) bool {
+	var idx [3]int
+	for k := range h.dim {
+		if h.step[k] == 0 {
+			continue
+		}
+		f := (x[k] - h.lo[k]) / h.step[k]
+		if f < 0 || f > float64(h.n[k]) {
+			// Outside the bounding box, hence outside the hull, up to
+			// the tolerance the planes allow.
+			if f < -1e-6 || f > float64(h.n[k])+1e-6 {
+				return false
+			}
+		}
+		idx[k] = min(max(int(f), 0), h.n[k]-1)
+	}
+	switch h.class[(idx[2]*h.n[1]+idx[1])*h.n[0]+idx[0]] {
+	case 1:
+		return true
+	case -1:
+		return false
+	}
 	for k, d := range h.dirs {
-		if d.Dot(x) > h.reach[k]+h.tol {
+		if d[0]*x[0]+d[1]*x[1]+d[2]*x[2] > h.reach[k]+h.tol {
 			return false
 		}
 	}

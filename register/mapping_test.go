@@ -1,0 +1,54 @@
+package register
+
+import (
+	"math/rand/v2"
+	"testing"
+
+	"ferry/transform"
+)
+
+// The classified grid of the hull gives the same answer as testing every
+// support plane, inside, outside and at the edges, in 3-D and 2-D.
+func TestSupportHullGrid(t *testing.T) {
+	rng := rand.New(rand.NewPCG(4, 4))
+	for _, dim := range []int{2, 3} {
+		var pts []transform.Vec
+		for range 60 {
+			p := transform.Vec{rng.Float64() * 400, rng.Float64() * 300, rng.Float64() * 200}
+			if dim == 2 {
+				p[2] = 0
+			}
+			pts = append(pts, p)
+		}
+		h := newSupportHull(pts, dim)
+		plain := func(x transform.Vec) bool {
+			for k, d := range h.dirs {
+				if d.Dot(x) > h.reach[k]+h.tol {
+					return false
+				}
+			}
+			return true
+		}
+		in := 0
+		for range 20000 {
+			x := transform.Vec{-50 + rng.Float64()*500, -50 + rng.Float64()*400, -50 + rng.Float64()*300}
+			if dim == 2 {
+				x[2] = 0
+			}
+			if got, want := h.contains(x), plain(x); got != want {
+				t.Fatalf("%d-D: contains(%v) = %v, plane by plane %v", dim, x, got, want)
+			}
+			if plain(x) {
+				in++
+			}
+		}
+		for _, p := range pts {
+			if !h.contains(p) {
+				t.Fatalf("%d-D: landmark %v outside its own hull", dim, p)
+			}
+		}
+		if in == 0 {
+			t.Fatalf("%d-D: no test point inside", dim)
+		}
+	}
+}
