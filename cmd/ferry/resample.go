@@ -182,6 +182,9 @@ func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, er
 	if err != nil {
 		return nil, err
 	}
+	if set.Dim != 3 {
+		return nil, fmt.Errorf("%s: 2-D mapped cells cannot be marked on a plane of a 3-D volume (the file has no z column)", path)
+	}
 	status, r95 := -1, -1
 	for i, c := range set.ExtraColumns {
 		switch strings.ToLower(c) {
