@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"math"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -78,8 +79,8 @@ the predicted 95 % radii. Exit status 3 when a landmark is flagged or a
 leave-one-out error exceeds --max-error.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if cmd.Flags().Changed("max-error") && !(maxError > 0) {
-				return fmt.Errorf("--max-error: want a positive number of micrometres, got %v", maxError)
+			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
+				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)
 			}
 			job, err := flags.load(args[0])
 			if err != nil {
