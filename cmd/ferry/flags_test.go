@@ -18,7 +18,9 @@ func TestFlagValidation(t *testing.T) {
 		"a,vessel,0,0,1,1\nb,vessel,10,0,11,1\nc,vessel,0,10,1,11\nd,soma,10,10,11,11\ne,soma,5,3,6,4\n")
 	fit := func(flags ...string) []string { return append([]string{"fit", fx.landmarks, "-o", out}, flags...) }
 	check := func(flags ...string) []string { return append([]string{"check", fx.landmarks}, flags...) }
-	mapCells := func(flags ...string) []string { return append([]string{"map", fx.transform, fx.cells, "-o", out}, flags...) }
+	mapCells := func(flags ...string) []string {
+		return append([]string{"map", fx.transform, fx.cells, "-o", out}, flags...)
+	}
 	resample := func(flags ...string) []string {
 		return append(append([]string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}, sc.imageFlags()...), flags...)
 	}
