@@ -137,7 +137,7 @@ func TestRigidTREMonteCarlo(t *testing.T) {
 	targets := []transform.Vec{{150, 100, 50}, {600, 100, 50}, {150, 100, 400}}
 	sumSq := make([]float64, len(targets))
 	sumPred := make([]float64, len(targets))
-	const runs = 400
+	const runs = 200
 	for range runs {
 		p := &Problem{Dim: 3}
 		for i, f := range fiducials {

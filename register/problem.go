@@ -88,7 +88,9 @@ func ParseModel(s string) (transform.Kind, error) {
 	return k, nil
 }
 
-// Settings steer the assessment of a landmark set.
+// Settings steer the assessment of a landmark set. Its zero value fits the
+// model chosen automatically with smoothing 0; most callers want
+// Smoothing{Auto: true}, as the command line's default.
 type Settings struct {
 	// Model is the model asked for; empty means auto.
 	Model     transform.Kind

@@ -79,6 +79,11 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 		if err != nil {
 			return nil, err
 		}
+		if dim == 2 && strings.HasSuffix(t.name, "voxel") {
+			// A 2-D plane still has a thickness along z for images, and
+			// the transform file wants every voxel size positive.
+			v[2] = 1
+		}
 		*t.dst = &v
 	}
 	if job.problem, err = register.PrepareLandmarks(job.set, job.exclude, job.voxels); err != nil {
