@@ -3,6 +3,7 @@ package transform
 import (
 	"errors"
 	"fmt"
+	"math"
 	"runtime"
 	"sync"
 
@@ -235,13 +236,23 @@ func (p *splinePredictor) CrossAll(xs, zs []Vec, dst []float64) {
 	width := p.n + 2*p.sys.m
 	out := mat.NewDense(len(xs), len(zs), dst)
 	out.Mul(mat.NewDense(len(xs), width, left), mat.NewDense(len(zs), width, right).T())
+	kappa := p.kappa
 	parallelRows(len(xs), func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			row := dst[i*len(zs) : (i+1)*len(zs)]
+			row = row[:len(uz)]
 			u := ux[i]
-			for j, w := range uz {
-				d := u.Sub(w)
-				row[j] = p.kappa * (p.sys.kernel(d.Dot(d)) - row[j])
+			if p.sys.dim == 3 {
+				// φ(ρ) = −ρ, written out: this loop runs over every pair.
+				for j := range row {
+					dx, dy, dz := u[0]-uz[j][0], u[1]-uz[j][1], u[2]-uz[j][2]
+					row[j] = -kappa * (math.Sqrt(dx*dx+dy*dy+dz*dz) + row[j])
+				}
+				continue
+			}
+			for j := range row {
+				dx, dy := u[0]-uz[j][0], u[1]-uz[j][1]
+				row[j] = kappa * (p.sys.kernel(dx*dx+dy*dy) - row[j])
 			}
 		}
 	})

@@ -38,7 +38,7 @@ func newCellModel(t transform.Transform, u *register.UncertaintyModel, cells []t
 	m.extra = make([]transform.Mat, len(cells))
 	for i, x := range cells {
 		jac := t.Jacobian(x)
-		m.pick[i] = m.landmarkNoise(t.Kind(), u, jac)
+		m.pick[i] = m.landmarkNoise(u, jac)
 		var d transform.Mat
 		for k := range m.dim {
 			d[k][k] = cellSD[k] * cellSD[k]
@@ -51,9 +51,8 @@ func newCellModel(t transform.Transform, u *register.UncertaintyModel, cells []t
 // landmarkNoise is the diagonal of the landmarks' own picking noise in the
 // target at a point of Jacobian jac: from the stated picking errors,
 // J·diag(source sd²)·Jᵀ + diag(target sd²), when there are any; otherwise
-// the spline's nugget s·ν, and nothing for a linear model (whose scale
-// cannot part noise from misfit).
-func (m *cellModel) landmarkNoise(kind transform.Kind, u *register.UncertaintyModel, jac transform.Mat) transform.Vec {
+// the noise part s·ν of the model's scale.
+func (m *cellModel) landmarkNoise(u *register.UncertaintyModel, jac transform.Mat) transform.Vec {
 	var n transform.Vec
 	if u.SourceSD != nil || u.TargetSD != nil {
 		var c transform.Mat
@@ -72,10 +71,8 @@ func (m *cellModel) landmarkNoise(kind transform.Kind, u *register.UncertaintyMo
 		}
 		return n
 	}
-	if kind == transform.TPS {
-		for k := range m.dim {
-			n[k] = m.scale[k] * m.nu
-		}
+	for k := range m.dim {
+		n[k] = m.scale[k] * m.nu
 	}
 	return n
 }

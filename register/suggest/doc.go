@@ -29,8 +29,10 @@
 // Candidate locations are the points of a --where file (for example vessel
 // branch points seen in vivo), or by default a regular grid over the
 // bounding box of the landmarks' source positions and the cells: its
-// spacing is the largest for which the grid has at least GridTarget nodes
-// (about a few thousand), and the nodes are centred in the box (Grid).
+// spacing is the largest for which the grid has at least GridTarget (4000)
+// nodes, and the nodes are centred in the box (Grid). For a rigid motion or
+// a similarity, whose covariance is a low-degree polynomial of position and
+// whose search costs more per node, the grid has BlockGridTarget (500).
 //
 // The objective is the median over the cells of their 95 % radius r95,
 // computed exactly as `ferry map` computes it: the per-axis scale s, the
@@ -48,14 +50,18 @@
 // covariance after z₁…z_j is C − Σ_l U_l(x)U_l(z)ᵀ, U_l the scaled
 // covariance with z_l after the ones before it.
 //
-// For the spline the search holds the covariances between the cells and
-// the candidates in memory (eight bytes a pair), updates them after each
-// choice, and evaluates each cell's r95 from a table of its r95 against its
-// remaining variance (radiusKnots knots, linear in √(σ² + ν), exact when the
-// cell has no own localisation error). When the pairs would need more than
-// maxPairs numbers the search looks at every k-th cell only. The radii
-// reported (R95After, Gain, the per-cell radii) are always computed exactly
-// over all cells from the chosen locations, by the same conditioning.
+// For the scalar factors the search holds the covariances between the
+// cells and the candidates in memory (eight bytes a pair), updates them
+// after each choice, and evaluates each cell's r95 from a table of its r95
+// against its remaining variance (radiusKnots knots, linear in √(σ² + ν),
+// exact when the cell has no own localisation error). Most candidates
+// cannot beat the best median found so far, and a count of the cells whose
+// variance would fall far enough shows it without a median (see
+// scalarSearch.run); the choice is the one scoring every candidate would
+// make. When the pairs would need more than maxPairs numbers the search
+// looks at every k-th cell only. The radii reported (R95After, Gain, the
+// per-cell radii) are always computed exactly over all cells from the
+// chosen locations, by the same conditioning.
 //
 // # What is kept fixed
 //

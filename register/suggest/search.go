@@ -3,6 +3,7 @@ package suggest
 import (
 	"math"
 	"runtime"
+	"sort"
 	"sync"
 	"sync/atomic"
 
@@ -142,6 +143,13 @@ func newScalarSearch(sp transform.ScalarCrossPredictor, nu float64, model *cellM
 				}
 				s.knots[i*radiusKnots+k] = model.radius(i, scalarMat(f, model.dim))
 			}
+			// The radius grows with the variance; the table of radii
+			// interpolates and could dip by its own rounding, which the
+			// search's thresholds must not see.
+			r := s.knots[i*radiusKnots : (i+1)*radiusKnots]
+			for k := 1; k < len(r); k++ {
+				r[k] = math.Max(r[k], r[k-1])
+			}
 		}
 	})
 	return s
@@ -162,35 +170,130 @@ func (s *scalarSearch) radius(i int, t float64) float64 {
 	return r[0] + f*(r[1]-r[0])
 }
 
+// leaders is how many candidates, those that lower the cells' variance the
+// most in total, are scored in full first in each step: the best median
+// among them is the bar every other candidate must clear.
+const leaders = 8
+
 // run chooses up to n candidates greedily and returns their indices.
+//
+// Scoring a candidate in full costs a median over the cells. Most
+// candidates cannot win, and a count shows it: with m the best median
+// found so far, a candidate whose median exceeds m has at most ⌈N/2⌉ − 1
+// cells with r95 ≤ m, and r95 ≤ m at cell i means that its variance drops
+// by at least δ_i = σ²_i − τ_i(m), τ_i(m) the largest variance at which the
+// cell's table gives r95 ≤ m. So each step scores the leaders in full,
+// then counts for every other candidate the cells with C²/(σ²(z) + ν) ≥ δ_i,
+// and scores in full the most promising few of those that might beat the
+// bar; with the better bar it counts again, until none is left. The bar is
+// set 1e-9 of itself above the best median so that rounding can never drop
+// a candidate that ties: the choice is the one a full scoring of all
+// candidates makes.
 func (s *scalarSearch) run(n int) []int {
 	var picks []int
 	scores := make([]score, len(s.cand))
+	proxy := make([]float64, len(s.cand))
+	delta := make([]float64, s.cells)
 	for range n {
-		forCandidates(len(s.cand), s.cells, func(j int, r []float64) {
+		forCandidates(len(s.cand), 0, func(j int, _ []float64) {
+			scores[j] = score{}
+			proxy[j] = -1
 			d := s.vz[j] + s.nu
 			if s.chosen[j] || !(d > s.tiny) {
-				scores[j] = score{}
 				return
 			}
-			inv := 1 / d
-			row := s.c[j*s.cells : (j+1)*s.cells]
 			sum := 0.0
-			for i, c := range row {
-				t := math.Max(s.t[i]-c*c*inv, 0)
-				r[i] = s.radius(i, t)
-				sum += r[i]
+			for _, c := range s.c[j*s.cells : (j+1)*s.cells] {
+				sum += c * c
 			}
-			scores[j] = score{median: selectMedian(r), mean: sum / float64(s.cells), ok: true}
+			proxy[j] = sum / d
 		})
-		j := best(scores)
-		if j < 0 {
+		order := make([]int, 0, len(s.cand))
+		for j, p := range proxy {
+			if p >= 0 {
+				order = append(order, j)
+			}
+		}
+		if len(order) == 0 {
 			break
 		}
+		sort.SliceStable(order, func(a, b int) bool { return proxy[order[a]] > proxy[order[b]] })
+		lead := order[:min(leaders, len(order))]
+		forCandidates(len(lead), s.cells, func(k int, r []float64) {
+			scores[lead[k]] = s.score(lead[k], r)
+		})
+		// Raise the bar in rounds: count, score the most promising of the
+		// candidates left in full, and count again with the better bar.
+		need := (s.cells - 1) / 2 // a median ≤ bar has more than this many cells ≤ bar
+		rest := order[len(lead):]
+		keep := make([]bool, len(s.cand))
+		for len(rest) > 0 {
+			bar := scores[best(scores)].median * (1 + 1e-9)
+			parallelRange(s.cells, func(lo, hi int) {
+				for i := lo; i < hi; i++ {
+					delta[i] = s.t[i] - s.threshold(i, bar)
+				}
+			})
+			forCandidates(len(rest), 0, func(k int, _ []float64) {
+				j := rest[k]
+				d := s.vz[j] + s.nu
+				count := 0
+				for i, c := range s.c[j*s.cells : (j+1)*s.cells] {
+					if c*c >= delta[i]*d {
+						count++
+					}
+				}
+				keep[j] = count > need
+			})
+			survivors := rest[:0]
+			for _, j := range rest {
+				if keep[j] {
+					survivors = append(survivors, j)
+				}
+			}
+			round := survivors[:min(len(survivors), 4*leaders)]
+			forCandidates(len(round), s.cells, func(k int, r []float64) {
+				scores[round[k]] = s.score(round[k], r)
+			})
+			rest = survivors[len(round):]
+		}
+		j := best(scores)
 		s.add(j)
 		picks = append(picks, j)
 	}
 	return picks
+}
+
+// score is the objective with a landmark at candidate j, in full.
+func (s *scalarSearch) score(j int, r []float64) score {
+	inv := 1 / (s.vz[j] + s.nu)
+	row := s.c[j*s.cells : (j+1)*s.cells]
+	sum := 0.0
+	for i, c := range row {
+		t := math.Max(s.t[i]-c*c*inv, 0)
+		r[i] = s.radius(i, t)
+		sum += r[i]
+	}
+	return score{median: selectMedian(r), mean: sum / float64(s.cells), ok: true}
+}
+
+// threshold is τ_i(m): the largest variance factor at which cell i's table
+// gives r95 ≤ m; −∞ when even a nil variance gives more, +∞ when its
+// present variance gives no more.
+func (s *scalarSearch) threshold(i int, m float64) float64 {
+	r := s.knots[i*radiusKnots : (i+1)*radiusKnots]
+	if m < r[0] {
+		return math.Inf(-1)
+	}
+	if m >= r[radiusKnots-1] {
+		return math.Inf(1)
+	}
+	// The knots do not fall (newScalarSearch), so the last knot ≤ m
+	// starts the segment where the table crosses m.
+	k := sort.Search(radiusKnots, func(k int) bool { return r[k] > m }) - 1
+	f := (m - r[k]) / (r[k+1] - r[k])
+	w := s.w0[i] + (float64(k)+f)/s.inv[i]
+	return w*w - s.nu
 }
 
 // add conditions the covariances on a landmark at candidate j.
@@ -381,7 +484,9 @@ func selectMedian(v []float64) float64 {
 	}
 	next := math.Inf(1)
 	for _, x := range v[k+1:] {
-		next = math.Min(next, x)
+		if x < next {
+			next = x
+		}
 	}
 	return 0.5 * (m + next)
 }

@@ -28,7 +28,8 @@ type Options struct {
 	N int
 	// Candidates are the source positions (µm) to choose from. Nil means
 	// the default grid over the box of the landmarks and the cells (Grid
-	// with GridTarget).
+	// with GridTarget nodes, BlockGridTarget for a rigid motion or a
+	// similarity).
 	Candidates []transform.Vec
 	// CellSD, when not nil, is the cells' own localisation error (µm per
 	// axis, one standard deviation), as for `ferry map --cell-sd`.
@@ -127,8 +128,12 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 		}
 		res.Candidates = opt.Candidates
 	} else {
+		target := GridTarget
+		if _, scalar := transform.AsScalar(cp); !scalar {
+			target = BlockGridTarget
+		}
 		lo, hi := Bounds(dim, u.Source, cells)
-		res.Candidates, res.GridSpacing, err = Grid(dim, lo, hi, GridTarget)
+		res.Candidates, res.GridSpacing, err = Grid(dim, lo, hi, target)
 		if err != nil {
 			return nil, err
 		}
