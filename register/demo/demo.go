@@ -14,6 +14,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/imaging"
+	"ferry/register/match"
 	"ferry/register/outfile"
 	"ferry/register/report"
 	"ferry/register/simulate"
@@ -54,6 +55,13 @@ type Outcome struct {
 	Good                       int
 	Statuses                   map[string]int
 	Elapsed                    time.Duration
+	// Matches summarises match; MatchedRight and MatchedWrong count the
+	// matched cells against the truth, WithCounterpart the cells that have
+	// one, UnmatchedRight the unmatched cells that truly have none.
+	Matches                                     match.Summary
+	Candidates                                  int
+	MatchedRight, MatchedWrong, WithCounterpart int
+	UnmatchedRight                              int
 	// OverlayMarks is how many mapped cells the overlay marks;
 	// OverlayOutside the share of its pixels the in vivo stack does not
 	// reach.
@@ -163,6 +171,53 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return register.WriteMapped(w, mprov, cells, mapped, tf.TargetVoxel)
 	}); err != nil {
 		return nil, err
+	}
+
+	step("matching %d cells against %d EM nuclei", len(scen.Cells), len(scen.Candidates))
+	cands, candPos, err := register.ReadCells(f.Candidates, "candidates", tf, true)
+	if err != nil {
+		return nil, err
+	}
+	res, err := match.Match(mapper, pos, &cellSD, candPos, match.Options{
+		Dim: cells.Dim, CellIDs: ids(cells), CandidateIDs: ids(cands),
+	})
+	if err != nil {
+		return nil, err
+	}
+	if out.Matches, err = match.Summarise(cells, cands, res); err != nil {
+		return nil, err
+	}
+	out.Candidates = len(cands.Points)
+	f.Matches = filepath.Join(o.Dir, "matches.csv")
+	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
+		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
+		Flags: mprov.Flags}
+	if err := outfile.Write(ctx, f.Matches, func(w io.Writer) error {
+		return match.WriteMatches(w, xprov, cells, cands, res)
+	}); err != nil {
+		return nil, err
+	}
+	trueCandidate := map[string]string{}
+	for _, c := range scen.Cells {
+		trueCandidate[c.ID] = c.TrueCandidate
+	}
+	for i, r := range res {
+		want := trueCandidate[cells.Points[i].ID]
+		if want != "" {
+			out.WithCounterpart++
+		}
+		switch r.Status {
+		case match.StatusMatched:
+			if r.Candidate >= 0 && cands.Points[r.Candidate].ID == want {
+				out.MatchedRight++
+			} else {
+				out.MatchedWrong++
+			}
+		case match.StatusUnmatched:
+			if want == "" {
+				out.UnmatchedRight++
+			}
+		}
 	}
 
 	step("drawing the scenario's images and the overlay")
@@ -286,6 +341,14 @@ func writeReport(ctx context.Context, path string, f *Files) error {
 	})
 }
 
+func ids(set *landmarks.PointSet) []string {
+	out := make([]string, len(set.Points))
+	for i, p := range set.Points {
+		out[i] = p.ID
+	}
+	return out
+}
+
 func sha(path string) string {
 	s, err := register.FileSHA256(path)
 	if err != nil {
@@ -327,12 +390,21 @@ func (o *Outcome) Print(w io.Writer) {
 	fmt.Fprintf(w, "   Against the truth: median error %.2f µm, 95th percentile %.2f µm.\n", o.MedianError, o.P95Error)
 	fmt.Fprintf(w, "   r95_um holds the true position for %d of %d cells (%.0f %%); for %d of %d cells with status ok (%.0f %%).\n",
 		o.CoveredR95, o.Cells, pct(o.CoveredR95, o.Cells), o.CoveredR95Good, o.Good, pct(o.CoveredR95Good, o.Good))
+	fmt.Fprintln(w)
+	m := o.Matches
+	fmt.Fprintf(w, "4. Matched against %d EM nuclei: %s\n", o.Candidates, m.Counts())
+	fmt.Fprintf(w, "   Against the truth: %d of %d matched cells right (%.1f %%); %d of the %d cells with a counterpart matched (%.1f %%); %d unmatched cells truly have none.\n",
+		o.MatchedRight, o.MatchedRight+o.MatchedWrong, pct(o.MatchedRight, o.MatchedRight+o.MatchedWrong),
+		o.MatchedRight, o.WithCounterpart, pct(o.MatchedRight, o.WithCounterpart), o.UnmatchedRight)
+	if n := len(m.AmbiguousCells); n > 0 {
+		fmt.Fprintf(w, "   %d ambiguous cells, each with its runner-up, are listed in the report: check them by eye.\n", n)
+	}
 	if o.OverlayMarks > 0 || len(o.Files.Extra) > 0 {
 		fmt.Fprintf(w, "   overlay.png: the in vivo stack (orange) resampled onto an EM section (sky blue), %d mapped cells near the section marked.\n", o.OverlayMarks)
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))
-	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Transform, o.Files.Mapped} {
+	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Transform, o.Files.Mapped, o.Files.Matches} {
 		fmt.Fprintf(w, "   %s\n", p)
 	}
 	for _, p := range o.Files.Extra {

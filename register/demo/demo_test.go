@@ -32,7 +32,13 @@ func TestDemo(t *testing.T) {
 	if share := float64(out.CoveredR95Good) / float64(out.Good); share < 0.90 || share > 0.99 {
 		t.Errorf("r95 holds %.3f of the cells with status ok", share)
 	}
-	files := []string{out.Files.Landmarks, out.Files.Cells, out.Files.Candidates, out.Files.Transform, out.Files.Mapped}
+	if out.MatchedWrong > 0 || out.MatchedRight == 0 {
+		t.Errorf("%d matched cells right, %d wrong", out.MatchedRight, out.MatchedWrong)
+	}
+	if share := float64(out.MatchedRight) / float64(out.WithCounterpart); share < 0.9 {
+		t.Errorf("only %.3f of the cells with a counterpart matched", share)
+	}
+	files := []string{out.Files.Matches, out.Files.Landmarks, out.Files.Cells, out.Files.Candidates, out.Files.Transform, out.Files.Mapped}
 	for _, p := range append(files, out.Files.Extra...) {
 		if info, err := os.Stat(p); err != nil || info.Size() == 0 {
 			t.Errorf("%s: not written (%v)", p, err)
