@@ -3,8 +3,6 @@ package register
 import (
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
 
 	"gonum.org/v1/gonum/spatial/kdtree"
 
@@ -235,20 +233,11 @@ func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool)
 
 // each runs f for every index in [0, n) on all cores.
 func each(n int, f func(i int)) {
-	workers := min(runtime.GOMAXPROCS(0), max(1, n/256))
-	var wg sync.WaitGroup
-	chunk := (n + workers - 1) / max(workers, 1)
-	for lo := 0; lo < n; lo += chunk {
-		hi := min(lo+chunk, n)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for i := lo; i < hi; i++ {
-				f(i)
-			}
-		}()
-	}
-	wg.Wait()
+	transform.ParallelRanges(n, 256, func(lo, hi int) {
+		for i := lo; i < hi; i++ {
+			f(i)
+		}
+	})
 }
 
 func centroidOf(points []transform.Vec) transform.Vec {

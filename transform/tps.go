@@ -1049,23 +1049,6 @@ func (sys *splineSystem) leaveOneOut(w []Vec) (loo []Vec, factor []float64, err 
 	return loo, factor, nil
 }
 
-// parallelRows splits [0, n) into one contiguous range per core for work of
-// O(n) or more per index; small n runs on the calling goroutine.
-func parallelRows(n int, work func(lo, hi int)) {
-	workers := min(runtime.GOMAXPROCS(0), n/64)
-	if workers < 2 {
-		work(0, n)
-		return
-	}
-	var wg sync.WaitGroup
-	chunk := (n + workers - 1) / workers
-	for lo := 0; lo < n; lo += chunk {
-		hi := min(lo+chunk, n)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			work(lo, hi)
-		}()
-	}
-	wg.Wait()
-}
+// parallelRows runs work over [0, n) on all cores for work of O(n) or more
+// per index.
+func parallelRows(n int, work func(lo, hi int)) { ParallelRanges(n, 64, work) }

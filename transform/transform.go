@@ -132,24 +132,22 @@ func ApplyAll(t Transform, dst, src []Vec) {
 	if len(dst) != len(src) {
 		panic("transform: ApplyAll with dst and src of different lengths")
 	}
-	parallel(len(src), func(lo, hi int) {
+	ParallelRanges(len(src), 2048, func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			dst[i] = t.Apply(src[i])
 		}
 	})
 }
 
-// parallel splits [0, n) into contiguous chunks run on all cores. Small jobs
-// run on the calling goroutine.
-func parallel(n int, work func(lo, hi int)) {
-	workers := runtime.GOMAXPROCS(0)
-	const minChunk = 2048
-	if workers < 2 || n < 2*minChunk {
+// ParallelRanges splits [0, n) into one contiguous range per core and runs
+// work on each, for jobs whose every index costs about the same. Jobs of
+// fewer than 2·minChunk indices run on the calling goroutine, where starting
+// goroutines would cost more than they save.
+func ParallelRanges(n, minChunk int, work func(lo, hi int)) {
+	workers := min(runtime.GOMAXPROCS(0), n/max(minChunk, 1))
+	if workers < 2 {
 		work(0, n)
 		return
-	}
-	if workers > n/minChunk {
-		workers = n / minChunk
 	}
 	var wg sync.WaitGroup
 	chunk := (n + workers - 1) / workers
