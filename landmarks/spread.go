@@ -75,7 +75,13 @@ func CheckSpread(points []transform.Vec, dim, need int) error {
 	centred := mat.NewDense(n, dim, nil)
 	for i, p := range points {
 		for a := range dim {
-			centred.Set(i, a, p[a]-mean[a])
+			d := p[a] - mean[a]
+			if math.IsInf(d, 0) || math.IsNaN(d) {
+				// The sum behind the mean overflowed: coordinates near
+				// the largest float64.
+				return errors.New("the landmark coordinates are too large to measure their spread")
+			}
+			centred.Set(i, a, d)
 		}
 	}
 	var svd mat.SVD
