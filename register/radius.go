@@ -55,8 +55,18 @@ func NewRadiusTable(dim int, p float64) *RadiusTable {
 
 // Radius returns the radius in micrometres of the sphere that holds the
 // error of covariance cov (µm²) with the table's probability. In 2-D only
-// the upper-left 2×2 block of cov is read.
+// the upper-left 2×2 block of cov is read. It is NaN when cov holds a number
+// that is not finite.
 func (t *RadiusTable) Radius(cov transform.Mat) float64 {
+	for i := range t.dim {
+		for j := range t.dim {
+			if math.IsNaN(cov[i][j]) || math.IsInf(cov[i][j], 0) {
+				// Not a covariance: say so rather than look the table
+				// up at a meaningless place.
+				return math.NaN()
+			}
+		}
+	}
 	lam := eigenvalues(cov, t.dim)
 	if !(lam[0] > 0) {
 		return 0
