@@ -5,6 +5,7 @@ import (
 	"encoding/hex"
 	"fmt"
 	"io"
+	"math"
 	"os"
 
 	"ferry/landmarks"
@@ -35,7 +36,36 @@ func PrepareLandmarks(set *landmarks.PairSet, exclude []string, vox Voxels) (*Pr
 		}
 		kept.ScaleVoxels(src, dst)
 	}
+	for _, pr := range kept.Pairs {
+		for _, side := range []struct {
+			prefix string
+			pos    transform.Vec
+		}{{"source_", pr.Source}, {"target_", pr.Target}} {
+			if err := checkMagnitude(set.Path, pr.Line, side.prefix, side.pos, set.Dim); err != nil {
+				return nil, err
+			}
+		}
+	}
 	return NewProblem(kept), nil
+}
+
+// MaxCoordinateUM bounds every coordinate ferry takes, in micrometres once
+// voxel sizes are applied: a kilometre, beyond any microscope's stage. A
+// larger value is a unit or column slip, and squares of distances between
+// such points would overflow (near 1e154 µm) or drown every micrometre in
+// rounding long before.
+const MaxCoordinateUM = 1e9
+
+// checkMagnitude refuses a position beyond MaxCoordinateUM, naming the file,
+// the line and the column (prefix + axis, e.g. source_x).
+func checkMagnitude(file string, line int, prefix string, pos transform.Vec, dim int) error {
+	for k := range dim {
+		if math.Abs(pos[k]) > MaxCoordinateUM {
+			return &landmarks.InputError{File: file, Line: line, Column: prefix + string("xyz"[k]),
+				Msg: fmt.Sprintf("%g µm is beyond the ±%g µm (a kilometre) of any microscope: is the column in micrometres or voxels?", pos[k], MaxCoordinateUM)}
+		}
+	}
+	return nil
 }
 
 // FileSHA256 is the hex SHA-256 of a file's bytes, for provenance.
@@ -99,6 +129,9 @@ func ReadCells(path, what string, f *transform.File, targetSide bool) (*landmark
 			for k := range set.Dim {
 				pos[i][k] *= vox[k]
 			}
+		}
+		if err := checkMagnitude(path, p.Line, "", pos[i], set.Dim); err != nil {
+			return nil, nil, err
 		}
 	}
 	return set, pos, nil
