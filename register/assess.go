@@ -146,6 +146,9 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	if p.Dim != 2 && p.Dim != 3 {
 		return nil, fmt.Errorf("dimension %d: want 2 or 3", p.Dim)
 	}
+	if err := spreadAtAll(p); err != nil {
+		return nil, err
+	}
 	if s.Model != "" {
 		if err := enoughFor(p, s.Model); err != nil {
 			return nil, err
@@ -232,7 +235,65 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		return nil, err
 	}
 	a.Smoothing, a.Result = full.smoothing, full.res
+	if err := a.finite(); err != nil {
+		return nil, err
+	}
 	return a, nil
+}
+
+// coincidentUM is how close, along every axis, the landmarks of one side
+// must all be to the first for them to count as a single position: a
+// nanometre, a hundred times finer than anyone picks a landmark.
+const coincidentUM = 1e-3
+
+// spreadAtAll refuses landmarks that sit at one position on either side.
+// Even a translation fits them, but nothing can then be said about any
+// other point, and the leave-one-out errors, all zero, would promise a
+// precision the landmarks do not have. Differences from the first landmark
+// overflow only for coordinates near the largest float64, which are named
+// as such.
+func spreadAtAll(p *Problem) error {
+	for _, side := range []struct {
+		name string
+		pos  []transform.Vec
+	}{{"source", p.Source}, {"target", p.Target}} {
+		largest := 0.0
+		for _, x := range side.pos {
+			d := x.Sub(side.pos[0])
+			for k := range p.Dim {
+				largest = math.Max(largest, math.Abs(d[k]))
+			}
+		}
+		if math.IsInf(largest, 0) || math.IsNaN(largest) {
+			return fmt.Errorf("%s landmarks: coordinates too large to compare (beyond ±%g µm)", side.name, MaxCoordinateUM)
+		}
+		if largest <= coincidentUM {
+			return fmt.Errorf("all %d landmarks are at one %s position (within %g µm): a registration needs them spread over the volume", p.Len(), side.name, coincidentUM)
+		}
+	}
+	return nil
+}
+
+// finite makes sure that no verdict holds a number that is not finite, so
+// that none reaches the check's table, its JSON or the transform file; a
+// landmark whose numbers are not finite is named.
+func (a *Assessment) finite() error {
+	for k := range a.Dim {
+		if math.IsNaN(a.Scale[k]) || math.IsInf(a.Scale[k], 0) {
+			return fmt.Errorf("the scale of the leave-one-out errors is not a finite number (%v µm² along axis %d): the landmark coordinates are too large or too close together to compute with", a.Scale[k], k+1)
+		}
+	}
+	for _, l := range a.Landmarks {
+		for _, v := range []struct {
+			name string
+			x    float64
+		}{{"leave-one-out error", l.LOOError}, {"95 % radius", l.R95}, {"score", l.Score}} {
+			if math.IsNaN(v.x) || math.IsInf(v.x, 0) {
+				return fmt.Errorf("landmark %q: its %s is not a finite number (%v): the landmark coordinates are too large or too close together to compute with", l.ID, v.name, v.x)
+			}
+		}
+	}
+	return nil
 }
 
 // enoughFor checks that the set supports model before any fitting, with the
