@@ -4,6 +4,7 @@ import (
 	"encoding/csv"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 	"strings"
 
@@ -41,24 +42,30 @@ func (p Provenance) Line() string {
 }
 
 // formatCoord writes a coordinate or an error in micrometres (or voxels) to
-// the nanometre (a thousandth), enough for any microscope and stable across
-// runs.
-func formatCoord(x float64) string {
+// the tenth of a nanometre, enough for any microscope and stable across
+// runs. It refuses a value that is not finite: an output holds numbers a
+// reader can use or nothing at all.
+func formatCoord(x float64) (string, error) {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return "", fmt.Errorf("%v is not a finite number", x)
+	}
 	if x == 0 {
 		// Never "-0.000".
 		x = 0
 	}
 	s := strconv.FormatFloat(x, 'f', 4, 64)
 	if s == "-0.0000" {
-		return "0.0000"
+		return "0.0000", nil
 	}
-	return s
+	return s, nil
 }
 
 // WriteMapped writes the mapped cells in the contract's columns: id, x, y, z
 // (mapped, in micrometres or, when voxel is not nil, in voxels of that size),
 // sd_x_um, sd_y_um, sd_z_um, r95_um, status, then the cells' own extra
 // columns. A point without an inverse has empty position and error fields.
+// A value that is not finite stops the writing with an error naming the
+// cell, its line in the cells file and the column.
 func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped []Mapped, voxel *transform.Vec) error {
 	if _, err := fmt.Fprintf(w, "# %s\n", prov.Line()); err != nil {
 		return err
@@ -83,17 +90,25 @@ func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped
 				row = append(row, "")
 			}
 		} else {
+			var buf [7]float64 // x, y, z, three sds and r95
+			values := buf[:0]
 			for k := range cells.Dim {
 				v := m.Pos[k]
 				if voxel != nil {
 					v /= voxel[k]
 				}
-				row = append(row, formatCoord(v))
+				values = append(values, v)
 			}
-			for k := range cells.Dim {
-				row = append(row, formatCoord(m.SD[k]))
+			values = append(values, m.SD[:cells.Dim]...)
+			values = append(values, m.R95)
+			for k, v := range values {
+				field, err := formatCoord(v)
+				if err != nil {
+					return &landmarks.InputError{File: cells.Path, Line: c.Line, Column: header[1+k],
+						Msg: fmt.Sprintf("cell %s: the mapped value %v", strconv.Quote(c.ID), err)}
+				}
+				row = append(row, field)
 			}
-			row = append(row, formatCoord(m.R95))
 		}
 		row = append(row, m.Status)
 		row = append(row, c.Extra...)
