@@ -79,8 +79,14 @@ func encodeTransform(t Transform) (json.RawMessage, error) {
 	w := wireTransform{Model: t.Kind()}
 	switch t := t.(type) {
 	case *Linear:
+		if !finiteMat(t.A) || !t.T.IsFinite() || !finite(t.Scale) {
+			return nil, fmt.Errorf("%s transform: a parameter is not a finite number (matrix %v, offset %v µm, scale %v)", t.Model, t.A, t.T, t.Scale)
+		}
 		w.Linear = t
 	case *Spline:
+		if err := t.finiteParameters(); err != nil {
+			return nil, err
+		}
 		w.Spline = t
 	case *Chain:
 		for _, s := range t.Steps {
@@ -94,6 +100,41 @@ func encodeTransform(t Transform) (json.RawMessage, error) {
 		return nil, fmt.Errorf("transform of type %T cannot be written to a file", t)
 	}
 	return json.Marshal(w)
+}
+
+// finiteParameters names the first parameter of s that is not a finite
+// number: a transform file never holds one.
+func (s *Spline) finiteParameters() error {
+	for i := range s.Nodes {
+		if !s.Nodes[i].IsFinite() {
+			return fmt.Errorf("thin-plate spline: node %d is at %v µm, not a finite position", i+1, s.Nodes[i])
+		}
+	}
+	for i := range s.Weights {
+		if !s.Weights[i].IsFinite() {
+			return fmt.Errorf("thin-plate spline: the kernel weight of node %d is %v, not finite", i+1, s.Weights[i])
+		}
+	}
+	for _, w := range s.PairWeights {
+		if !finite(w) {
+			return fmt.Errorf("thin-plate spline: a pair weight is %v, not finite", w)
+		}
+	}
+	if !finiteMat(s.Matrix) || !s.Offset.IsFinite() || !s.Centre.IsFinite() || !finite(s.Scale) || !finite(s.Smoothing) {
+		return fmt.Errorf("thin-plate spline: its affine part, centre, scale or smoothing is not a finite number")
+	}
+	return nil
+}
+
+func finiteMat(m Mat) bool {
+	for i := range 3 {
+		for j := range 3 {
+			if !finite(m[i][j]) {
+				return false
+			}
+		}
+	}
+	return true
 }
 
 func decodeTransform(raw json.RawMessage, depth int) (Transform, error) {
