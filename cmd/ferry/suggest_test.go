@@ -1,11 +1,13 @@
 package main
 
 import (
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
 	"math"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -149,5 +151,34 @@ func TestSuggestCommandRefuses(t *testing.T) {
 				t.Fatal("an output was written")
 			}
 		})
+	}
+}
+
+// The suggestions are the same bytes on one core and on several: the
+// search splits its work between cores, never a sum.
+func TestSuggestSameAcrossCores(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the program")
+	}
+	bin := ferryBinary(t)
+	f := newFixture(t)
+	var first []byte
+	for _, procs := range []string{"1", "2", "3"} {
+		dir := t.TempDir()
+		cmd := exec.Command(bin, "suggest", f.landmarks, f.cells, "--n", "6", "--cell-sd", "0.8,0.8,3", "-o", "next.csv")
+		cmd.Dir = dir
+		cmd.Env = append(os.Environ(), "GOMAXPROCS="+procs)
+		if out, err := cmd.CombinedOutput(); err != nil {
+			t.Fatalf("GOMAXPROCS=%s: %v\n%s", procs, err, out)
+		}
+		data, err := os.ReadFile(filepath.Join(dir, "next.csv"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if first == nil {
+			first = data
+		} else if !bytes.Equal(first, data) {
+			t.Fatalf("GOMAXPROCS=%s gave different suggestions:\n%s\nagainst\n%s", procs, data, first)
+		}
 	}
 }

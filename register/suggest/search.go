@@ -65,21 +65,9 @@ func forCandidates(count, n int, work func(j int, scratch []float64)) {
 	wg.Wait()
 }
 
-// parallelRange splits [0, n) into one contiguous range per core.
-func parallelRange(n int, work func(lo, hi int)) {
-	workers := min(runtime.GOMAXPROCS(0), max(1, n/64))
-	var wg sync.WaitGroup
-	chunk := (n + workers - 1) / workers
-	for lo := 0; lo < n; lo += chunk {
-		hi := min(lo+chunk, n)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			work(lo, hi)
-		}()
-	}
-	wg.Wait()
-}
+// parallelRange runs work over [0, n) on all cores, for work of O(cells)
+// or more per index.
+func parallelRange(n int, work func(lo, hi int)) { transform.ParallelRanges(n, 64, work) }
 
 // radiusKnots is the number of knots of a cell's table of r95 against its
 // remaining variance.
