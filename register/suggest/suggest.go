@@ -141,7 +141,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	if len(res.Candidates) == 0 {
 		return nil, errors.New("no candidate locations to choose from")
 	}
-	if max(len(res.Candidates), 1) > maxPairs/minSearchCells {
+	if len(res.Candidates) > maxPairs/minSearchCells {
 		return nil, fmt.Errorf("%d candidate locations are too many to search (at most %d)", len(res.Candidates), maxPairs/minSearchCells)
 	}
 
@@ -168,17 +168,16 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	for k, j := range chosen {
 		zs[k] = res.Candidates[j]
 	}
-	steps := conditionSequence(cp, u.NoiseFactor, dim, cells, zs)
 	radii := make([]float64, len(cells))
-	for k := range steps {
+	conditionSequence(cp, u.NoiseFactor, dim, cells, zs, func(k int, factor func(i int) transform.Mat) {
 		for i := range cells {
-			radii[i] = model.radius(i, steps[k][i])
+			radii[i] = model.radius(i, factor(i))
 		}
 		med, mean := medianOf(radii), meanOf(radii)
 		if k == 0 {
 			res.R95Before, res.MeanR95Before = med, mean
 			res.CellR95Before = append([]float64(nil), radii...)
-			continue
+			return
 		}
 		j := chosen[k-1]
 		z := res.Candidates[j]
@@ -197,7 +196,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 			sug.TargetSD[a] = math.Sqrt(math.Max(target[a][a], 0))
 		}
 		res.Suggestions = append(res.Suggestions, sug)
-	}
+	})
 	res.CellR95After = radii
 	return res, nil
 }
@@ -230,67 +229,83 @@ func searchSubset(cells, candidates int) []int {
 	return idx
 }
 
-// conditionSequence returns the factor at every point of xs before any of
-// zs is added (step 0) and after each of zs in turn (step k after z₁…z_k):
-// the sequential conditioning of the package documentation, with the
-// low-rank correction C − Σ_l U_l(x)U_l(z)ᵀ kept for the points of zs.
-func conditionSequence(cp transform.CrossPredictor, nu float64, dim int, xs, zs []transform.Vec) [][]transform.Mat {
+// conditionSequence calls step(k, factor) for k = 0 … len(zs), where
+// factor(i) is the factor at xs[i] once z₁ … z_k are added: the sequential
+// conditioning of the package documentation, with the low-rank correction
+// C − Σ_l U_l(x)U_l(z)ᵀ kept for the points of zs. factor is valid only
+// during the call.
+func conditionSequence(cp transform.CrossPredictor, nu float64, dim int, xs, zs []transform.Vec, step func(k int, factor func(i int) transform.Mat)) {
+	if sp, ok := transform.AsScalar(cp); ok {
+		conditionScalar(sp, nu, dim, xs, zs, step)
+		return
+	}
 	K := len(zs)
-	// c0[l][p]: C(p, z_l) for p in zs followed by xs.
 	all := append(append([]transform.Vec(nil), zs...), xs...)
-	c0 := make([][]transform.Mat, K)
-	if sp, ok := transform.AsScalar(cp); ok && K > 0 {
-		flat := make([]float64, K*len(all))
-		sp.CrossAll(zs, all, flat)
-		for l := range K {
-			c0[l] = make([]transform.Mat, len(all))
-			for p := range all {
-				c0[l][p] = scalarMat(flat[l*len(all)+p], dim)
-			}
-		}
-	} else {
-		for l, z := range zs {
-			c0[l] = make([]transform.Mat, len(all))
-			for p, x := range all {
-				c0[l][p] = cp.CrossFactor(x, z)
-			}
-		}
-	}
 	f := make([]transform.Mat, len(all))
-	if bp, ok := cp.(transform.BatchPredictor); ok {
-		bp.FactorAll(all, f)
-	} else {
-		for p, x := range all {
-			f[p] = cp.Factor(x)
-		}
+	for p, x := range all {
+		f[p] = cp.Factor(x)
 	}
-	steps := make([][]transform.Mat, K+1)
-	steps[0] = append([]transform.Mat(nil), f[K:]...)
+	step(0, func(i int) transform.Mat { return f[K+i] })
 	us := make([][]transform.Mat, K)
-	for l := range K {
-		// C_cur(p, z_l) = C(p, z_l) − Σ_{m<l} U_m(p) U_m(z_l)ᵀ.
-		cur := make([]transform.Mat, len(all))
-		for p := range all {
-			c := c0[l][p]
-			for m := range l {
-				c = subMat(c, us[m][p].Mul(us[m][l].T()))
-			}
-			cur[p] = c
-		}
+	for l, z := range zs {
 		s, ok := invCholT(addNoise(f[l], nu, dim), dim)
 		us[l] = make([]transform.Mat, len(all))
 		if ok {
+			for p, x := range all {
+				// C_cur(p, z_l) = C(p, z_l) − Σ_{m<l} U_m(p) U_m(z_l)ᵀ.
+				c := cp.CrossFactor(x, z)
+				for m := range l {
+					c = subMat(c, us[m][p].Mul(us[m][l].T()))
+				}
+				us[l][p] = c.Mul(s)
+			}
 			for p := range all {
-				us[l][p] = cur[p].Mul(s)
-				f[p] = subMat(f[p], us[l][p].Mul(us[l][p].T()))
+				f[p] = clampFactor(subMat(f[p], us[l][p].Mul(us[l][p].T())), dim)
 			}
 		}
-		for p := range f {
-			f[p] = clampFactor(f[p], dim)
-		}
-		steps[l+1] = append([]transform.Mat(nil), f[K:]...)
+		step(l+1, func(i int) transform.Mat { return f[K+i] })
 	}
-	return steps
+}
+
+// conditionScalar is conditionSequence for scalar factors, in scalars.
+func conditionScalar(sp transform.ScalarCrossPredictor, nu float64, dim int, xs, zs []transform.Vec, step func(k int, factor func(i int) transform.Mat)) {
+	K := len(zs)
+	all := append(append([]transform.Vec(nil), zs...), xs...)
+	N := len(all)
+	f := make([]float64, N)
+	sp.VarianceAll(all, f)
+	at := func(i int) transform.Mat { return scalarMat(f[K+i], dim) }
+	step(0, at)
+	if K == 0 {
+		return
+	}
+	// As in the search: σ²(z) + ν this small against the largest is a
+	// location that adds nothing.
+	tiny := nu
+	for _, v := range f {
+		tiny = math.Max(tiny, v+nu)
+	}
+	tiny *= 1e-12
+	c0 := make([]float64, K*N)
+	sp.CrossAll(zs, all, c0)
+	us := make([]float64, K*N)
+	for l := range K {
+		if d := f[l] + nu; d > tiny {
+			scale := 1 / math.Sqrt(d)
+			row := us[l*N : (l+1)*N]
+			for p := range row {
+				c := c0[l*N+p]
+				for m := range l {
+					c -= us[m*N+l] * us[m*N+p]
+				}
+				row[p] = c * scale
+			}
+			for p, u := range row {
+				f[p] = math.Max(f[p]-u*u, 0)
+			}
+		}
+		step(l+1, at)
+	}
 }
 
 // scalarMat is c·I on the first dim axes.

@@ -56,6 +56,19 @@ func synthetic(seed uint64, dim, n, cells int) (*register.Problem, []transform.V
 	return p, xs
 }
 
+// sequence collects the factors of conditionSequence at every step.
+func sequence(cp transform.CrossPredictor, nu float64, dim int, xs, zs []transform.Vec) [][]transform.Mat {
+	var steps [][]transform.Mat
+	conditionSequence(cp, nu, dim, xs, zs, func(_ int, factor func(int) transform.Mat) {
+		f := make([]transform.Mat, len(xs))
+		for i := range f {
+			f[i] = factor(i)
+		}
+		steps = append(steps, f)
+	})
+	return steps
+}
+
 func relDiff(a, b float64) float64 {
 	return math.Abs(a-b) / math.Max(math.Max(math.Abs(a), math.Abs(b)), 1e-300)
 }
@@ -180,7 +193,7 @@ func TestConditioningEqualsRefit(t *testing.T) {
 				t.Fatal(err)
 			}
 			_, zs := synthetic(7, tc.dim, 0, 4)
-			steps := conditionSequence(cp, u.NoiseFactor, tc.dim, cells, zs)
+			steps := sequence(cp, u.NoiseFactor, tc.dim, cells, zs)
 			rng := rand.New(rand.NewPCG(1, 2))
 			target := func(z transform.Vec) transform.Vec {
 				q := f.Transform.Apply(z)
@@ -376,7 +389,7 @@ func TestSearchAgreesWithSequence(t *testing.T) {
 			for _, j := range chosen {
 				zs = append(zs, cand[j])
 			}
-			steps := conditionSequence(cp, u.NoiseFactor, 3, cells, zs)
+			steps := sequence(cp, u.NoiseFactor, 3, cells, zs)
 			for i := range cells {
 				if d := matRelDiff(got[i], steps[len(zs)][i]); d > 1e-9 {
 					t.Fatalf("cell %d: search ends at %v, sequence at %v", i, got[i], steps[len(zs)][i])
