@@ -167,10 +167,10 @@ const leaders = 8
 //
 // Scoring a candidate in full costs a median over the cells. Most
 // candidates cannot win, and a count shows it: with m the best median
-// found so far, a candidate whose median exceeds m has at most ⌈N/2⌉ − 1
-// cells with r95 ≤ m, and r95 ≤ m at cell i means that its variance drops
-// by at least δ_i = σ²_i − τ_i(m), τ_i(m) the largest variance at which the
-// cell's table gives r95 ≤ m. So each step scores the leaders in full,
+// found so far, a candidate that leaves no more than ⌈N/2⌉ − 1 of the N
+// cells at r95 ≤ m has a median above m, and r95 ≤ m at cell i means that
+// its variance drops by at least δ_i = σ²_i − τ_i(m), τ_i(m) the largest
+// variance at which the cell's table gives r95 ≤ m. So each step scores the leaders in full,
 // then counts for every other candidate the cells with C²/(σ²(z) + ν) ≥ δ_i,
 // and scores in full the most promising few of those that might beat the
 // bar; with the better bar it counts again, until none is left. The bar is
@@ -281,7 +281,8 @@ func (s *scalarSearch) threshold(i int, m float64) float64 {
 	k := sort.Search(radiusKnots, func(k int) bool { return r[k] > m }) - 1
 	f := (m - r[k]) / (r[k+1] - r[k])
 	w := s.w0[i] + (float64(k)+f)/s.inv[i]
-	return w*w - s.nu
+	// Never below zero by rounding: r95 ≤ m holds at a nil variance.
+	return math.Max(w*w-s.nu, 0)
 }
 
 // add conditions the covariances on a landmark at candidate j.
