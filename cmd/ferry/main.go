@@ -45,6 +45,10 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return exitOK
 	case errors.Is(err, errQuality):
 		return exitQuality
+	case ctx.Err() != nil:
+		// The error itself may only say "context canceled".
+		fmt.Fprintf(stderr, "ferry: interrupted: %v\n", err)
+		return exitError
 	default:
 		fmt.Fprintf(stderr, "ferry: %v\n", err)
 		return exitError
