@@ -20,9 +20,9 @@
 // appear: the variance after adding a landmark depends only on where it
 // is. For the linear models this is the Sherman–Morrison–Woodbury update of
 // the inverse normal matrix (Sherman and Morrison 1950, Ann. Math. Stat.
-// 21(1):124–127, cited from memory); for a rigid motion or a similarity it is exact for a
-// landmark whose target lies where the fit predicts it and holds to first
-// order otherwise.
+// 21(1):124–127, cited from memory); for a rigid motion or a similarity
+// it is exact for a landmark whose target lies where the fit predicts it
+// and holds to first order otherwise.
 //
 // # The search
 //
