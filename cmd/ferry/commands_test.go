@@ -185,10 +185,7 @@ func TestExtremeNumbers(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := t.TempDir()
 			path := writeFile(t, filepath.Join(dir, "landmarks.csv"), tc.content)
-			want := make([]string, len(tc.want))
-			for i, w := range tc.want {
-				want[i] = strings.ReplaceAll(w, "FILE", path)
-			}
+			want := naming(path, tc.want)
 			for _, model := range []string{"auto", "translation", "rigid", "affine", "tps"} {
 				refusesAndWritesNothing(t, dir, []string{"fit", path, "--model", model, "-o", filepath.Join(dir, "t.json")}, want)
 				refusesAndWritesNothing(t, dir, []string{"check", path, "--model", model, "--json"}, want)

@@ -109,10 +109,7 @@ func TestBadLandmarks(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := t.TempDir()
 			path := writeFile(t, filepath.Join(dir, "landmarks.csv"), tc.content)
-			want := make([]string, len(tc.want))
-			for i, w := range tc.want {
-				want[i] = strings.ReplaceAll(w, "FILE", path)
-			}
+			want := naming(path, tc.want)
 			for _, command := range []string{"fit", "check"} {
 				args := append([]string{command, path}, tc.flags...)
 				if command == "fit" {
@@ -184,10 +181,7 @@ func TestBadCells(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := t.TempDir()
 			path := writeFile(t, filepath.Join(dir, "cells.csv"), tc.content)
-			want := make([]string, len(tc.want))
-			for i, w := range tc.want {
-				want[i] = strings.ReplaceAll(w, "FILE", path)
-			}
+			want := naming(path, tc.want)
 			for _, inverse := range []bool{false, true} {
 				args := append([]string{"map", fx.transform, path, "-o", filepath.Join(dir, "mapped.csv")}, tc.flags...)
 				if inverse {
@@ -230,10 +224,7 @@ func TestBadTransformFiles(t *testing.T) {
 				mustSucceed(t, "map", path, fx.cells, "-o", filepath.Join(dir, "mapped.csv"))
 				return
 			}
-			want := make([]string, len(tc.want))
-			for i, w := range tc.want {
-				want[i] = strings.ReplaceAll(w, "FILE", path)
-			}
+			want := naming(path, tc.want)
 			refusesAndWritesNothing(t, dir, []string{"map", path, fx.cells, "-o", filepath.Join(dir, "mapped.csv")}, want)
 		})
 	}

@@ -235,6 +235,16 @@ func sameFolder(before, after map[string][]byte) string {
 	return ""
 }
 
+// naming puts path in place of every "FILE" in the expected parts of a
+// message.
+func naming(path string, want []string) []string {
+	out := make([]string, len(want))
+	for i, w := range want {
+		out[i] = strings.ReplaceAll(w, "FILE", path)
+	}
+	return out
+}
+
 // oneLine checks that a failed run said what was wrong in exactly one line
 // of stderr holding every one of want.
 func oneLine(t testing.TB, o outcome, want ...string) {
