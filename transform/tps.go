@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
 	"sync"
 
 	"gonum.org/v1/gonum/blas"
@@ -925,26 +924,35 @@ func (sys *splineSystem) inverseDiagonal() ([]float64, error) {
 	if !invertUpper(blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: n, Stride: n, Data: g[m*n:]}) {
 		return nil, errors.New("thin-plate spline leave-one-out: the Cholesky factor is singular")
 	}
-	diag := make([]float64, N)
-	var mu sync.Mutex
-	parallelRows(n, func(c0, c1 int) {
-		for k := m - 1; k >= 0; k-- {
-			reflectColumns(g, n, N, c0, c1, sys.v[k], sys.tau[k], k)
-		}
-		part := make([]float64, N)
-		for i := range N {
-			s := 0.0
-			for _, x := range g[i*n+c0 : i*n+c1] {
-				s += x * x
+	// The squared row norms are summed over fixed blocks of columns and
+	// the blocks' sums added in block order, so that the diagonal is the
+	// same to the last bit whatever the number of cores: with a block per
+	// core, one core and two added the columns in different groups.
+	const block = 64
+	nb := (n + block - 1) / block
+	parts := make([]float64, nb*N)
+	ParallelRanges(nb, 1, func(b0, b1 int) {
+		for b := b0; b < b1; b++ {
+			c0, c1 := b*block, min((b+1)*block, n)
+			for k := m - 1; k >= 0; k-- {
+				reflectColumns(g, n, N, c0, c1, sys.v[k], sys.tau[k], k)
 			}
-			part[i] = s
+			part := parts[b*N : (b+1)*N]
+			for i := range N {
+				s := 0.0
+				for _, x := range g[i*n+c0 : i*n+c1] {
+					s += x * x
+				}
+				part[i] = s
+			}
 		}
-		mu.Lock()
-		for i, s := range part {
+	})
+	diag := make([]float64, N)
+	for b := range nb {
+		for i, s := range parts[b*N : (b+1)*N] {
 			diag[i] += s
 		}
-		mu.Unlock()
-	})
+	}
 	return diag, nil
 }
 
@@ -957,7 +965,10 @@ func (sys *splineSystem) inverseDiagonal() ([]float64, error) {
 // two matrix products), costing k³/3 and (n³ − k³)/3 flops respectively.
 func invertUpper(t blas64.Triangular) bool {
 	n := t.N
-	if runtime.GOMAXPROCS(0) < 2 || n < 256 {
+	// The split depends on n alone, not on the cores there are, so that
+	// the inverse is the same to the last bit on one core and on many; on
+	// one core it costs the same flops as dtrtri.
+	if n < 256 {
 		return lapack64.Trtri(t)
 	}
 	k := int(float64(n) * math.Pow(2, -1.0/3))

@@ -1,0 +1,29 @@
+package transform
+
+import (
+	"fmt"
+	"runtime"
+	"testing"
+)
+
+// A spline fit with leave-one-out is the same to the last bit on one core
+// and on several: the work split across cores must not regroup any sum.
+// 400 pairs take the paths that split work by columns and that invert the
+// Cholesky factor in two blocks.
+func TestSplineFitSameOnAnyCores(t *testing.T) {
+	src, dst := benchLandmarks(400)
+	fit := func(procs int) string {
+		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+		res, err := Fit(TPS, 3, src, dst, Options{Smoothing: 0.5, LeaveOneOut: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return fmt.Sprintf("%x %x %x", res.LOO, res.LOOFactor, res.Transform.(*Spline).Weights)
+	}
+	one := fit(1)
+	for _, procs := range []int{2, 3, 4} {
+		if fit(procs) != one {
+			t.Errorf("GOMAXPROCS=%d gives other bits than GOMAXPROCS=1", procs)
+		}
+	}
+}
