@@ -119,6 +119,11 @@ stack is in the target and the plane in the source.`,
 			if err != nil {
 				return err
 			}
+			// Writing an image is not cut short; an interrupt during the
+			// resampling stops it from starting.
+			if err := cmd.Context().Err(); err != nil {
+				return fmt.Errorf("%s not written: %w", f.out, err)
+			}
 			if err := imaging.WriteTIFF(f.out, out); err != nil {
 				return err
 			}
@@ -162,6 +167,9 @@ marked, coloured by status.`,
 				}
 			}
 			img := imaging.Overlay(job.plane, out, marks, imaging.OverlayOptions{})
+			if err := cmd.Context().Err(); err != nil {
+				return fmt.Errorf("%s not written: %w", f.out, err)
+			}
 			if err := imaging.WritePNG(f.out, img); err != nil {
 				return err
 			}
