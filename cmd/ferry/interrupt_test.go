@@ -14,8 +14,8 @@ import (
 	"time"
 )
 
-// TestCancelledBeforeWriting runs map with a context cancelled before the
-// output is renamed into place: exit 1, one line saying so, the earlier
+// TestCancelledBeforeWriting runs the commands that write with a context
+// cancelled before the output is renamed into place: exit 1, one line saying so, the earlier
 // output byte for byte as it was and no temporary file.
 func TestCancelledBeforeWriting(t *testing.T) {
 	fx := newFixture(t)
@@ -23,9 +23,12 @@ func TestCancelledBeforeWriting(t *testing.T) {
 	out := writeFile(t, filepath.Join(dir, "mapped.csv"), "an earlier output\n")
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
+	sc := newScenarioFixture(t)
 	for _, args := range [][]string{
 		{"map", fx.transform, fx.cells, "-o", out},
 		{"fit", fx.landmarks, "-o", out},
+		append([]string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}, sc.imageFlags()...),
+		append([]string{"overlay", sc.transform, sc.stack, sc.plane, "-o", out}, sc.imageFlags()...),
 	} {
 		before := snapshot(t, dir)
 		o := ferryContext(ctx, args...)
