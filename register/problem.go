@@ -60,7 +60,9 @@ func ParseSmoothing(s string) (Smoothing, error) {
 		return Smoothing{Auto: true}, nil
 	}
 	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+	// ParseFloat also reads hexadecimal and digit separators, which no
+	// other number ferry reads accepts.
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || strings.ContainsAny(s, "xX_") {
 		return Smoothing{}, fmt.Errorf("--smoothing: want \"auto\" or a number ≥ 0, got %q", s)
 	}
 	if v < 0 {
