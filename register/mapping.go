@@ -77,11 +77,11 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 // own localisation error (µm per axis, one standard deviation), in the space
 // it is given in.
 func (m *Mapper) Map(x transform.Vec, cellSD *transform.Vec) Mapped {
-	return m.finishForward(x, m.t.Apply(x), m.pred.Factor(x), cellSD)
+	return m.finishForward(x, m.pred.Factor(x), cellSD)
 }
 
-func (m *Mapper) finishForward(x, y transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
-	jac := m.t.Jacobian(x)
+func (m *Mapper) finishForward(x transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
+	y, jac := transform.ApplyWithJacobian(m.t, x)
 	cov := m.covariance(factor, jac, cellSD)
 	return m.finish(Mapped{Pos: y, Cov: cov}, x, jac)
 }
@@ -225,7 +225,7 @@ func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool)
 		case inverse:
 			out[i] = m.finishInverse(src[i], factors[i], cellSD)
 		default:
-			out[i] = m.finishForward(src[i], m.t.Apply(src[i]), factors[i], cellSD)
+			out[i] = m.finishForward(src[i], factors[i], cellSD)
 		}
 	})
 	return out
