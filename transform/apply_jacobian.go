@@ -12,7 +12,8 @@ func ApplyWithJacobian(t Transform, p Vec) (Vec, Mat) {
 	return t.Apply(p), t.Jacobian(p)
 }
 
-// applyJacobian is Apply and Jacobian sharing each node's distance.
+// applyJacobian is Apply and Jacobian sharing each node's distance: the
+// one place the 3-D spline's derivative is computed.
 func (s *Spline) applyJacobian(p Vec) (Vec, Mat) {
 	if s.Dimension == 2 {
 		return s.Apply(p), s.Jacobian(p)

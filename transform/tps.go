@@ -163,44 +163,28 @@ func (s *Spline) Apply(p Vec) Vec {
 // kernel has a cone point and no derivative; its term is taken as zero there
 // (the symmetric choice; the 2-D term tends to zero anyway).
 func (s *Spline) Jacobian(p Vec) Mat {
+	if s.Dimension == 3 {
+		// One loop serves both; the map's three sums cost little beside
+		// the square root.
+		_, j := s.applyJacobian(p)
+		return j
+	}
 	x := (p[0] - s.Centre[0]) * s.invScale
 	y := (p[1] - s.Centre[1]) * s.invScale
 	ux, uy, wx, wy := s.ux, s.uy, s.wx, s.wy
 	n := len(ux)
 	uy, wx, wy = uy[:n], wx[:n], wy[:n]
 	var g Mat // Σ_j w_j ⊗ ∇_u φ_j
-	if s.Dimension == 2 {
-		for j := range ux {
-			dx, dy := x-ux[j], y-uy[j]
-			r2 := dx*dx + dy*dy
-			if r2 > 0 {
-				c := math.Log(r2) + 1
-				gx, gy := c*dx, c*dy
-				g[0][0] += wx[j] * gx
-				g[0][1] += wx[j] * gy
-				g[1][0] += wy[j] * gx
-				g[1][1] += wy[j] * gy
-			}
-		}
-	} else {
-		z := (p[2] - s.Centre[2]) * s.invScale
-		uz, wz := s.uz[:n], s.wz[:n]
-		for j := range ux {
-			dx, dy, dz := x-ux[j], y-uy[j], z-uz[j]
-			r := math.Sqrt(dx*dx + dy*dy + dz*dz)
-			if r > 0 {
-				inv := -1 / r
-				gx, gy, gz := dx*inv, dy*inv, dz*inv
-				g[0][0] += wx[j] * gx
-				g[0][1] += wx[j] * gy
-				g[0][2] += wx[j] * gz
-				g[1][0] += wy[j] * gx
-				g[1][1] += wy[j] * gy
-				g[1][2] += wy[j] * gz
-				g[2][0] += wz[j] * gx
-				g[2][1] += wz[j] * gy
-				g[2][2] += wz[j] * gz
-			}
+	for j := range ux {
+		dx, dy := x-ux[j], y-uy[j]
+		r2 := dx*dx + dy*dy
+		if r2 > 0 {
+			c := math.Log(r2) + 1
+			gx, gy := c*dx, c*dy
+			g[0][0] += wx[j] * gx
+			g[0][1] += wx[j] * gy
+			g[1][0] += wy[j] * gx
+			g[1][1] += wy[j] * gy
 		}
 	}
 	j := s.Matrix

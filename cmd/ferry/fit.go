@@ -25,13 +25,9 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 			if err := requireOutput(out, args[0]); err != nil {
 				return err
 			}
-			job, err := flags.load(args[0])
+			job, a, err := flags.assess(args[0])
 			if err != nil {
 				return err
-			}
-			a, err := register.Assess(job.problem, job.settings)
-			if err != nil {
-				return fmt.Errorf("%s: %w", args[0], err)
 			}
 			inputs, err := inputsOf(args[0])
 			if err != nil {
@@ -82,13 +78,9 @@ leave-one-out error exceeds --max-error.`,
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
 				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)
 			}
-			job, err := flags.load(args[0])
+			_, a, err := flags.assess(args[0])
 			if err != nil {
 				return err
-			}
-			a, err := register.Assess(job.problem, job.settings)
-			if err != nil {
-				return fmt.Errorf("%s: %w", args[0], err)
 			}
 			w := cmd.OutOrStdout()
 			if asJSON {

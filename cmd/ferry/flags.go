@@ -92,6 +92,48 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 	return &job, nil
 }
 
+// assess loads the landmark file with the flags and runs the check on it.
+func (f *modelFlags) assess(path string) (*landmarkJob, *register.Assessment, error) {
+	job, err := f.load(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	a, err := register.Assess(job.problem, job.settings)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return job, a, nil
+}
+
+// mappingJob is a transform file with cells to map through it.
+type mappingJob struct {
+	file   *transform.File
+	cells  *landmarks.PointSet
+	pos    []transform.Vec
+	cellSD *transform.Vec
+	mapper *register.Mapper
+}
+
+// loadMapping reads a transform file and a cells file (in the target when
+// inverse) and prepares their mapping, for map and match.
+func loadMapping(transformPath, cellsPath, cellSD string, inverse bool) (*mappingJob, error) {
+	var j mappingJob
+	var err error
+	if j.file, err = transform.ReadFile(transformPath); err != nil {
+		return nil, err
+	}
+	if j.cells, j.pos, err = register.ReadCells(cellsPath, "cells", j.file, inverse); err != nil {
+		return nil, err
+	}
+	if j.cellSD, err = optionalTriple("--cell-sd", cellSD, j.cells.Dim); err != nil {
+		return nil, err
+	}
+	if j.mapper, err = register.NewMapper(j.file); err != nil {
+		return nil, fmt.Errorf("%s: %w", transformPath, err)
+	}
+	return &j, nil
+}
+
 // setFlags lists the flags the user set, as given, for provenance.
 func setFlags(cmd *cobra.Command) []string {
 	var out []string

@@ -28,23 +28,12 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			if err := requireOutput(out, args...); err != nil {
 				return err
 			}
-			file, err := transform.ReadFile(args[0])
+			job, err := loadMapping(args[0], args[1], cellSD, inverse)
 			if err != nil {
 				return err
 			}
-			cells, pos, err := register.ReadCells(args[1], "cells", file, inverse)
-			if err != nil {
-				return err
-			}
-			sd, err := optionalTriple("--cell-sd", cellSD, cells.Dim)
-			if err != nil {
-				return err
-			}
-			mapper, err := register.NewMapper(file)
-			if err != nil {
-				return fmt.Errorf("%s: %w", args[0], err)
-			}
-			mapped := mapper.MapAll(pos, sd, inverse)
+			file, cells := job.file, job.cells
+			mapped := job.mapper.MapAll(job.pos, job.cellSD, inverse)
 			voxel := file.TargetVoxel
 			if inverse {
 				voxel = file.SourceVoxel

@@ -13,7 +13,6 @@ import (
 	"ferry/register"
 	"ferry/register/match"
 	"ferry/register/outfile"
-	"ferry/transform"
 )
 
 // maxAmbiguousListed bounds the ambiguous cells printed; the output file
@@ -49,27 +48,16 @@ the nearest one. See docs/matching.md for the method.`,
 			if err != nil {
 				return err
 			}
-			file, err := transform.ReadFile(args[0])
+			job, err := loadMapping(args[0], args[1], cellSD, false)
 			if err != nil {
 				return err
 			}
-			cells, pos, err := register.ReadCells(args[1], "cells", file, false)
+			cells := job.cells
+			cands, candPos, err := register.ReadCells(args[2], "candidates", job.file, true)
 			if err != nil {
 				return err
 			}
-			cands, candPos, err := register.ReadCells(args[2], "candidates", file, true)
-			if err != nil {
-				return err
-			}
-			sd, err := optionalTriple("--cell-sd", cellSD, cells.Dim)
-			if err != nil {
-				return err
-			}
-			mapper, err := register.NewMapper(file)
-			if err != nil {
-				return fmt.Errorf("%s: %w", args[0], err)
-			}
-			res, err := match.Match(mapper, pos, sd, candPos, match.Options{
+			res, err := match.Match(job.mapper, job.pos, job.cellSD, candPos, match.Options{
 				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
 				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands),
 			})

@@ -94,13 +94,9 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 // reportFromLandmarks checks and fits the landmarks with the flags, as fit
 // does, for a report without a transform file.
 func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags, path string) error {
-	job, err := flags.load(path)
+	job, a, err := flags.assess(path)
 	if err != nil {
 		return err
-	}
-	a, err := register.Assess(job.problem, job.settings)
-	if err != nil {
-		return fmt.Errorf("%s: %w", path, err)
 	}
 	hashes, err := inputsOf(path)
 	if err != nil {

@@ -46,13 +46,9 @@ See docs/suggest.md.`,
 			if n < 1 {
 				return fmt.Errorf("--n: want a positive number of landmarks, got %d", n)
 			}
-			job, err := flags.load(args[0])
+			job, a, err := flags.assess(args[0])
 			if err != nil {
 				return err
-			}
-			a, err := register.Assess(job.problem, job.settings)
-			if err != nil {
-				return fmt.Errorf("%s: %w", args[0], err)
 			}
 			hashes, err := inputsOf(inputs...)
 			if err != nil {
