@@ -14,7 +14,7 @@ import (
 
 // The thin-plate spline of the contract (Bookstein 1989, IEEE TPAMI
 // 11(6):567–585; Duchon 1977, Constructive Theory of Functions of Several
-// Variables, Lecture Notes in Mathematics 571; Wahba 1990, Spline Models for
+// Variables, Springer LNM 571; Wahba 1990, Spline Models for
 // Observational Data, SIAM) maps a source point p to
 //
 //	f(p) = a₀ + A·p + Σ_j w_j φ(|p − p_j|),
