@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/spatial/kdtree"
 
 	"ferry/transform"
@@ -293,10 +294,16 @@ func newSupportHull(points []transform.Vec, dim int) supportHull {
 			h.dirs = append(h.dirs, transform.Vec{r * math.Cos(a), r * math.Sin(a), z})
 		}
 		// The axes too, so that the polytope lies inside the bounding
-		// box that the classification grid covers.
+		// box that the classification grid covers, and the landmarks'
+		// principal axes, so that the faces of a box-like cloud (a block
+		// cut along its own axes) are met squarely rather than by planes a
+		// few degrees off, which would push the middle of a face outwards.
 		for k := range 3 {
 			var d transform.Vec
 			d[k] = 1
+			h.dirs = append(h.dirs, d, d.Scale(-1))
+		}
+		for _, d := range principalAxes(points) {
 			h.dirs = append(h.dirs, d, d.Scale(-1))
 		}
 	}
@@ -399,6 +406,32 @@ func (h *supportHull) classify(points []transform.Vec) {
 			}
 		}
 	}
+}
+
+// principalAxes are the unit eigenvectors of the points' covariance (none
+// when it cannot be factorised).
+func principalAxes(points []transform.Vec) []transform.Vec {
+	c := centroidOf(points)
+	cov := mat.NewSymDense(3, nil)
+	for _, p := range points {
+		d := p.Sub(c)
+		for i := range 3 {
+			for j := i; j < 3; j++ {
+				cov.SetSym(i, j, cov.At(i, j)+d[i]*d[j])
+			}
+		}
+	}
+	var es mat.EigenSym
+	if !es.Factorize(cov, true) {
+		return nil
+	}
+	var v mat.Dense
+	es.VectorsTo(&v)
+	axes := make([]transform.Vec, 3)
+	for k := range 3 {
+		axes[k] = transform.Vec{v.At(0, k), v.At(1, k), v.At(2, k)}
+	}
+	return axes
 }
 
 func (h supportHull) contains(x transform.Vec) bool {

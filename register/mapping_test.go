@@ -52,3 +52,34 @@ func TestSupportHullGrid(t *testing.T) {
 		}
 	}
 }
+
+// A block of landmarks cut along tilted axes: the middle of each face is
+// the hull's edge to within a micrometre, not the few micrometres a plane a
+// few degrees off the face would allow.
+func TestSupportHullTiltedBlock(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 1))
+	rot := randomRotation(rng, 3)
+	var pts []transform.Vec
+	for i := range 2 {
+		for j := range 2 {
+			for k := range 2 {
+				pts = append(pts, rot.MulVec(transform.Vec{float64(i) * 500, float64(j) * 400, float64(k) * 300}))
+			}
+		}
+	}
+	h := newSupportHull(pts, 3)
+	for _, tc := range []struct {
+		local transform.Vec
+		want  bool
+	}{
+		{transform.Vec{250, 200, 299}, true},
+		{transform.Vec{250, 200, 301}, false},
+		{transform.Vec{501, 200, 150}, false},
+		{transform.Vec{499, 200, 150}, true},
+		{transform.Vec{250, -1, 150}, false},
+	} {
+		if got := h.contains(rot.MulVec(tc.local)); got != tc.want {
+			t.Errorf("point %v of the block: inside %v, want %v", tc.local, got, tc.want)
+		}
+	}
+}
