@@ -25,9 +25,11 @@ const localNodes = 64
 // the whole set's, so the neighbourhood variance is never below the exact
 // one: the approximation only ever widens a radius. The tests bound how much.
 //
-// The grid's cell is the median distance from a node to its nearest
-// neighbour, so a cell's points all lie well inside the neighbourhood of its
-// centre. Cells are built when first needed and kept; the predictor is safe
+// The grid's cell is twice the median distance from a node to its nearest
+// neighbour: a 64-node neighbourhood reaches about four such distances from
+// its centre, so a cell's points all lie well inside it, and cells are few
+// enough that building their systems costs less than using them (a cell of
+// one spacing left the radii as they are and doubled the time). Cells are built when first needed and kept; the predictor is safe
 // for concurrent use.
 type localPredictor struct {
 	s    *Spline
@@ -49,7 +51,7 @@ func newLocalPredictor(s *Spline) (*localPredictor, error) {
 			p.lo[k] = math.Min(p.lo[k], q[k])
 		}
 	}
-	p.cell = medianNearest(s.Nodes)
+	p.cell = 2 * medianNearest(s.Nodes)
 	if !(p.cell > 0) {
 		p.cell = s.Scale / 4
 	}
