@@ -74,3 +74,21 @@ func BenchmarkMapMillionCells(b *testing.B) {
 	}
 	b.ReportMetric(peak, "peak-MB")
 }
+
+// BenchmarkMapCommand is the whole map command as a user runs it — read the
+// transform file and 100,000 cells, map them through a 300-landmark spline
+// with their uncertainty, write the table — less only the process start.
+func BenchmarkMapCommand(b *testing.B) {
+	dir := b.TempDir()
+	landmarks := writeFile(b, filepath.Join(dir, "landmarks.csv"), landmarkCSV(300))
+	tr := filepath.Join(dir, "transform.json")
+	mustSucceed(b, "fit", landmarks, "--model", "tps", "--smoothing", "10", "-o", tr)
+	cells := writeFile(b, filepath.Join(dir, "cells.csv"), cellsCSV(100_000))
+	out := filepath.Join(dir, "mapped.csv")
+	b.ResetTimer()
+	for range b.N {
+		if o := ferry(b, "map", tr, cells, "--cell-sd", "0.8,0.8,3", "-o", out); o.code != exitOK {
+			b.Fatal(o)
+		}
+	}
+}
