@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"testing"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // benchLandmarks returns n 3-D pairs spread over a 1 mm cube at EM-like
@@ -72,4 +74,32 @@ func BenchmarkSplineApplyOne(b *testing.B) {
 		sink = sink.Add(sp.Apply(p))
 	}
 	_ = sink
+}
+
+// BenchmarkProjectedEigen is the eigendecomposition (vectors included) of
+// the projected kernel that a search over every smoothing at once would
+// start from; docs/methods.md compares it with the grid search that
+// BenchmarkSplineFitLOO times one step of.
+func BenchmarkProjectedEigen(b *testing.B) {
+	for _, n := range []int{300, 1000} {
+		src, _ := benchLandmarks(n)
+		c, s, err := splineNormalisation(3, src)
+		if err != nil {
+			b.Fatal(err)
+		}
+		sys, err := newSplineSystem(3, c, s, src, 0, nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		var proj mat.SymDense
+		sys.chol.ToSym(&proj)
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			for b.Loop() {
+				var es mat.EigenSym
+				if !es.Factorize(&proj, true) {
+					b.Fatal("eigendecomposition failed")
+				}
+			}
+		})
+	}
 }
