@@ -37,12 +37,16 @@ type Mapped struct {
 // Mapper maps points through a fitted transform with their uncertainty. It is
 // safe for concurrent use.
 type Mapper struct {
-	t        transform.Transform
-	pred     transform.Predictor
-	u        *UncertaintyModel
-	dim      int
-	hull     supportHull
-	tree     *kdtree.Tree
+	t    transform.Transform
+	pred transform.Predictor
+	u    *UncertaintyModel
+	dim  int
+	hull supportHull
+	tree *kdtree.Tree
+	// near classifies the hull's boxes for the isolated status: +1 near
+	// a landmark throughout, −1 far throughout, 0 to be asked point by
+	// point.
+	near     []int8
 	radii    *RadiusTable
 	handSign float64
 }
@@ -65,6 +69,7 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 		tree:  newPointTree(u.Source),
 		radii: Radius95(dim),
 	}
+	m.classifyNear()
 	// The handedness of the transform as a whole: a fold is where the local
 	// Jacobian disagrees with it.
 	m.handSign = 1
@@ -127,7 +132,7 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 		p.Status = StatusFolded
 	case !m.hull.contains(x):
 		p.Status = StatusExtrapolated
-	case m.nearestLandmark(x) > isolatedSpacings*m.u.Spacing:
+	case m.isolated(x):
 		p.Status = StatusIsolated
 	default:
 		p.Status = StatusOK
@@ -191,6 +196,54 @@ func subtractPickNoise(c, noise transform.Mat, dim int) transform.Mat {
 		c[k][k] = math.Max(c[k][k]-noise[k][k], 0)
 	}
 	return c
+}
+
+// isolated reports that x lies farther than isolatedSpacings typical
+// spacings from every landmark. Only points inside the hull ask, so the
+// hull's classification boxes answer most of them: a box whose centre is
+// within the reach less its half-diagonal is near throughout, one beyond the
+// reach plus it is far throughout, and only the boxes between ask the tree.
+func (m *Mapper) isolated(x transform.Vec) bool {
+	reach := isolatedSpacings * m.u.Spacing
+	if b := m.hull.box(x); b >= 0 {
+		switch m.near[b] {
+		case 1:
+			return false
+		case -1:
+			return true
+		}
+	}
+	return m.nearestLandmark(x) > reach
+}
+
+// classifyNear fills m.near over the hull's boxes.
+func (m *Mapper) classifyNear() {
+	h := &m.hull
+	reach := isolatedSpacings * m.u.Spacing
+	half := 0.5 * math.Sqrt(h.step[0]*h.step[0]+h.step[1]*h.step[1]+h.step[2]*h.step[2])
+	m.near = make([]int8, len(h.class))
+	for k := range h.n[2] {
+		for j := range h.n[1] {
+			for i := range h.n[0] {
+				c := transform.Vec{
+					h.lo[0] + (float64(i)+0.5)*h.step[0],
+					h.lo[1] + (float64(j)+0.5)*h.step[1],
+					h.lo[2] + (float64(k)+0.5)*h.step[2],
+				}
+				if m.dim == 2 {
+					c[2] = 0
+				}
+				d := m.nearestLandmark(c)
+				b := (k*h.n[1]+j)*h.n[0] + i
+				switch {
+				case d+half < reach:
+					m.near[b] = 1
+				case d-half > reach:
+					m.near[b] = -1
+				}
+			}
+		}
+	}
 }
 
 func (m *Mapper) nearestLandmark(x transform.Vec) float64 {
@@ -434,23 +487,31 @@ func principalAxes(points []transform.Vec) []transform.Vec {
 	return axes
 }
 
-func (h supportHull) contains(x transform.Vec) bool {
+// box is the index of the classification box that holds x, or −1 when x
+// lies outside the bounding box (beyond a rounding margin).
+func (h *supportHull) box(x transform.Vec) int {
 	var idx [3]int
 	for k := range h.dim {
 		if h.step[k] == 0 {
 			continue
 		}
 		f := (x[k] - h.lo[k]) / h.step[k]
-		if f < 0 || f > float64(h.n[k]) {
-			// Outside the bounding box, hence outside the hull, up to
-			// the tolerance the planes allow.
-			if f < -1e-6 || f > float64(h.n[k])+1e-6 {
-				return false
-			}
+		if f < -1e-6 || f > float64(h.n[k])+1e-6 {
+			return -1
 		}
 		idx[k] = min(max(int(f), 0), h.n[k]-1)
 	}
-	switch h.class[(idx[2]*h.n[1]+idx[1])*h.n[0]+idx[0]] {
+	return (idx[2]*h.n[1]+idx[1])*h.n[0] + idx[0]
+}
+
+func (h supportHull) contains(x transform.Vec) bool {
+	b := h.box(x)
+	if b < 0 {
+		// Outside the bounding box, hence outside the hull, up to the
+		// tolerance the planes allow.
+		return false
+	}
+	switch h.class[b] {
 	case 1:
 		return true
 	case -1:

@@ -83,3 +83,18 @@ func TestSupportHullTiltedBlock(t *testing.T) {
 		}
 	}
 }
+
+// The boxes' verdicts on isolation agree with asking the tree at every
+// point.
+func TestIsolatedGrid(t *testing.T) {
+	rng := rand.New(rand.NewPCG(2, 7))
+	p := synthetic(rng, 30, affineTruth, transform.Vec{0.5, 0.5, 1})
+	m, _ := mapperFor(t, p, Settings{Model: transform.Affine})
+	reach := isolatedSpacings * m.u.Spacing
+	for range 20000 {
+		x := transform.Vec{rng.Float64() * 500, rng.Float64() * 500, rng.Float64() * 300}
+		if got, want := m.isolated(x), m.nearestLandmark(x) > reach; got != want {
+			t.Fatalf("isolated(%v) = %v, the tree says %v", x, got, want)
+		}
+	}
+}
