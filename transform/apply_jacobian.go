@@ -26,27 +26,41 @@ func (s *Spline) applyJacobian(p Vec) (Vec, Mat) {
 	n := len(ux)
 	uy, uz, wx, wy, wz = uy[:n], uz[:n], wx[:n], wy[:n], wz[:n]
 	var fx, fy, fz float64
-	var g Mat
-	for j := range ux {
-		dx, dy, dz := x-ux[j], y-uy[j], z-uz[j]
-		r := math.Sqrt(dx*dx + dy*dy + dz*dz)
-		fx += wx[j] * r
-		fy += wy[j] * r
-		fz += wz[j] * r
-		if r > 0 {
-			inv := -1 / r
-			gx, gy, gz := dx*inv, dy*inv, dz*inv
-			g[0][0] += wx[j] * gx
-			g[0][1] += wx[j] * gy
-			g[0][2] += wx[j] * gz
-			g[1][0] += wy[j] * gx
-			g[1][1] += wy[j] * gy
-			g[1][2] += wy[j] * gz
-			g[2][0] += wz[j] * gx
-			g[2][1] += wz[j] * gy
-			g[2][2] += wz[j] * gz
+	var g00, g01, g02, g10, g11, g12, g20, g21, g22 float64
+	// Nodes go in chunks: the square roots and divisions of a chunk are
+	// independent of each other and pipeline, where one long loop that
+	// also accumulates waits on each in turn.
+	const chunk = 64
+	var rs, invs [chunk]float64
+	for c0 := 0; c0 < n; c0 += chunk {
+		c1 := min(c0+chunk, n)
+		for j := c0; j < c1; j++ {
+			dx, dy, dz := x-ux[j], y-uy[j], z-uz[j]
+			r := math.Sqrt(dx*dx + dy*dy + dz*dz)
+			rs[j-c0] = r
+			invs[j-c0] = 0
+			if r > 0 {
+				invs[j-c0] = -1 / r
+			}
+		}
+		for j := c0; j < c1; j++ {
+			r, inv := rs[j-c0], invs[j-c0]
+			fx += wx[j] * r
+			fy += wy[j] * r
+			fz += wz[j] * r
+			gx, gy, gz := (x-ux[j])*inv, (y-uy[j])*inv, (z-uz[j])*inv
+			g00 += wx[j] * gx
+			g01 += wx[j] * gy
+			g02 += wx[j] * gz
+			g10 += wy[j] * gx
+			g11 += wy[j] * gy
+			g12 += wy[j] * gz
+			g20 += wz[j] * gx
+			g21 += wz[j] * gy
+			g22 += wz[j] * gz
 		}
 	}
+	g := Mat{{g00, g01, g02}, {g10, g11, g12}, {g20, g21, g22}}
 	q[0] -= fx
 	q[1] -= fy
 	q[2] -= fz
