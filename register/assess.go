@@ -201,7 +201,7 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		a.Reason = "asked for with --model"
 	}
 	// The scale of the clean fit's errors, and the verdicts in its terms.
-	a.Scale = axisScale(clean.res, nil, p.Dim)
+	a.Scale = axisScale(clean.res, p.Dim)
 	a.Landmarks = make([]LandmarkCheck, p.Len())
 	for i := range a.Landmarks {
 		a.Landmarks[i] = LandmarkCheck{ID: p.IDs[i], Kind: p.Kinds[i], Score: flags.score[i], Flag: flags.reason[i]}
@@ -754,23 +754,13 @@ func chooseModel(models []ModelScore) (transform.Kind, string) {
 	return b.Model, reason
 }
 
-// axisScale estimates the per-axis scale as the mean standardised square
-// over the landmarks not in skip: the efficient estimate, once the wrong
-// landmarks are known.
-func axisScale(res *transform.Result, skip []bool, dim int) transform.Vec {
-	var s transform.Vec
-	n := 0
-	for i, r := range res.LOO {
-		if skip != nil && skip[i] {
-			continue
-		}
-		n++
-		for k := range dim {
-			s[k] += r[k] * r[k] / res.LOOFactor[i]
-		}
-	}
+// axisScale estimates the per-axis scale as the mean standardised square of
+// a fit's leave-one-out errors: the efficient estimate, for a fit to the
+// landmarks that passed the check.
+func axisScale(res *transform.Result, dim int) transform.Vec {
+	s := axisSums(res, dim)
 	for k := range dim {
-		s[k] /= float64(max(n, 1))
+		s[k] /= float64(max(len(res.LOO), 1))
 	}
 	return floorScale(s, dim)
 }
