@@ -407,21 +407,28 @@ func (h *supportHull) classify(points []transform.Vec) {
 	words := (len(h.dirs) + 63) / 64
 	beyond := make([]uint64, nc[0]*nc[1]*nc[2]*words)
 	inside := make([]bool, nc[0]*nc[1]*nc[2])
-	for k := range nc[2] {
-		for j := range nc[1] {
+	// Corners are independent: classify the layers of them on all cores,
+	// each against the planes in struct-of-arrays form.
+	dx, dy, dz := make([]float64, len(h.dirs)), make([]float64, len(h.dirs)), make([]float64, len(h.dirs))
+	for d, dir := range h.dirs {
+		dx[d], dy[d], dz[d] = dir[0], dir[1], dir[2]
+	}
+	transform.ParallelRanges(nc[2]*nc[1], 1, func(lo, hi int) {
+		for row := lo; row < hi; row++ {
+			k, j := row/nc[1], row%nc[1]
 			for i := range nc[0] {
 				c := (k*nc[1]+j)*nc[0] + i
 				x := corner(i, j, k)
 				inside[c] = true
-				for d, dir := range h.dirs {
-					if dir.Dot(x) > h.reach[d]+h.tol {
+				for d := range dx {
+					if dx[d]*x[0]+dy[d]*x[1]+dz[d]*x[2] > h.reach[d]+h.tol {
 						beyond[c*words+d/64] |= 1 << (d % 64)
 						inside[c] = false
 					}
 				}
 			}
 		}
-	}
+	})
 	h.class = make([]int8, h.n[0]*h.n[1]*h.n[2])
 	for k := range h.n[2] {
 		for j := range h.n[1] {
