@@ -7,6 +7,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf8"
 
 	"ferry/landmarks"
 	"ferry/transform"
@@ -46,18 +48,46 @@ func (p Provenance) Line() string {
 // runs. It refuses a value that is not finite: an output holds numbers a
 // reader can use or nothing at all.
 func formatCoord(x float64) (string, error) {
+	b, err := appendCoord(nil, x)
+	return string(b), err
+}
+
+// appendCoord is formatCoord appending to dst, for rows built without a
+// string a field.
+func appendCoord(dst []byte, x float64) ([]byte, error) {
 	if math.IsNaN(x) || math.IsInf(x, 0) {
-		return "", fmt.Errorf("%v is not a finite number", x)
+		return dst, fmt.Errorf("%v is not a finite number", x)
 	}
 	if x == 0 {
-		// Never "-0.000".
+		// Never "-0.0000".
 		x = 0
 	}
-	s := strconv.FormatFloat(x, 'f', 4, 64)
-	if s == "-0.0000" {
-		return "0.0000", nil
+	start := len(dst)
+	dst = strconv.AppendFloat(dst, x, 'f', 4, 64)
+	if string(dst[start:]) == "-0.0000" {
+		dst = append(dst[:start], "0.0000"...)
 	}
-	return s, nil
+	return dst, nil
+}
+
+// appendField appends one text field of a CSV row, quoted as encoding/csv
+// quotes it (a comma, a quote or a line break inside, a leading space, the
+// field \.) and also when it begins with the comment mark, so that a row
+// whose id begins with # is not read back as a comment.
+func appendField(dst []byte, f string) []byte {
+	lead, _ := utf8.DecodeRuneInString(f)
+	needs := f != "" && (f[0] == '#' || f == `\.` || unicode.IsSpace(lead) || strings.ContainsAny(f, ",\"\r\n"))
+	if !needs {
+		return append(dst, f...)
+	}
+	dst = append(dst, '"')
+	for i := 0; i < len(f); i++ {
+		if f[i] == '"' {
+			dst = append(dst, '"')
+		}
+		dst = append(dst, f[i])
+	}
+	return append(dst, '"')
 }
 
 // WriteMapped writes the mapped cells in the contract's columns: id, x, y, z
@@ -81,13 +111,19 @@ func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped
 	if err := cw.Write(header); err != nil {
 		return err
 	}
-	row := make([]string, 0, len(header))
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	// Rows are built as bytes: a million-cell table would otherwise make
+	// seven strings a row only to copy them.
+	var line []byte
 	for i, c := range cells.Points {
 		m := mapped[i]
-		row = append(row[:0], c.ID)
+		line = appendField(line[:0], c.ID)
 		if m.Status == StatusNoInverse {
 			for range 2*cells.Dim + 1 {
-				row = append(row, "")
+				line = append(line, ',')
 			}
 		} else {
 			var buf [7]float64 // x, y, z, three sds and r95
@@ -102,22 +138,26 @@ func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped
 			values = append(values, m.SD[:cells.Dim]...)
 			values = append(values, m.R95)
 			for k, v := range values {
-				field, err := formatCoord(v)
-				if err != nil {
+				line = append(line, ',')
+				var err error
+				if line, err = appendCoord(line, v); err != nil {
 					return &landmarks.InputError{File: cells.Path, Line: c.Line, Column: header[1+k],
 						Msg: fmt.Sprintf("cell %s: the mapped value %v", strconv.Quote(c.ID), err)}
 				}
-				row = append(row, field)
 			}
 		}
-		row = append(row, m.Status)
-		row = append(row, c.Extra...)
-		if err := cw.Write(row); err != nil {
+		line = append(line, ',')
+		line = appendField(line, m.Status)
+		for _, e := range c.Extra {
+			line = append(line, ',')
+			line = appendField(line, e)
+		}
+		line = append(line, '\n')
+		if _, err := w.Write(line); err != nil {
 			return err
 		}
 	}
-	cw.Flush()
-	return cw.Error()
+	return nil
 }
 
 // FormatCounts lists status counts in the order of seriousness.
