@@ -5,62 +5,14 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"gonum.org/v1/gonum/mat"
 )
 
 // denseVariance computes −vᵀM⁻¹v directly from the bordered system in
 // micrometres, as the contract writes it: the reference for the factored
-// predictor.
+// predictor. It is the covariance of x with itself (denseCross).
 func denseVariance(t *testing.T, dim int, nodes []Vec, smoothing float64, weights []float64, x Vec) float64 {
 	t.Helper()
-	N, m := len(nodes), dim+1
-	phi := func(r float64) float64 {
-		if dim == 3 {
-			return -r
-		}
-		if r == 0 {
-			return 0
-		}
-		return r * r * math.Log(r)
-	}
-	mean := 1.0
-	if weights != nil {
-		mean = 0
-		for _, w := range weights {
-			mean += w
-		}
-		mean /= float64(N)
-	}
-	M := mat.NewDense(N+m, N+m, nil)
-	for i := range N {
-		for j := range N {
-			M.Set(i, j, phi(nodes[i].Sub(nodes[j]).Norm()))
-		}
-		d := 1.0
-		if weights != nil {
-			d = mean / weights[i]
-		}
-		M.Set(i, i, smoothing*d)
-		M.Set(i, N, 1)
-		M.Set(N, i, 1)
-		for l := range dim {
-			M.Set(i, N+1+l, nodes[i][l])
-			M.Set(N+1+l, i, nodes[i][l])
-		}
-	}
-	var inv mat.Dense
-	if err := inv.Inverse(M); err != nil {
-		t.Fatal(err)
-	}
-	v := mat.NewVecDense(N+m, nil)
-	for j := range N {
-		v.SetVec(j, phi(x.Sub(nodes[j]).Norm()))
-	}
-	v.SetVec(N, 1)
-	for l := range dim {
-		v.SetVec(N+1+l, x[l])
-	}
-	return -mat.Inner(v, &inv, v)
+	return denseCross(t, dim, nodes, smoothing, weights, []Vec{x}, []Vec{x}).At(0, 0)
 }
 
 func randomNodes(rng *rand.Rand, n, dim int, offset float64) ([]Vec, []Vec) {
