@@ -4,7 +4,6 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
-
 )
 
 // denseVariance computes −vᵀM⁻¹v directly from the bordered system in
