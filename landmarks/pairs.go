@@ -146,24 +146,10 @@ func ParsePairs(name string, r io.Reader) (*PairSet, error) {
 				return nil, err
 			}
 		}
-		if len(extraCols) > 0 {
-			p.Extra = block.take(len(extraCols))
-			for k, i := range extraCols {
-				p.Extra[k] = t.record[i]
-			}
-		} else {
-			// Without extra values nothing else holds on to the row's
-			// text; a copy of the id lets it go.
-			p.ID = strings.Clone(p.ID)
-		}
+		p.Extra = t.extraValues(&block, extraCols, &p.ID)
 		seen[p.ID] = p.Line
 		set.Pairs = append(set.Pairs, p)
-		if len(set.Pairs) == sampleRows {
-			if n := t.estimateRows(sampleRows); n > cap(set.Pairs) {
-				set.Pairs = append(make([]Pair, 0, n), set.Pairs...)
-				seen = regrow(seen, n)
-			}
-		}
+		set.Pairs, seen = sized(t, set.Pairs, seen)
 	}
 	if len(set.Pairs) == 0 {
 		return nil, &InputError{File: name, Msg: "no landmark pairs: the header is not followed by any rows"}

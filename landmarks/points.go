@@ -2,7 +2,6 @@ package landmarks
 
 import (
 	"io"
-	"strings"
 
 	"ferry/transform"
 )
@@ -101,24 +100,10 @@ func ParsePoints(name, what string, r io.Reader) (*PointSet, error) {
 				return nil, err
 			}
 		}
-		if len(extraCols) > 0 {
-			p.Extra = block.take(len(extraCols))
-			for k, i := range extraCols {
-				p.Extra[k] = t.record[i]
-			}
-		} else {
-			// Without extra values nothing else holds on to the row's
-			// text; a copy of the id lets it go.
-			p.ID = strings.Clone(p.ID)
-		}
+		p.Extra = t.extraValues(&block, extraCols, &p.ID)
 		seen[p.ID] = p.Line
 		set.Points = append(set.Points, p)
-		if len(set.Points) == sampleRows {
-			if n := t.estimateRows(sampleRows); n > cap(set.Points) {
-				set.Points = append(make([]Point, 0, n), set.Points...)
-				seen = regrow(seen, n)
-			}
-		}
+		set.Points, seen = sized(t, set.Points, seen)
 	}
 	if len(set.Points) == 0 {
 		return nil, &InputError{File: name, Msg: "no " + what + ": the header is not followed by any rows"}

@@ -356,3 +356,29 @@ func ioMessage(err error) string {
 	}
 	return err.Error()
 }
+
+// extraValues returns the row's values of the extra columns, taken from
+// block. Without extra columns nothing else holds on to the row's text, so
+// the id is copied instead and nil returned: the row's text can then go.
+func (t *table) extraValues(block *stringBlock, extraCols []int, id *string) []string {
+	if len(extraCols) == 0 {
+		*id = strings.Clone(*id)
+		return nil
+	}
+	extra := block.take(len(extraCols))
+	for k, i := range extraCols {
+		extra[k] = t.record[i]
+	}
+	return extra
+}
+
+// sized grows rows, once sampleRows of them are read, to the number the
+// file's size suggests, and the id map with it.
+func sized[T any](t *table, rows []T, seen map[string]int) ([]T, map[string]int) {
+	if len(rows) == sampleRows {
+		if n := t.estimateRows(sampleRows); n > cap(rows) {
+			return append(make([]T, 0, n), rows...), regrow(seen, n)
+		}
+	}
+	return rows, seen
+}
