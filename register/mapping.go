@@ -112,7 +112,7 @@ func (m *Mapper) finishInverse(x transform.Vec, factor transform.Mat, cellSD *tr
 	}
 	cov := m.covariance(factor, jac, nil)
 	if cellSD != nil {
-		cov = subtractPickNoise(cov, m.landmarkNoise(jac), m.dim)
+		cov = subtractPickNoise(cov, m.u.landmarkNoise(jac, m.dim), m.dim)
 		for k := range m.dim {
 			cov[k][k] += cellSD[k] * cellSD[k]
 		}
@@ -144,25 +144,57 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 // same with the landmarks' picking noise replaced by the cell's own,
 // carried through the Jacobian.
 func (m *Mapper) covariance(f transform.Mat, jac transform.Mat, cellSD *transform.Vec) transform.Mat {
-	var c transform.Mat
-	for i := range m.dim {
-		for j := range m.dim {
-			c[i][j] = math.Sqrt(m.u.Scale[i]*m.u.Scale[j]) * f[i][j]
-		}
-		c[i][i] += m.u.Scale[i] * m.u.NoiseFactor
-	}
 	if cellSD == nil {
-		return c
+		return m.u.Covariance(f, nil, m.dim)
 	}
-	c = subtractPickNoise(c, m.landmarkNoise(jac), m.dim)
+	terms := m.u.CellTerms(jac, *cellSD, m.dim)
+	return m.u.Covariance(f, &terms, m.dim)
+}
+
+// CellTerms are the parts of a cell's covariance that do not depend on the
+// transform's prediction factor: the landmarks' picking noise that the
+// cell's own localisation error replaces, and that error carried into the
+// target. They let a caller that varies the factor (suggest, adding
+// landmarks) pay for them once a cell.
+type CellTerms struct {
+	// Pick is the landmarks' picking noise at the cell (its diagonal is
+	// taken off), Own the cell's error J·diag(sd²)·Jᵀ (added).
+	Pick, Own transform.Mat
+}
+
+// CellTerms returns the terms of a cell with localisation error cellSD (µm
+// per axis) at a point of Jacobian jac.
+func (u *UncertaintyModel) CellTerms(jac transform.Mat, cellSD transform.Vec, dim int) CellTerms {
 	var d transform.Mat
-	for k := range m.dim {
+	for k := range dim {
 		d[k][k] = cellSD[k] * cellSD[k]
 	}
-	jd := jac.Mul(d).Mul(jac.T())
-	for i := range m.dim {
-		for j := range m.dim {
-			c[i][j] += jd[i][j]
+	return CellTerms{Pick: u.landmarkNoise(jac, dim), Own: jac.Mul(d).Mul(jac.T())}
+}
+
+// Covariance is a mapped point's covariance (µm²) from the prediction
+// factor f there:
+//
+//	P = diag(√s)·(F + ν·I)·diag(√s),
+//
+// and, with the terms of a cell's own localisation error, P with the
+// landmarks' picking noise taken off its diagonal (never below zero) and
+// the cell's own error added.
+func (u *UncertaintyModel) Covariance(f transform.Mat, terms *CellTerms, dim int) transform.Mat {
+	var c transform.Mat
+	for i := range dim {
+		for j := range dim {
+			c[i][j] = math.Sqrt(u.Scale[i]*u.Scale[j]) * f[i][j]
+		}
+		c[i][i] += u.Scale[i] * u.NoiseFactor
+	}
+	if terms == nil {
+		return c
+	}
+	c = subtractPickNoise(c, terms.Pick, dim)
+	for i := range dim {
+		for j := range dim {
+			c[i][j] += terms.Own[i][j]
 		}
 	}
 	return c
@@ -178,13 +210,13 @@ func (m *Mapper) covariance(f transform.Mat, jac transform.Mat, cellSD *transfor
 // cell's own would make radii wider than they need be (about 99.5 % coverage
 // instead of 95 %). A linear model forced with --model onto a warped block
 // keeps its misfit out of the cells' radii; its leave-one-out errors show it.
-func (m *Mapper) landmarkNoise(jac transform.Mat) transform.Mat {
-	if m.u.SourceSD != nil || m.u.TargetSD != nil {
-		return pickNoise(Settings{SourceSD: m.u.SourceSD, TargetSD: m.u.TargetSD}, jac)
+func (u *UncertaintyModel) landmarkNoise(jac transform.Mat, dim int) transform.Mat {
+	if u.SourceSD != nil || u.TargetSD != nil {
+		return pickNoise(Settings{SourceSD: u.SourceSD, TargetSD: u.TargetSD}, jac)
 	}
 	var c transform.Mat
-	for k := range m.dim {
-		c[k][k] = m.u.Scale[k] * m.u.NoiseFactor
+	for k := range dim {
+		c[k][k] = u.Scale[k] * u.NoiseFactor
 	}
 	return c
 }

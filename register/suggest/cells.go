@@ -1,92 +1,44 @@
 package suggest
 
 import (
-	"math"
-
 	"ferry/register"
 	"ferry/transform"
 )
 
 // cellModel turns the prediction factor at a cell into the cell's
-// covariance exactly as register.Mapper does for `ferry map` (the tests
-// hold the two equal): P = diag(√s)(F + ν·I)diag(√s) and, with a cell
-// localisation error, the landmarks' picking noise taken off the diagonal
-// (never below zero) and the cell's own error carried through the
-// Jacobian, J·diag(sd²)·Jᵀ, put in. Only F changes as landmarks are added,
-// so the rest is computed once per cell.
+// covariance with register's own formula (UncertaintyModel.Covariance, the
+// one map uses). Only the factor changes as landmarks are added, so the
+// cells' other terms are computed once.
 type cellModel struct {
-	dim   int
-	scale transform.Vec
-	nu    float64
-	own   bool
-	// pick[i] is the diagonal of the landmarks' picking noise at cell i
-	// and extra[i] the cell's own error in the target (own only).
-	pick  []transform.Vec
-	extra []transform.Mat
+	dim int
+	u   *register.UncertaintyModel
+	// terms[i] are cell i's terms of its own localisation error, nil
+	// without one.
+	terms []register.CellTerms
 	radii *register.RadiusTable
 }
 
 func newCellModel(t transform.Transform, u *register.UncertaintyModel, cells []transform.Vec, cellSD *transform.Vec) *cellModel {
-	m := &cellModel{
-		dim: t.Dim(), scale: u.Scale, nu: u.NoiseFactor, own: cellSD != nil,
-		radii: register.NewRadiusTable(t.Dim(), 0.95),
-	}
-	if !m.own {
+	m := &cellModel{dim: t.Dim(), u: u, radii: register.Radius95(t.Dim())}
+	if cellSD == nil {
 		return m
 	}
-	m.pick = make([]transform.Vec, len(cells))
-	m.extra = make([]transform.Mat, len(cells))
+	m.terms = make([]register.CellTerms, len(cells))
 	for i, x := range cells {
-		jac := t.Jacobian(x)
-		m.pick[i] = m.landmarkNoise(u, jac)
-		var d transform.Mat
-		for k := range m.dim {
-			d[k][k] = cellSD[k] * cellSD[k]
-		}
-		m.extra[i] = jac.Mul(d).Mul(jac.T())
+		m.terms[i] = u.CellTerms(t.Jacobian(x), *cellSD, m.dim)
 	}
 	return m
 }
 
-// landmarkNoise is the diagonal of the landmarks' own picking noise in the
-// target at a point of Jacobian jac: from the stated picking errors,
-// J·diag(source sd²)·Jᵀ + diag(target sd²), when there are any; otherwise
-// the noise part s·ν of the model's scale.
-func (m *cellModel) landmarkNoise(u *register.UncertaintyModel, jac transform.Mat) transform.Vec {
-	var n transform.Vec
-	if u.SourceSD != nil || u.TargetSD != nil {
-		var c transform.Mat
-		if u.SourceSD != nil {
-			var d transform.Mat
-			for k := range 3 {
-				d[k][k] = u.SourceSD[k] * u.SourceSD[k]
-			}
-			c = jac.Mul(d).Mul(jac.T())
-		}
-		for k := range 3 {
-			n[k] = c[k][k]
-			if u.TargetSD != nil {
-				n[k] += u.TargetSD[k] * u.TargetSD[k]
-			}
-		}
-		return n
-	}
-	for k := range m.dim {
-		n[k] = m.scale[k] * m.nu
-	}
-	return n
-}
-
 // subset is the model of the cells listed, in that order.
 func (m *cellModel) subset(idx []int) *cellModel {
-	if !m.own {
+	if m.terms == nil {
 		return m
 	}
 	s := *m
-	s.pick = make([]transform.Vec, len(idx))
-	s.extra = make([]transform.Mat, len(idx))
+	s.terms = make([]register.CellTerms, len(idx))
 	for k, i := range idx {
-		s.pick[k], s.extra[k] = m.pick[i], m.extra[i]
+		s.terms[k] = m.terms[i]
 	}
 	return &s
 }
@@ -94,25 +46,10 @@ func (m *cellModel) subset(idx []int) *cellModel {
 // covariance is the covariance (µm²) of cell i's mapped position when the
 // prediction factor there is f.
 func (m *cellModel) covariance(i int, f transform.Mat) transform.Mat {
-	var c transform.Mat
-	for a := range m.dim {
-		for b := range m.dim {
-			c[a][b] = math.Sqrt(m.scale[a]*m.scale[b]) * f[a][b]
-		}
-		c[a][a] += m.scale[a] * m.nu
+	if m.terms == nil {
+		return m.u.Covariance(f, nil, m.dim)
 	}
-	if !m.own {
-		return c
-	}
-	for k := range m.dim {
-		c[k][k] = math.Max(c[k][k]-m.pick[i][k], 0)
-	}
-	for a := range m.dim {
-		for b := range m.dim {
-			c[a][b] += m.extra[i][a][b]
-		}
-	}
-	return c
+	return m.u.Covariance(f, &m.terms[i], m.dim)
 }
 
 // radius is cell i's r95 (µm) when the factor there is f.

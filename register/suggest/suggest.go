@@ -147,7 +147,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 
 	model := newCellModel(f.Transform, u, cells, opt.CellSD)
 	// A suggestion's target is a new landmark's, with no cell error.
-	targets := &cellModel{dim: dim, scale: u.Scale, nu: u.NoiseFactor, radii: model.radii}
+	targets := &cellModel{dim: dim, u: u, radii: model.radii}
 	search := searchSubset(len(cells), len(res.Candidates))
 	res.SearchCells = len(search)
 	sub := make([]transform.Vec, len(search))
