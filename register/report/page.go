@@ -213,6 +213,8 @@ type matchSummary struct {
 
 type matchRow struct {
 	ID, Candidate, PMatch, Distance, RunnerUp, PRunnerUp string
+	// NoCounterpart says the runner-up is that the cell has none.
+	NoCounterpart bool
 }
 
 func um(x float64) string {
@@ -485,10 +487,15 @@ func (d *pageData) summariseMatches(ms []Match, file string) {
 			dist = append(dist, m.DistanceUM)
 		}
 		if m.Status == MatchAmbiguous {
-			s.Ambiguous = append(s.Ambiguous, matchRow{
+			row := matchRow{
 				ID: m.ID, Candidate: m.Candidate, PMatch: probability(m.PMatch), Distance: um(m.DistanceUM),
 				RunnerUp: m.RunnerUp, PRunnerUp: probability(m.PRunnerUp),
-			})
+			}
+			if m.RunnerUp == "" && !math.IsNaN(m.PNone) {
+				// The other choice is that the cell has no counterpart.
+				row.NoCounterpart, row.PRunnerUp = true, probability(m.PNone)
+			}
+			s.Ambiguous = append(s.Ambiguous, row)
 		}
 	}
 	for _, st := range []string{MatchMatched, MatchAmbiguous, MatchUnmatched} {

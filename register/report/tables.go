@@ -35,7 +35,10 @@ type Match struct {
 	DistanceUM    float64
 	RunnerUp      string
 	PRunnerUp     float64
-	Status        string
+	// PNone is the probability that the cell has no counterpart, from the
+	// optional p_none column (NaN without it).
+	PNone  float64
+	Status string
 }
 
 // The statuses of a match, as the contract names them.
@@ -105,8 +108,8 @@ func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int,
 }
 
 // ReadMatches reads the table of `ferry match` by column name: id,
-// candidate, p_match, distance_um, runner_up, p_runner_up and status; any
-// other column is ignored.
+// candidate, p_match, distance_um, runner_up, p_runner_up and status, and
+// p_none when present; any other column is ignored.
 func ReadMatches(path string) ([]Match, error) {
 	t, err := readTable(path)
 	if err != nil {
@@ -116,9 +119,10 @@ func ReadMatches(path string) ([]Match, error) {
 	if err != nil {
 		return nil, err
 	}
+	none := t.column("p_none")
 	out := make([]Match, len(t.rows))
 	for r, row := range t.rows {
-		m := Match{
+		m := Match{PNone: math.NaN(),
 			ID:        strings.TrimSpace(row[cols[0]]),
 			Candidate: strings.TrimSpace(row[cols[1]]),
 			RunnerUp:  strings.TrimSpace(row[cols[4]]),
@@ -137,6 +141,11 @@ func ReadMatches(path string) ([]Match, error) {
 			dst *float64
 		}{{cols[2], &m.PMatch}, {cols[3], &m.DistanceUM}, {cols[5], &m.PRunnerUp}} {
 			if *f.dst, _, err = t.number(r, f.col); err != nil {
+				return nil, err
+			}
+		}
+		if none >= 0 {
+			if m.PNone, _, err = t.number(r, none); err != nil {
 				return nil, err
 			}
 		}

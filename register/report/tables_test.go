@@ -117,9 +117,19 @@ func TestReadMatches(t *testing.T) {
 			text: "# ferry match\nid,candidate,p_match,distance_um,runner_up,p_runner_up,status,osi\n" +
 				"c1,n7,0.97,1.5,n8,0.02,matched,0.3\nc2,n9,0.52,3.25,n4,0.44,Ambiguous,0.1\nc3,,,,,,unmatched,\n",
 			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, Status: "matched"},
-				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, Status: "ambiguous"},
-				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, Status: "unmatched"},
+				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, PNone: nan, Status: "matched"},
+				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, PNone: nan, Status: "ambiguous"},
+				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, PNone: nan, Status: "unmatched"},
+			},
+		},
+		{
+			name: "with the probability of no counterpart",
+			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none
+" +
+				"c1,n7,0.74,9.7,,0,ambiguous,0.26
+",
+			want: []Match{
+				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, Status: "ambiguous"},
 			},
 		},
 		{name: "unknown status", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,1,1,,0,maybe\n", err: `matches.csv:2: column "status": "maybe" is not a match status`},

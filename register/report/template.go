@@ -136,7 +136,7 @@ footer ul { padding-left: 18px; margin: 4px 0; }
 <p>Two candidates fit these cells nearly as well: look at both before tracing.</p>
 <table>
 <tr><th>cell</th><th>candidate</th><th class="num">p match</th><th class="num">distance µm</th><th>runner-up</th><th class="num">p runner-up</th></tr>
-{{range .Ambiguous}}<tr><td><code>{{.ID}}</code></td><td><code>{{.Candidate}}</code></td><td class="num">{{.PMatch}}</td><td class="num">{{.Distance}}</td><td><code>{{.RunnerUp}}</code></td><td class="num">{{.PRunnerUp}}</td></tr>
+{{range .Ambiguous}}<tr><td><code>{{.ID}}</code></td><td><code>{{.Candidate}}</code></td><td class="num">{{.PMatch}}</td><td class="num">{{.Distance}}</td><td>{{if .NoCounterpart}}no counterpart{{else}}<code>{{.RunnerUp}}</code>{{end}}</td><td class="num">{{.PRunnerUp}}</td></tr>
 {{end}}</table>{{else}}<p>No cell is ambiguous.</p>{{end}}
 </section>{{end}}
 </main>
