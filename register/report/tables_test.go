@@ -124,10 +124,8 @@ func TestReadMatches(t *testing.T) {
 		},
 		{
 			name: "with the probability of no counterpart",
-			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none
-" +
-				"c1,n7,0.74,9.7,,0,ambiguous,0.26
-",
+			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none\n" +
+				"c1,n7,0.74,9.7,,0,ambiguous,0.26\n",
 			want: []Match{
 				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, Status: "ambiguous"},
 			},
