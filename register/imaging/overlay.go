@@ -18,6 +18,12 @@ func (c Colour) RGBA() (r, g, b, a uint32) {
 // bytes are the colour's channels.
 func (c Colour) bytes() (r, g, b uint8) { return uint8(c >> 16), uint8(c >> 8), uint8(c) }
 
+// NRGBA is the colour with opacity alpha (0–255).
+func (c Colour) NRGBA(alpha uint8) color.NRGBA {
+	r, g, b := c.bytes()
+	return color.NRGBA{R: r, G: g, B: b, A: alpha}
+}
+
 // Colours of the palette for colour-blind readers of Okabe and Ito (2008,
 // "Color Universal Design (CUD): how to make figures and presentations that
 // are friendly to colorblind people", J*Fly), values recalled from memory.
@@ -37,6 +43,11 @@ const (
 	Vermillion Colour = 0xD55E00
 	// Black outlines the marks so that they stand out on bright ground.
 	Black Colour = 0x000000
+	// BluishGreen (0, 158, 115), Blue (0, 114, 178) and White complete the
+	// palette for the report's figures.
+	BluishGreen Colour = 0x009E73
+	Blue        Colour = 0x0072B2
+	White       Colour = 0xFFFFFF
 )
 
 // Mark is a mapped cell to draw on an overlay.

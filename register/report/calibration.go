@@ -93,10 +93,10 @@ func calibrationFigure(ck *register.CheckJSON) (template.HTML, coverage, error) 
 		if err != nil {
 			return "", cv, err
 		}
-		poly.Color = colourRadius.nrgba(90)
+		poly.Color = colourRadius.NRGBA(90)
 		poly.LineStyle.Width = 0
 		p.Add(poly)
-		legend.Add("95 % range for "+number(float64(cv.n))+" landmarks", boxThumb(colourRadius.nrgba(90)))
+		legend.Add("95 % range for "+number(float64(cv.n))+" landmarks", boxThumb(colourRadius.NRGBA(90)))
 	}
 	diag, err := plotter.NewLine(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 1}})
 	if err != nil {

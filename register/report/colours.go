@@ -1,23 +1,22 @@
 package report
 
-import "image/color"
+import "ferry/register/imaging"
 
-// swatch is an opaque colour written 0xRRGGBB. It is a color.Color, and a
-// constant, so that the palette cannot be changed at run time.
-type swatch uint32
+// swatch is a colour of the palette: the one register/imaging holds, so
+// that the report's figures and the overlay share their values.
+type swatch = imaging.Colour
 
-// The colours of Okabe & Ito (2008, "Color Universal Design", J*Fly). The
-// hexadecimal values are recalled from memory of that palette.
+// The colours of Okabe & Ito (2008, "Color Universal Design", J*Fly).
 const (
-	black         swatch = 0x000000
-	orange        swatch = 0xE69F00
-	skyBlue       swatch = 0x56B4E9
-	bluishGreen   swatch = 0x009E73
-	yellow        swatch = 0xF0E442
-	blue          swatch = 0x0072B2
-	vermillion    swatch = 0xD55E00
-	reddishPurple swatch = 0xCC79A7
-	white         swatch = 0xFFFFFF
+	black         = imaging.Black
+	orange        = imaging.Orange
+	skyBlue       = imaging.SkyBlue
+	bluishGreen   = imaging.BluishGreen
+	yellow        = imaging.Yellow
+	blue          = imaging.Blue
+	vermillion    = imaging.Vermillion
+	reddishPurple = imaging.ReddishPurple
+	white         = imaging.White
 )
 
 // The roles of the colours, the same in every figure; docs/report.md lists
@@ -29,16 +28,6 @@ const (
 	colourReference   = black      // axes, text, the calibration's diagonal, scale bars
 	colourMapLandmark = black      // landmarks drawn on the uncertainty map (blue is the map's own)
 )
-
-// RGBA implements color.Color.
-func (s swatch) RGBA() (r, g, b, a uint32) {
-	return s.nrgba(0xff).RGBA()
-}
-
-// nrgba is the colour with opacity alpha (0–255).
-func (s swatch) nrgba(alpha uint8) color.NRGBA {
-	return color.NRGBA{R: uint8(s >> 16), G: uint8(s >> 8), B: uint8(s), A: alpha}
-}
 
 // cellStyle is how a mapped cell of one status is drawn on the map: the
 // statuses of register.Mapper from the least to the most serious.

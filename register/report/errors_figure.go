@@ -80,7 +80,7 @@ func (b radiusBars) Plot(c draw.Canvas, p *plot.Plot) {
 	half := b.height * 0.32
 	for _, r := range b.rows {
 		x0, x1, y := trX(0), trX(r.X), trY(r.Y)
-		c.FillPolygon(colourRadius.nrgba(110), []vg.Point{
+		c.FillPolygon(colourRadius.NRGBA(110), []vg.Point{
 			{X: x0, Y: y - half}, {X: x1, Y: y - half}, {X: x1, Y: y + half}, {X: x0, Y: y + half},
 		})
 		c.StrokeLine2(draw.LineStyle{Color: colourRadius, Width: 2}, x1, y-half, x1, y+half)
@@ -90,7 +90,7 @@ func (b radiusBars) Plot(c draw.Canvas, p *plot.Plot) {
 func radiusThumb(c *draw.Canvas) {
 	h := (c.Max.Y - c.Min.Y) * 0.35
 	y := c.Center().Y
-	c.FillPolygon(colourRadius.nrgba(110), []vg.Point{
+	c.FillPolygon(colourRadius.NRGBA(110), []vg.Point{
 		{X: c.Min.X, Y: y - h}, {X: c.Max.X - 2, Y: y - h}, {X: c.Max.X - 2, Y: y + h}, {X: c.Min.X, Y: y + h},
 	})
 	c.StrokeLine2(draw.LineStyle{Color: colourRadius, Width: 2}, c.Max.X-2, y-h, c.Max.X-2, y+h)
