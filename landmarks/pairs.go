@@ -111,22 +111,16 @@ func ParsePairs(name string, r io.Reader) (*PairSet, error) {
 	}
 	extraCols := t.extras(cols...)
 
-	set := &PairSet{Path: name, Dim: dim, ExtraColumns: make([]string, len(extraCols))}
-	for k, i := range extraCols {
-		set.ExtraColumns[k] = t.header[i]
-	}
+	set := &PairSet{Path: name, Dim: dim, ExtraColumns: t.names(extraCols)}
 	seen := make(map[string]int)
 	var block stringBlock
 	for {
-		ok, err := t.nextRecord()
+		ok, err := t.nextRow()
 		if err != nil {
 			return nil, err
 		}
 		if !ok {
 			break
-		}
-		if err := t.checkWidth(); err != nil {
-			return nil, err
 		}
 		p := Pair{Line: t.line(0)}
 		if p.ID, err = t.id(idCol, seen); err != nil {

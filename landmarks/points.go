@@ -74,22 +74,16 @@ func ParsePoints(name, what string, r io.Reader) (*PointSet, error) {
 	}
 	extraCols := t.extras(cols...)
 
-	set := &PointSet{Path: name, Dim: dim, ExtraColumns: make([]string, len(extraCols))}
-	for k, i := range extraCols {
-		set.ExtraColumns[k] = t.header[i]
-	}
+	set := &PointSet{Path: name, Dim: dim, ExtraColumns: t.names(extraCols)}
 	seen := make(map[string]int)
 	var block stringBlock
 	for {
-		ok, err := t.nextRecord()
+		ok, err := t.nextRow()
 		if err != nil {
 			return nil, err
 		}
 		if !ok {
 			break
-		}
-		if err := t.checkWidth(); err != nil {
-			return nil, err
 		}
 		p := Point{Line: t.line(0)}
 		if p.ID, err = t.id(idCol, seen); err != nil {

@@ -382,3 +382,22 @@ func sized[T any](t *table, rows []T, seen map[string]int) ([]T, map[string]int)
 	}
 	return rows, seen
 }
+
+// nextRow reads the next data row and checks that it has as many fields as
+// the header; false at the end of the table.
+func (t *table) nextRow() (bool, error) {
+	ok, err := t.nextRecord()
+	if err != nil || !ok {
+		return false, err
+	}
+	return true, t.checkWidth()
+}
+
+// names are the header names of the columns cols, in order.
+func (t *table) names(cols []int) []string {
+	out := make([]string, len(cols))
+	for k, i := range cols {
+		out[k] = t.header[i]
+	}
+	return out
+}
