@@ -29,10 +29,10 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 			if err != nil {
 				return err
 			}
-			inputs, err := inputsOf(args[0])
-			if err != nil {
-				return err
-			}
+			// The hash of the bytes the reader read, not of the file read
+			// again: the same unless it changed in between, and then the
+			// reader's is the true one.
+			inputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256}}
 			prov := register.Provenance{Command: "fit", Inputs: inputs, Flags: setFlags(cmd)}
 			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
 			if err != nil {
@@ -78,16 +78,13 @@ leave-one-out error exceeds --max-error.`,
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
 				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)
 			}
-			_, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(args[0])
 			if err != nil {
 				return err
 			}
 			w := cmd.OutOrStdout()
 			if asJSON {
-				inputs, err := inputsOf(args[0])
-				if err != nil {
-					return err
-				}
+				inputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256}}
 				c := a.JSON()
 				c.Provenance = register.Provenance{Command: "check", Inputs: inputs, Flags: setFlags(cmd)}.Line()
 				if err := writeJSON(w, c); err != nil {

@@ -38,10 +38,11 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			if inverse {
 				voxel = file.SourceVoxel
 			}
-			inputs, err := inputsOf(args...)
+			inputs, err := inputsOf(args[0])
 			if err != nil {
 				return err
 			}
+			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256})
 			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
 			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
 				return register.WriteMapped(w, prov, cells, mapped, voxel)
