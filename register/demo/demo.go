@@ -226,7 +226,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, ip, mapped)
+	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, mapped)
 	if err != nil {
 		return nil, err
 	}
@@ -278,8 +278,9 @@ type overlayResult struct {
 
 // writeOverlay resamples the in vivo stack onto the EM plane through the
 // fitted transform, as ferry overlay does, and marks the mapped cells near
-// the plane.
-func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, ip simulate.ImageParams, mapped []register.Mapped) (overlayResult, error) {
+// the plane. The images' geometry comes from their files, as it does for
+// the command.
+func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, mapped []register.Mapped) (overlayResult, error) {
 	stack, err := imaging.ReadStack(stackPath)
 	if err != nil {
 		return overlayResult{}, err
@@ -288,8 +289,19 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	if err != nil {
 		return overlayResult{}, err
 	}
-	grid := imaging.GridLike(plane, ip.TargetVoxelUM, ip.TargetZ)
-	resampled, rep, err := imaging.ResampleWithReport(t, stack, ip.SourceVoxelUM, grid, imaging.ResampleOptions{})
+	sg, err := imaging.Settle(stack, imaging.Given{VoxelFlag: "--source-voxel"})
+	if err != nil {
+		return overlayResult{}, err
+	}
+	pg, err := imaging.Settle(plane, imaging.Given{VoxelFlag: "--target-voxel"})
+	if err != nil {
+		return overlayResult{}, err
+	}
+	grid, _, err := imaging.PlaneGrid(plane, pg, nil)
+	if err != nil {
+		return overlayResult{}, err
+	}
+	resampled, rep, err := imaging.ResampleWithReport(t, stack, sg.VoxelUM, grid, imaging.ResampleOptions{StackOrigin: sg.OriginUM})
 	if err != nil {
 		return overlayResult{}, err
 	}

@@ -16,11 +16,21 @@ const DefaultToleranceUM = 0.05
 
 // Grid is the pixel grid of one output plane: Width × Height pixels of a
 // space whose voxels measure Voxel µm, at page Z of that space. Pixel (i, j)
-// sits at (i·Voxel[0], j·Voxel[1], Z·Voxel[2]) µm.
+// sits at Origin + (i·Voxel[0], j·Voxel[1], Z·Voxel[2]) µm; Origin is zero
+// for the contract's voxel grid.
 type Grid struct {
 	Width, Height int
 	Voxel         transform.Vec
 	Z             int
+	Origin        transform.Vec
+}
+
+// Geometry is the geometry of the plane as a stack of one page, to record
+// in the file it is written to.
+func (g Grid) Geometry() Geometry {
+	o := g.Origin
+	o[2] += float64(g.Z) * g.Voxel[2]
+	return Geometry{VoxelUM: g.Voxel, OriginUM: o, HasOrigin: [3]bool{true, true, true}}
 }
 
 // GridLike is the grid of plane z of a space with voxels of voxel µm whose
@@ -42,6 +52,9 @@ type ResampleOptions struct {
 	// Exact maps every output pixel exactly instead of interpolating: slow
 	// for a spline, and never needed for accuracy.
 	Exact bool
+	// StackOrigin is the position of the input stack's voxel (0, 0, 0),
+	// µm; zero for the contract's voxel grid.
+	StackOrigin transform.Vec
 }
 
 // ResampleReport counts what happened to the output pixels.
@@ -141,6 +154,7 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 	if err != nil {
 		return nil, rep, fmt.Errorf("imaging: resample: output plane: %w", err)
 	}
+	out.Geometry = grid.Geometry()
 
 	mapPoint := func(q transform.Vec) (transform.Vec, bool) {
 		p, err := t.Invert(q)
@@ -153,7 +167,7 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 		}
 	}
 	f := &field{grid: grid, mapPoint: mapPoint, check: tol / 2, exact: opt.Exact}
-	smp := newSampler(src, srcVoxel)
+	smp := newSampler(src, srcVoxel, opt.StackOrigin)
 	var outside, failed atomic.Int64
 	rep.Evaluations = f.run(func(j, i0 int, pos []transform.Vec, ok []bool) {
 		nOut, nFail := smp.sampleRow(out.Data[j*grid.Width+i0:][:len(pos)], pos, ok)
@@ -182,8 +196,9 @@ func checkVoxel(v transform.Vec) error {
 
 // sampler interpolates a stack trilinearly at positions in µm.
 type sampler struct {
-	data []uint16
-	inv  transform.Vec // voxels per µm
+	data   []uint16
+	inv    transform.Vec // voxels per µm
+	origin transform.Vec // µm
 	// Per axis: the upper end of the stack's extent in voxels (centres at
 	// 0 … n−1, extent −½ … n−½), the largest lower neighbour index, the
 	// index step to the upper neighbour (0 for a single voxel) and the
@@ -194,8 +209,8 @@ type sampler struct {
 	stride [3]int
 }
 
-func newSampler(s *Stack, voxel transform.Vec) *sampler {
-	sm := &sampler{data: s.Data, inv: transform.Vec{1 / voxel[0], 1 / voxel[1], 1 / voxel[2]}}
+func newSampler(s *Stack, voxel, origin transform.Vec) *sampler {
+	sm := &sampler{data: s.Data, inv: transform.Vec{1 / voxel[0], 1 / voxel[1], 1 / voxel[2]}, origin: origin}
 	n := [3]int{s.Width, s.Height, s.Depth}
 	sm.stride = [3]int{1, s.Width, s.Width * s.Height}
 	for a := range 3 {
@@ -212,6 +227,7 @@ func newSampler(s *Stack, voxel transform.Vec) *sampler {
 func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outside, failed int) {
 	data := sm.data
 	ix, iy, iz := sm.inv[0], sm.inv[1], sm.inv[2]
+	ox, oy, oz := sm.origin[0], sm.origin[1], sm.origin[2]
 	hx, hy, hz := sm.hi[0], sm.hi[1], sm.hi[2]
 	tx, ty, tz := sm.top[0], sm.top[1], sm.top[2]
 	nx, ny, nz := sm.next[0], sm.next[1], sm.next[2]
@@ -224,7 +240,7 @@ func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outs
 			failed++
 			continue
 		}
-		u, v, w := pos[n][0]*ix, pos[n][1]*iy, pos[n][2]*iz
+		u, v, w := (pos[n][0]-ox)*ix, (pos[n][1]-oy)*iy, (pos[n][2]-oz)*iz
 		// Written so that NaN falls outside too.
 		if !(u >= -0.5 && u < hx && v >= -0.5 && v < hy && w >= -0.5 && w < hz) {
 			out[n] = 0
@@ -273,7 +289,8 @@ type emitFunc func(j, i0 int, pos []transform.Vec, ok []bool)
 
 // position is the target-side position of pixel (i, j) of the plane, µm.
 func (f *field) position(i, j int) transform.Vec {
-	return transform.Vec{float64(i) * f.grid.Voxel[0], float64(j) * f.grid.Voxel[1], float64(f.grid.Z) * f.grid.Voxel[2]}
+	g := &f.grid
+	return transform.Vec{g.Origin[0] + float64(i)*g.Voxel[0], g.Origin[1] + float64(j)*g.Voxel[1], g.Origin[2] + float64(g.Z)*g.Voxel[2]}
 }
 
 // run calls emit for every pixel of the plane, on all cores, and returns the

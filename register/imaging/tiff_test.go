@@ -32,8 +32,9 @@ func craftedTIFF(t testing.TB) []byte {
 	return b
 }
 
-// ifdAt is the offset of page k's directory in a crafted file.
-func ifdAt(k int) int { return 8 + k*(craftPlane+craftIFD) + craftPlane }
+// ifdAt is the offset of page k's directory in a crafted file: the
+// directories follow the three pages' pixels.
+func ifdAt(k int) int { return 8 + 3*craftPlane + k*craftIFD }
 
 // setEntry overwrites the value of entry n of page k (SHORT or LONG).
 func setEntry(b []byte, k, n int, v uint32) {
