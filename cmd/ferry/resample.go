@@ -52,11 +52,11 @@ func given(voxelFlag, voxel, originFlag, origin string, recorded *transform.Vec)
 		g.Voxel = &v
 	}
 	if origin != "" {
-		v, err := landmarks.ParseTriple(originFlag, origin, 3)
+		v, err := landmarks.ParseNumbers(originFlag, origin, 3, "X,Y,Z")
 		if err != nil {
 			return g, err
 		}
-		g.Origin = &v
+		g.Origin = &transform.Vec{v[0], v[1], v[2]}
 	}
 	return g, nil
 }

@@ -15,7 +15,8 @@ type tiffLayout struct {
 }
 
 // The file tiffWriter writes: the header, every page's pixels one after the
-// other (one strip a page, each padded to an even length), then one
+// other with no gap (one strip a page), a pad byte when needed so that the
+// directories start on a word boundary, then one
 // directory per page, then the values too long for a directory entry (the
 // resolution, shared by every page, and page 0's ImageDescription).
 // Contiguous pixels are the layout ImageJ reads fastest and the one it
@@ -29,7 +30,11 @@ func (l tiffLayout) planeBytes() int64 {
 	return int64(l.width) * int64(l.height) * int64(l.bits/8)
 }
 
-func (l tiffLayout) paddedPlane() int64 { p := l.planeBytes(); return p + p%2 }
+// ifdStart is the offset of page 0's directory.
+func (l tiffLayout) ifdStart() int64 {
+	n := tiffHeaderSize + int64(l.depth)*l.planeBytes()
+	return n + n%2
+}
 
 func (l tiffLayout) entries() int {
 	if l.calibrated() {
@@ -56,7 +61,7 @@ func (l tiffLayout) description() []byte {
 
 // size is the length of the file in bytes.
 func (l tiffLayout) size() int64 {
-	n := tiffHeaderSize + int64(l.depth)*l.paddedPlane() + l.ifdSize(0) + int64(l.depth-1)*l.ifdSize(1)
+	n := l.ifdStart() + l.ifdSize(0) + int64(l.depth-1)*l.ifdSize(1)
 	if l.calibrated() {
 		d := int64(len(l.description()))
 		n += 16 + d + d%2
@@ -92,9 +97,9 @@ type tiffWriter struct {
 
 // newTIFFWriter writes the header; the caller has checked the layout.
 func newTIFFWriter(w io.Writer, l tiffLayout) (*tiffWriter, error) {
-	t := &tiffWriter{w: w, l: l, buf: make([]byte, l.paddedPlane())}
+	t := &tiffWriter{w: w, l: l, buf: make([]byte, l.planeBytes())}
 	header := []byte{'I', 'I', 42, 0, 0, 0, 0, 0}
-	binary.LittleEndian.PutUint32(header[4:], uint32(tiffHeaderSize+int64(l.depth)*l.paddedPlane()))
+	binary.LittleEndian.PutUint32(header[4:], uint32(l.ifdStart()))
 	if _, err := w.Write(header); err != nil {
 		return nil, err
 	}
@@ -132,7 +137,12 @@ func (t *tiffWriter) finish() error {
 		return fmt.Errorf("imaging: %d of %d pages written", t.k, l.depth)
 	}
 	le := binary.LittleEndian
-	ifdAt := tiffHeaderSize + int64(l.depth)*l.paddedPlane()
+	ifdAt := l.ifdStart()
+	if ifdAt > tiffHeaderSize+int64(l.depth)*l.planeBytes() {
+		if _, err := t.w.Write([]byte{0}); err != nil {
+			return err
+		}
+	}
 	extraAt := ifdAt
 	for k := range l.depth {
 		extraAt += l.ifdSize(k)
@@ -170,7 +180,7 @@ func (t *tiffWriter) finish() error {
 		if k == 0 && l.calibrated() {
 			put(tagDescription, ascii, uint32(len(desc)), uint32(descAt))
 		}
-		put(tagStripOffsets, long, 1, uint32(tiffHeaderSize+int64(k)*l.paddedPlane()))
+		put(tagStripOffsets, long, 1, uint32(tiffHeaderSize+int64(k)*l.planeBytes()))
 		put(tagSamplesPerPixel, short, 1, 1)
 		put(tagRowsPerStrip, long, 1, uint32(l.height))
 		put(tagStripByteCounts, long, 1, uint32(l.planeBytes()))
