@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -85,3 +86,64 @@ func TestImageGeometryFromFiles(t *testing.T) {
 }
 
 func itoa(n int) string { return strconv.Itoa(n) }
+
+// TestWarpCommand warps simulate's in vivo stack into the EM frame with no
+// geometry flags and reads back the stack and its record; bounds the stack
+// does not reach, and a missing --voxel, are refused with nothing written.
+func TestWarpCommand(t *testing.T) {
+	sc := newScenarioFixture(t)
+	dir := t.TempDir()
+	out := filepath.Join(dir, "warped.tif")
+	o := mustSucceed(t, "warp", sc.transform, sc.stack, "-o", out, "--voxel", "6,6,10")
+	if !strings.Contains(o.stdout, "into the target frame") || !strings.Contains(o.stdout, out+".json") {
+		t.Errorf("stdout %q", o.stdout)
+	}
+	s, err := imaging.ReadStack(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rec imaging.WarpRecord
+	b, err := os.ReadFile(out + ".json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &rec); err != nil {
+		t.Fatal(err)
+	}
+	if rec.Frame != "target" || rec.VoxelUM != s.Geometry.VoxelUM || rec.OriginUM != s.Geometry.OriginUM ||
+		rec.SizeVoxels != [3]int{s.Width, s.Height, s.Depth} || rec.VoxelUM[2] != 10 {
+		t.Errorf("record %+v disagrees with the stack (%d × %d × %d, %s)", rec, s.Width, s.Height, s.Depth, s.Geometry.Describe())
+	}
+	if !strings.Contains(rec.Provenance.(string), "warp") {
+		t.Errorf("provenance %v", rec.Provenance)
+	}
+	bright := 0
+	for _, v := range s.Data {
+		if v > 0 {
+			bright++
+		}
+	}
+	if bright < len(s.Data)/2 {
+		t.Errorf("%d of %d voxels hold the stack: the default extent should be mostly inside it", bright, len(s.Data))
+	}
+	for _, tt := range []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"bounds the stack does not reach", []string{"--voxel", "5,5,5", "--bounds", "5000,5000,5000,5100,5100,5100"}, "does not reach --bounds"},
+		{"no voxel size", nil, "--voxel"},
+		{"bounds of five numbers", []string{"--voxel", "5,5,5", "--bounds", "0,0,0,1,1"}, "want 6 numbers"},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			out := filepath.Join(t.TempDir(), "w.tif")
+			o := ferry(t, append([]string{"warp", sc.transform, sc.stack, "-o", out}, tt.args...)...)
+			if o.code != exitError || !strings.Contains(o.stderr, tt.want) {
+				t.Fatalf("want exit 1 saying %q: %v", tt.want, o)
+			}
+			if entries, _ := os.ReadDir(filepath.Dir(out)); len(entries) != 0 {
+				t.Errorf("a refused warp wrote %d files", len(entries))
+			}
+		})
+	}
+}

@@ -88,6 +88,13 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 			hi[a] = math.Ceil(hi[a]/opt.VoxelUM[a]) * opt.VoxelUM[a]
 		}
 	}
+	if opt.Bounds != nil {
+		// An output the stack cannot reach would be a file of zeros.
+		mlo, mhi, ok := MappedBox(t, h.Width, h.Height, h.Depth, g, opt.Inverse)
+		if ok && (mlo[0] > hi[0] || mhi[0] < lo[0] || mlo[1] > hi[1] || mhi[1] < lo[1] || mlo[2] > hi[2] || mhi[2] < lo[2]) {
+			return grid, NoOverlap(h, g, t, opt.Inverse, "--bounds", lo, hi)
+		}
+	}
 	grid.OriginUM = lo
 	for a := range 3 {
 		n := math.Floor((hi[a]-lo[a])/opt.VoxelUM[a]+1e-9) + 1
@@ -106,8 +113,9 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 type WarpReport struct {
 	ResampleReport
 	// PagesRead counts the input pages decoded, some more than once when
-	// the memory bound made the warp drop them.
-	PagesRead int
+	// the memory bound made the warp drop them; MostPagesHeld is the most
+	// held at once.
+	PagesRead, MostPagesHeld int
 }
 
 // Layout is the TIFF the warp writes, for checks before it starts.
@@ -197,8 +205,8 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 	// the bound is reached.
 	need := func(k0, k1 int) error {
 		if k1-k0+1 > maxPages {
-			return fmt.Errorf("imaging: warp: 64 output rows reach %d pages of %s, more than the %d that fit in %.1f GiB; raise the memory bound or warp a smaller --bounds",
-				k1-k0+1, h.name(), maxPages, float64(budget)/(1<<30))
+			return fmt.Errorf("imaging: warp: 64 output rows reach %d pages of %s, more than the %d that fit in %.0f MiB; raise --memory-gib or warp a smaller --bounds",
+				k1-k0+1, h.name(), maxPages, float64(budget)/(1<<20))
 		}
 		for k := k0; k <= k1; k++ {
 			if pages[k] != nil {
@@ -223,6 +231,7 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 			pages[k] = buf
 			loaded = append(loaded, k)
 			rep.PagesRead++
+			rep.MostPagesHeld = max(rep.MostPagesHeld, len(loaded))
 		}
 		return nil
 	}
