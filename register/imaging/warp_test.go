@@ -4,8 +4,10 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -136,5 +138,32 @@ func TestPlanWarp(t *testing.T) {
 	out := filepath.Join(t.TempDir(), "huge.tif")
 	if err := huge.CheckWritable(out, 16); err == nil || !strings.Contains(err.Error(), "4 GiB") || !strings.Contains(err.Error(), "coarser voxel size") {
 		t.Errorf("error %v, want a refusal naming the 4 GiB limit and the way out", err)
+	}
+}
+
+// TestWarpSameBytesAnyCores warps on one core and on all and wants the same
+// file: every output voxel is computed on its own, in no order that
+// depends on scheduling.
+func TestWarpSameBytesAnyCores(t *testing.T) {
+	_, s, tilt := warpFixture(t)
+	opt := WarpOptions{VoxelUM: transform.Vec{0.7, 0.9, 1.3}}
+	grid, err := PlanWarp(tilt, s, s.Geometry, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	var files [2][]byte
+	for n, procs := range []int{1, 4} {
+		old := runtime.GOMAXPROCS(procs)
+		path := filepath.Join(dir, fmt.Sprintf("w%d.tif", procs))
+		_, err := Warp(context.Background(), path, tilt, MemoryPages(s), s.Geometry, grid, opt, nil)
+		runtime.GOMAXPROCS(old)
+		if err != nil {
+			t.Fatal(err)
+		}
+		files[n], _ = os.ReadFile(path)
+	}
+	if !bytes.Equal(files[0], files[1]) {
+		t.Error("the warp on one core differs from the warp on four")
 	}
 }
