@@ -97,17 +97,16 @@ resample.`,
 				return err
 			}
 			inputs, err := inputsOf(args[0], args[1])
-			if err != nil {
-				os.Remove(out)
-				return err
+			if err == nil {
+				prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
+				err = imaging.WriteWarpRecord(cmd.Context(), sidecar, imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line()))
 			}
-			prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
-			rec := imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line())
-			if err := imaging.WriteWarpRecord(cmd.Context(), sidecar, rec); err != nil {
-				// The image without its record would be a stack of
-				// unknown provenance: neither is left.
-				os.Remove(out)
-				return err
+			if err != nil {
+				// OUT.tif is whole and records its own geometry; a
+				// record left from an earlier run would describe
+				// another image, so it goes.
+				os.Remove(sidecar)
+				return fmt.Errorf("%w (%s was written without its record)", err, out)
 			}
 			frame := "target"
 			if inverse {
