@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strings"
 	"testing"
 
@@ -165,5 +166,41 @@ func TestWarpSameBytesAnyCores(t *testing.T) {
 	}
 	if !bytes.Equal(files[0], files[1]) {
 		t.Error("the warp on one core differs from the warp on four")
+	}
+}
+
+// TestOpenPagesReadsWhatReadStackReads opens every kind of stack page by
+// page and wants ReadStack's voxels and geometry.
+func TestOpenPagesReadsWhatReadStackReads(t *testing.T) {
+	for _, name := range []string{"stack16_deflate.tif", "stack8_lzw.tif", "stack16_tiled.tif", "imagej16.tif", "planes", "plane16.png"} {
+		t.Run(name, func(t *testing.T) {
+			path := filepath.Join(testdata, name)
+			want, err := ReadStack(path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			p, err := OpenPages(path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer p.Close()
+			h := p.Header()
+			if h.Width != want.Width || h.Height != want.Height || h.Depth != want.Depth || h.Bits != want.Bits || h.Geometry != want.Geometry {
+				t.Fatalf("header %d × %d × %d of %d bits, %+v; ReadStack says %d × %d × %d of %d bits, %+v",
+					h.Width, h.Height, h.Depth, h.Bits, h.Geometry, want.Width, want.Height, want.Depth, want.Bits, want.Geometry)
+			}
+			page := make([]uint16, h.Width*h.Height)
+			for k := h.Depth - 1; k >= 0; k-- { // any order
+				if err := p.ReadPage(k, page); err != nil {
+					t.Fatal(err)
+				}
+				if !slices.Equal(page, want.PageData(k)) {
+					t.Fatalf("page %d differs from ReadStack's", k)
+				}
+			}
+			if err := p.ReadPage(h.Depth, page); err == nil || !strings.Contains(err.Error(), "the stack has pages 0 to") {
+				t.Errorf("page %d of %d: error %v", h.Depth, h.Depth, err)
+			}
+		})
 	}
 }
