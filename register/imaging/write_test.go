@@ -103,9 +103,11 @@ func TestGoldenFiles(t *testing.T) {
 		bits    int
 		geom    Geometry
 	}{
-		{"go_written8.tif", 13, 7, 3, 8, Geometry{}},
-		// make_images.py --verify checks with tifffile that this one
-		// records its geometry: .ci/run passes it these values.
+		// make_images.py --verify checks with tifffile that these record
+		// their geometry (.ci/run passes it these values), and reads the
+		// 8-bit one's odd-sized pages through tifffile's ImageJ path,
+		// which takes the pages as one block.
+		{"go_written8.tif", 13, 7, 3, 8, Geometry{VoxelUM: transform.Vec{0.5, 0.5, 1}, HasOrigin: [3]bool{true, true, true}}},
 		{"go_written16.tif", 13, 7, 4, 16, goldenGeometry},
 		{"go_written16.png", 13, 7, 1, 16, Geometry{}},
 		{"go_written8.png", 13, 7, 1, 8, Geometry{}},
