@@ -91,3 +91,29 @@ func ParseIDList(flagName, value string) ([]string, error) {
 	}
 	return ids, nil
 }
+
+// ParseNumbers reads n comma-separated finite numbers of any sign, such as
+// "--bounds -10,0,5,300,400,200" or "--source-origin 12,-4,0" (micrometres).
+// flagName, with its dashes, starts every message.
+func ParseNumbers(flagName, value string, n int, names string) ([]float64, error) {
+	fail := func(why string) error {
+		return fmt.Errorf("%s: want %d numbers %s in micrometres, got %s (%s)", flagName, n, names, quote(value), why)
+	}
+	parts := strings.Split(value, ",")
+	if len(parts) != n {
+		got := len(parts)
+		if strings.TrimSpace(value) == "" {
+			got = 0
+		}
+		return nil, fail(fmt.Sprintf("%d %s", got, plural(got, "number", "numbers")))
+	}
+	out := make([]float64, n)
+	for a, part := range parts {
+		x, msg := parseNumber(part)
+		if msg != "" {
+			return nil, fail(fmt.Sprintf("number %d: %s", a+1, msg))
+		}
+		out[a] = x
+	}
+	return out, nil
+}

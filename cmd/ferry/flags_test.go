@@ -72,7 +72,7 @@ func TestFlagValidation(t *testing.T) {
 		{"resample: two-number target voxel", resample("--target-voxel", "1,1"), []string{"--target-voxel", "2 numbers"}},
 		{"resample: missing --like", []string{"resample", sc.transform, sc.stack, "-o", out}, []string{"--like", "required"}},
 		{"resample: missing -o", []string{"resample", sc.transform, sc.stack, "--like", sc.plane}, []string{"-o", "required"}},
-		{"resample: no voxel size anywhere", []string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}, []string{"--source-voxel", "records no voxel size"}},
+		{"resample: no voxel size anywhere", []string{"resample", sc.transform, sc.uncalibratedStack(t), "--like", sc.plane, "-o", out}, []string{"--source-voxel", "records no voxel size"}},
 		{"overlay: negative target z", overlay("--target-z", "-3"), []string{"--target-z", "negative"}},
 		{"overlay: missing -o", []string{"overlay", sc.transform, sc.stack, sc.plane}, []string{"-o", "required"}},
 		{"simulate: no folder", []string{"simulate"}, []string{"accepts 1 arg(s)"}},

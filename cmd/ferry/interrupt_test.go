@@ -29,6 +29,7 @@ func TestCancelledBeforeWriting(t *testing.T) {
 		{"fit", fx.landmarks, "-o", out},
 		append([]string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}, sc.imageFlags()...),
 		append([]string{"overlay", sc.transform, sc.stack, sc.plane, "-o", out}, sc.imageFlags()...),
+		{"warp", sc.transform, sc.stack, "--voxel", "5,5,5", "-o", out},
 	} {
 		before := snapshot(t, dir)
 		o := ferryContext(ctx, args...)

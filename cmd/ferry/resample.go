@@ -14,30 +14,65 @@ import (
 
 // imageFlags are the flags resample and overlay share.
 type imageFlags struct {
-	targetZ                  int
-	inverse                  bool
-	sourceVoxel, targetVoxel string
-	out                      string
+	targetZ                    int
+	targetZSet                 bool
+	inverse                    bool
+	sourceVoxel, targetVoxel   string
+	sourceOrigin, targetOrigin string
+	out                        string
 }
 
 func (f *imageFlags) register(cmd *cobra.Command) {
 	fl := cmd.Flags()
-	fl.IntVar(&f.targetZ, "target-z", 0, "page (voxel index along z) of the output plane in its space")
+	fl.IntVar(&f.targetZ, "target-z", 0, "page (voxel index along z) of the output plane in its space (default: the plane's own, else 0)")
 	fl.BoolVar(&f.inverse, "inverse", false, "the stack is in the target space: resample it onto a source plane")
-	fl.StringVar(&f.sourceVoxel, "source-voxel", "", "source voxel size X,Y,Z in µm (default: from the transform file)")
-	fl.StringVar(&f.targetVoxel, "target-voxel", "", "target voxel size X,Y,Z in µm (default: from the transform file)")
+	registerGeometryFlags(cmd, &f.sourceVoxel, &f.targetVoxel, &f.sourceOrigin, &f.targetOrigin)
 	fl.StringVarP(&f.out, "output", "o", "", "image to write")
 }
 
-// resampleJob is a transform, a stack and a plane to fill, with their voxel
-// sizes settled.
-type resampleJob struct {
-	file              *transform.File
-	stack, plane      *imaging.Stack
-	stackVox, gridVox transform.Vec
+// registerGeometryFlags adds the flags that state an image's voxel size and
+// origin where its file records none (or records them wrong).
+func registerGeometryFlags(cmd *cobra.Command, sourceVoxel, targetVoxel, sourceOrigin, targetOrigin *string) {
+	fl := cmd.Flags()
+	fl.StringVar(sourceVoxel, "source-voxel", "", "voxel size X,Y,Z in µm of the source-side image (default: from its file, else the transform file)")
+	fl.StringVar(targetVoxel, "target-voxel", "", "voxel size X,Y,Z in µm of the target-side image (default: from its file, else the transform file)")
+	fl.StringVar(sourceOrigin, "source-origin", "", "position X,Y,Z in µm of the source-side image's voxel (0,0,0) (default: from its file, else 0,0,0)")
+	fl.StringVar(targetOrigin, "target-origin", "", "position X,Y,Z in µm of the target-side image's voxel (0,0,0) (default: from its file, else 0,0,0)")
 }
 
-func (f *imageFlags) load(transformPath, stackPath, planePath string) (*resampleJob, error) {
+// given collects what the flags and the transform file say about one
+// side's image geometry.
+func given(voxelFlag, voxel, originFlag, origin string, recorded *transform.Vec) (imaging.Given, error) {
+	g := imaging.Given{VoxelFlag: voxelFlag, OriginFlag: originFlag, Fallback: recorded}
+	if voxel != "" {
+		v, err := landmarks.ParseTriple(voxelFlag, voxel, 3)
+		if err != nil {
+			return g, err
+		}
+		g.Voxel = &v
+	}
+	if origin != "" {
+		v, err := landmarks.ParseNumbers(originFlag, origin, 3, "X,Y,Z")
+		if err != nil {
+			return g, err
+		}
+		g.Origin = &transform.Vec{v[0], v[1], v[2]}
+	}
+	return g, nil
+}
+
+// resampleJob is a transform, a stack and a plane to fill, with their
+// geometries settled.
+type resampleJob struct {
+	file                *transform.File
+	stack, plane        *imaging.Stack
+	stackGeom, gridGeom imaging.Geometry
+	grid                imaging.Grid
+	planePath           string
+}
+
+func (f *imageFlags) load(cmd *cobra.Command, transformPath, stackPath, planePath string) (*resampleJob, error) {
+	f.targetZSet = cmd.Flags().Changed("target-z")
 	if f.targetZ < 0 {
 		return nil, fmt.Errorf("--target-z: %d is negative: want a page index ≥ 0", f.targetZ)
 	}
@@ -48,45 +83,67 @@ func (f *imageFlags) load(transformPath, stackPath, planePath string) (*resample
 	if file.Transform.Dim() != 3 {
 		return nil, fmt.Errorf("%s: images need a 3-D transform, this one is 2-D", transformPath)
 	}
-	src, err := voxelSize("--source-voxel", f.sourceVoxel, file.SourceVoxel)
+	src, err := given("--source-voxel", f.sourceVoxel, "--source-origin", f.sourceOrigin, file.SourceVoxel)
 	if err != nil {
 		return nil, err
 	}
-	dst, err := voxelSize("--target-voxel", f.targetVoxel, file.TargetVoxel)
+	dst, err := given("--target-voxel", f.targetVoxel, "--target-origin", f.targetOrigin, file.TargetVoxel)
 	if err != nil {
 		return nil, err
 	}
-	job := &resampleJob{file: file, stackVox: src, gridVox: dst}
+	stackSide, planeSide := src, dst
 	if f.inverse {
-		job.stackVox, job.gridVox = dst, src
+		stackSide, planeSide = dst, src
 	}
+	job := &resampleJob{file: file, planePath: planePath}
 	if job.stack, err = imaging.ReadStack(stackPath); err != nil {
 		return nil, err
 	}
-	if job.plane, err = imaging.ReadPlane(planePath); err != nil {
+	if job.stackGeom, err = imaging.Settle(job.stack, stackSide); err != nil {
+		return nil, err
+	}
+	like, err := imaging.ReadStack(planePath)
+	if err != nil {
+		return nil, err
+	}
+	if job.gridGeom, err = imaging.Settle(like, planeSide); err != nil {
+		return nil, err
+	}
+	var z *int
+	if f.targetZSet {
+		z = &f.targetZ
+	}
+	grid, page, err := imaging.PlaneGrid(like, job.gridGeom, z)
+	if err != nil {
+		return nil, err
+	}
+	job.grid = grid
+	if job.plane, err = like.Page(page); err != nil {
 		return nil, err
 	}
 	return job, nil
 }
 
-// voxelSize is the flag's value, else the transform file's.
-func voxelSize(name, value string, recorded *transform.Vec) (transform.Vec, error) {
-	if value != "" {
-		return landmarks.ParseTriple(name, value, 3)
-	}
-	if recorded != nil {
-		return *recorded, nil
-	}
-	return transform.Vec{}, fmt.Errorf("%s: the transform file records no voxel size for this side; give it in µm, e.g. %s 1,1,1", name, name)
-}
-
+// resample fills the plane, and refuses when the stack reaches none of it.
 func (j *resampleJob) resample(f *imageFlags) (*imaging.Stack, imaging.ResampleReport, error) {
-	grid := imaging.GridLike(j.plane, j.gridVox, f.targetZ)
-	return imaging.ResampleWithReport(j.file.Transform, j.stack, j.stackVox, grid, imaging.ResampleOptions{Inverse: f.inverse})
+	out, rep, err := imaging.ResampleWithReport(j.file.Transform, j.stack, j.stackGeom.VoxelUM, j.grid,
+		imaging.ResampleOptions{Inverse: f.inverse, StackOrigin: j.stackGeom.OriginUM})
+	if err != nil {
+		return nil, rep, err
+	}
+	if rep.Outside+rep.NoConvergence == rep.Pixels {
+		g := j.grid.Geometry()
+		lo, hi := g.Extent(j.grid.Width, j.grid.Height, 1)
+		return nil, rep, imaging.NoOverlap(j.stack, j.stackGeom, j.file.Transform, f.inverse,
+			j.planePath, lo, hi)
+	}
+	return out, rep, nil
 }
 
-func describeResample(r imaging.ResampleReport) string {
-	s := fmt.Sprintf("%d pixels, %.1f %% outside the stack", r.Pixels, 100*r.OutsideShare())
+func (j *resampleJob) describe(r imaging.ResampleReport) string {
+	g := j.grid.Geometry()
+	s := fmt.Sprintf("%s (%s) onto the plane at z = %s µm of %s (%s): %d pixels, %.1f %% outside the stack",
+		j.stack.Path, j.stackGeom.Describe(), strconv.FormatFloat(g.OriginUM[2], 'g', 6, 64), j.planePath, j.gridGeom.Describe(), r.Pixels, 100*r.OutsideShare())
 	if r.NoConvergence > 0 {
 		s += fmt.Sprintf(", %d where the transform could not be inverted", r.NoConvergence)
 	}
@@ -99,10 +156,17 @@ func newResampleCommand() *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "resample TRANSFORM SOURCE_STACK --like TARGET_IMAGE -o OUT.tif",
 		Short: "Resample the source stack onto the pixel grid of one target plane",
-		Long: `resample fills the pixel grid of TARGET_IMAGE, at target page --target-z,
-from SOURCE_STACK (a multi-page TIFF or a folder of TIFF/PNG planes) through
-the inverse of the transform, by trilinear interpolation. With --inverse the
-stack is in the target and the plane in the source.`,
+		Long: `resample fills the pixel grid of TARGET_IMAGE (a plane, or page --target-z
+of a stack) from SOURCE_STACK (a multi-page TIFF or a folder of TIFF/PNG
+planes) through the inverse of the transform, by trilinear interpolation.
+With --inverse the stack is in the target and the plane in the source.
+
+Each image's voxel size and origin come from its file (ImageJ metadata or
+TIFF resolution tags), else from --source-voxel/--target-voxel and
+--source-origin/--target-origin, else from the transform file. A plane that
+records its z position is drawn there; --target-z must then agree. When the
+stack reaches no pixel of the plane, nothing is written and the message says
+where the stack maps.`,
 		Args: cobra.ExactArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if like == "" {
@@ -111,7 +175,7 @@ stack is in the target and the plane in the source.`,
 			if err := requireOutput(f.out, args[0], args[1], like); err != nil {
 				return err
 			}
-			job, err := f.load(args[0], args[1], like)
+			job, err := f.load(cmd, args[0], args[1], like)
 			if err != nil {
 				return err
 			}
@@ -127,7 +191,7 @@ stack is in the target and the plane in the source.`,
 			if err := imaging.WriteTIFF(f.out, out); err != nil {
 				return err
 			}
-			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", describeResample(rep), f.out)
+			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", job.describe(rep), f.out)
 			return nil
 		},
 	}
@@ -146,13 +210,13 @@ func newOverlayCommand() *cobra.Command {
 writes a colour composite: the target plane in sky blue, the resampled source
 in orange (Okabe & Ito's colour-blind-safe palette), each contrast-stretched.
 With --mapped, the mapped cells that lie within one page of the plane are
-marked, coloured by status.`,
+marked, coloured by status. Voxel sizes, origins and --target-z as for resample.`,
 		Args: cobra.ExactArgs(3),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
 				return err
 			}
-			job, err := f.load(args[0], args[1], args[2])
+			job, err := f.load(cmd, args[0], args[1], args[2])
 			if err != nil {
 				return err
 			}
@@ -173,7 +237,7 @@ marked, coloured by status.`,
 			if err := imaging.WritePNG(f.out, img); err != nil {
 				return err
 			}
-			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", describeResample(rep), len(marks), f.out)
+			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", job.describe(rep), len(marks), f.out)
 			return nil
 		},
 	}
@@ -225,5 +289,5 @@ func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, er
 			}
 		}
 	}
-	return imaging.PlaneMarks(pos, reach, states, imaging.GridLike(job.plane, job.gridVox, f.targetZ)), nil
+	return imaging.PlaneMarks(pos, reach, states, job.grid), nil
 }

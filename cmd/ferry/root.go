@@ -36,6 +36,7 @@ Results are for research and must be checked by eye before tracing.`,
 		newDemoCommand(),
 		newResampleCommand(),
 		newOverlayCommand(),
+		newWarpCommand(),
 		newSuggestCommand(),
 	)
 	return root

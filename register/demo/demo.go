@@ -67,6 +67,9 @@ type Outcome struct {
 	// reach.
 	OverlayMarks   int
 	OverlayOutside float64
+	// Warped is the in vivo stack warped into the EM frame, as ferry warp
+	// writes it.
+	Warped string
 	// flaggedVerdicts are the first check's verdicts on the landmarks it
 	// flagged.
 	flaggedVerdicts []register.LandmarkCheck
@@ -226,12 +229,20 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, ip, mapped)
+	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, mapped)
 	if err != nil {
 		return nil, err
 	}
 	f.Extra = append(f.Extra, stackPath, planePath, overlay.path)
 	out.OverlayMarks, out.OverlayOutside = overlay.marks, overlay.outside
+
+	step("warping the in vivo stack into the EM frame")
+	warped := filepath.Join(o.Dir, WarpedFile)
+	if err := writeWarped(ctx, warped, f.Transform, tf.Transform, stackPath); err != nil {
+		return nil, err
+	}
+	f.Extra = append(f.Extra, warped, warped+".json")
+	out.Warped = warped
 
 	step("writing the quality report")
 	reportPath := filepath.Join(o.Dir, "report.html")
@@ -278,8 +289,9 @@ type overlayResult struct {
 
 // writeOverlay resamples the in vivo stack onto the EM plane through the
 // fitted transform, as ferry overlay does, and marks the mapped cells near
-// the plane.
-func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, ip simulate.ImageParams, mapped []register.Mapped) (overlayResult, error) {
+// the plane. The images' geometry comes from their files, as it does for
+// the command.
+func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, mapped []register.Mapped) (overlayResult, error) {
 	stack, err := imaging.ReadStack(stackPath)
 	if err != nil {
 		return overlayResult{}, err
@@ -288,8 +300,19 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	if err != nil {
 		return overlayResult{}, err
 	}
-	grid := imaging.GridLike(plane, ip.TargetVoxelUM, ip.TargetZ)
-	resampled, rep, err := imaging.ResampleWithReport(t, stack, ip.SourceVoxelUM, grid, imaging.ResampleOptions{})
+	sg, err := imaging.Settle(stack, imaging.Given{VoxelFlag: "--source-voxel"})
+	if err != nil {
+		return overlayResult{}, err
+	}
+	pg, err := imaging.Settle(plane, imaging.Given{VoxelFlag: "--target-voxel"})
+	if err != nil {
+		return overlayResult{}, err
+	}
+	grid, _, err := imaging.PlaneGrid(plane, pg, nil)
+	if err != nil {
+		return overlayResult{}, err
+	}
+	resampled, rep, err := imaging.ResampleWithReport(t, stack, sg.VoxelUM, grid, imaging.ResampleOptions{StackOrigin: sg.OriginUM})
 	if err != nil {
 		return overlayResult{}, err
 	}
@@ -308,6 +331,41 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 		return overlayResult{}, err
 	}
 	return overlayResult{path: path, marks: len(marks), outside: rep.OutsideShare()}, nil
+}
+
+// WarpedFile is the in vivo stack warped into the EM frame.
+const WarpedFile = "invivo_in_em.tif"
+
+// WarpedVoxelUM is the demo's warp grid: the in vivo stack's own voxel
+// size, so that the warped stack is no larger than the original.
+var WarpedVoxelUM = transform.Vec{3, 3, 5}
+
+// writeWarped warps the in vivo stack into the target frame over its mapped
+// box, as ferry warp --voxel 3,3,5 does, with the record beside it.
+func writeWarped(ctx context.Context, path, transformPath string, t transform.Transform, stackPath string) error {
+	pages, err := imaging.OpenPages(stackPath)
+	if err != nil {
+		return err
+	}
+	defer pages.Close()
+	h := pages.Header()
+	g, err := imaging.Settle(h, imaging.Given{VoxelFlag: "--source-voxel"})
+	if err != nil {
+		return err
+	}
+	opt := imaging.WarpOptions{VoxelUM: WarpedVoxelUM}
+	grid, err := imaging.PlanWarp(t, h, g, opt)
+	if err != nil {
+		return err
+	}
+	rep, err := imaging.Warp(ctx, path, t, pages, g, grid, opt, nil)
+	if err != nil {
+		return err
+	}
+	prov := register.Provenance{Command: "warp", Inputs: []register.Input{
+		{Path: transformPath, SHA256: sha(transformPath)}, {Path: stackPath, SHA256: sha(stackPath)}},
+		Flags: []string{fmt.Sprintf("--voxel=%g,%g,%g", WarpedVoxelUM[0], WarpedVoxelUM[1], WarpedVoxelUM[2])}}
+	return imaging.WriteWarpRecord(ctx, path+".json", imaging.NewWarpRecord(path, h, g, grid, opt, rep, prov.Line()))
 }
 
 // writeReport writes the quality report from the files the demo wrote, as
@@ -401,6 +459,9 @@ func (o *Outcome) Print(w io.Writer) {
 	}
 	if o.OverlayMarks > 0 || len(o.Files.Extra) > 0 {
 		fmt.Fprintf(w, "   overlay.png: the in vivo stack (orange) resampled onto an EM section (sky blue), %d mapped cells near the section marked.\n", o.OverlayMarks)
+	}
+	if o.Warped != "" {
+		fmt.Fprintf(w, "   %s: the whole in vivo stack warped into the EM frame, a layer for a viewer (voxel size and origin recorded).\n", filepath.Base(o.Warped))
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"ferry/register/imaging"
 )
 
 // The whole job on the built-in scenario: the check finds exactly the
@@ -46,7 +48,24 @@ func TestDemo(t *testing.T) {
 	}
 	var b bytes.Buffer
 	out.Print(&b)
-	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Results are for research"} {
+	// The warped stack records its grid, and most of it holds the stack.
+	warped, err := imaging.ReadStack(out.Files.Extra[slices.Index(out.Files.Extra, out.Warped)])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g := warped.Geometry; g.VoxelUM != WarpedVoxelUM || !g.HasOrigin[2] {
+		t.Errorf("the warped stack records %s", g.Describe())
+	}
+	lit := 0
+	for _, v := range warped.Data {
+		if v > 0 {
+			lit++
+		}
+	}
+	if lit < len(warped.Data)/2 {
+		t.Errorf("%d of %d warped voxels hold the stack", lit, len(warped.Data))
+	}
+	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Results are for research", WarpedFile} {
 		if !strings.Contains(b.String(), want) {
 			t.Errorf("summary lacks %q:\n%s", want, b.String())
 		}

@@ -6,8 +6,17 @@
 //
 // A Stack holds grey voxels of 8 or 16 bits. Voxel (i, j, k) is column i,
 // row j of page k, all counted from 0, and its centre lies at
-// (i·vx, j·vy, k·vz) µm for the voxel size (vx, vy, vz) of its side; the
-// voxel size travels beside the stack, not in it.
+// (i·vx, j·vy, k·vz) µm for the voxel size (vx, vy, vz) of its side, offset
+// by an origin where one is recorded.
+//
+// Stack.Geometry holds what the file records of the voxel size and origin:
+// ImageJ metadata (unit, spacing, origin) and TIFF resolution tags, read from
+// page 0 (geometry.go). Settle decides a command's geometry from flags, the
+// file and the transform file, in that order; PlaneGrid picks the plane a
+// --target-z names and refuses pages a stack or a placed plane does not
+// hold; NoOverlap explains an output that the stack does not reach, with
+// the stack's box mapped through the transform (MappedBox). WriteTIFF
+// records a known geometry as ImageJ does (tiffwrite.go).
 //
 // ReadStack reads a multi-page TIFF, a folder of single-plane TIFF and PNG
 // files in natural name order (z2 before z10), or a single plane; ReadPlane

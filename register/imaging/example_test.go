@@ -1,8 +1,11 @@
 package imaging_test
 
 import (
+	"context"
 	"fmt"
 	"log"
+	"os"
+	"path/filepath"
 
 	"ferry/register/imaging"
 	"ferry/transform"
@@ -67,4 +70,50 @@ func ExampleOverlay() {
 	fmt.Println(img.RGBAAt(0, 0), img.RGBAAt(3, 0))
 	// Output:
 	// {0 0 0 255} {255 255 233 255}
+}
+
+// A stack is warped through a shift of 2 µm along x onto a grid of its
+// own voxel size: the output is the stack moved by one voxel, the column
+// it does not reach 0, and the file records where its voxels lie.
+func ExampleWarp() {
+	src, err := imaging.NewStack(4, 1, 2, 8)
+	if err != nil {
+		log.Fatal(err)
+	}
+	for i := range 4 {
+		src.Set(i, 0, 0, uint16(10*(i+1)))
+		src.Set(i, 0, 1, uint16(10*(i+1)+5))
+	}
+	g := imaging.Geometry{VoxelUM: transform.Vec{2, 2, 3}}
+	shift := &transform.Linear{Model: transform.Translation, D: 3, A: transform.Identity(), T: transform.Vec{2, 0, 0}, Scale: 1}
+	bounds := [2]transform.Vec{{0, 0, 0}, {6, 0, 3}}
+	opt := imaging.WarpOptions{VoxelUM: g.VoxelUM, Bounds: &bounds}
+	grid, err := imaging.PlanWarp(shift, src, g, opt)
+	if err != nil {
+		log.Fatal(err)
+	}
+	dir, err := os.MkdirTemp("", "warp")
+	if err != nil {
+		log.Fatal(err)
+	}
+	defer os.RemoveAll(dir)
+	path := filepath.Join(dir, "warped.tif")
+	if _, err := imaging.Warp(context.Background(), path, shift, imaging.MemoryPages(src), g, grid, opt, nil); err != nil {
+		log.Fatal(err)
+	}
+	out, err := imaging.ReadStack(path)
+	if err != nil {
+		log.Fatal(err)
+	}
+	for k := range out.Depth {
+		for i := range out.Width {
+			fmt.Printf("%3d", out.At(i, 0, k))
+		}
+		fmt.Println()
+	}
+	fmt.Println(out.Geometry.Describe())
+	// Output:
+	//   0 10 20 30
+	//   0 15 25 35
+	// voxels 2 × 2 × 3 µm (ImageJ metadata)
 }

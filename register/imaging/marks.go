@@ -10,13 +10,13 @@ import (
 // whose sphere of radius reach[i] (µm; their r95) meets the plane of grid,
 // or that lie within one page of it, in the plane's pixels.
 func PlaneMarks(pos []transform.Vec, reach []float64, status []string, grid Grid) []Mark {
-	z := float64(grid.Z) * grid.Voxel[2]
+	z := grid.Origin[2] + float64(grid.Z)*grid.Voxel[2]
 	var marks []Mark
 	for i, p := range pos {
 		if math.Abs(p[2]-z) > math.Max(reach[i], grid.Voxel[2]) {
 			continue
 		}
-		marks = append(marks, Mark{X: p[0] / grid.Voxel[0], Y: p[1] / grid.Voxel[1], Status: status[i]})
+		marks = append(marks, Mark{X: (p[0] - grid.Origin[0]) / grid.Voxel[0], Y: (p[1] - grid.Origin[1]) / grid.Voxel[1], Status: status[i]})
 	}
 	return marks
 }

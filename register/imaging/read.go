@@ -213,7 +213,11 @@ func readFolder(dir string) (*Stack, error) {
 			if err != nil {
 				return nil, fmt.Errorf("imaging: %s: %w", dir, err)
 			}
-			s = &Stack{Width: p.Width, Height: p.Height, Depth: len(names), Bits: p.Bits, Path: dir}
+			s = &Stack{Width: p.Width, Height: p.Height, Depth: len(names), Bits: p.Bits, Path: dir, Geometry: p.Geometry}
+			// The planes' names order them; where the folder starts in z
+			// no single plane can say.
+			s.Geometry.HasOrigin[2] = false
+			s.Geometry.OriginUM[2] = 0
 			s.Data = make([]uint16, 0, n)
 		} else if p.Width != s.Width || p.Height != s.Height || p.Bits != s.Bits {
 			return nil, fmt.Errorf("imaging: %s: plane %d is %d × %d pixels of %d bits but %s is %d × %d pixels of %d bits; all planes of a stack must agree",

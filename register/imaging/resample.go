@@ -16,11 +16,21 @@ const DefaultToleranceUM = 0.05
 
 // Grid is the pixel grid of one output plane: Width × Height pixels of a
 // space whose voxels measure Voxel µm, at page Z of that space. Pixel (i, j)
-// sits at (i·Voxel[0], j·Voxel[1], Z·Voxel[2]) µm.
+// sits at Origin + (i·Voxel[0], j·Voxel[1], Z·Voxel[2]) µm; Origin is zero
+// for the contract's voxel grid.
 type Grid struct {
 	Width, Height int
 	Voxel         transform.Vec
 	Z             int
+	Origin        transform.Vec
+}
+
+// Geometry is the geometry of the plane as a stack of one page, to record
+// in the file it is written to.
+func (g Grid) Geometry() Geometry {
+	o := g.Origin
+	o[2] += float64(g.Z) * g.Voxel[2]
+	return Geometry{VoxelUM: g.Voxel, OriginUM: o, HasOrigin: [3]bool{true, true, true}}
 }
 
 // GridLike is the grid of plane z of a space with voxels of voxel µm whose
@@ -42,6 +52,9 @@ type ResampleOptions struct {
 	// Exact maps every output pixel exactly instead of interpolating: slow
 	// for a spline, and never needed for accuracy.
 	Exact bool
+	// StackOrigin is the position of the input stack's voxel (0, 0, 0),
+	// µm; zero for the contract's voxel grid.
+	StackOrigin transform.Vec
 }
 
 // ResampleReport counts what happened to the output pixels.
@@ -141,6 +154,7 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 	if err != nil {
 		return nil, rep, fmt.Errorf("imaging: resample: output plane: %w", err)
 	}
+	out.Geometry = grid.Geometry()
 
 	mapPoint := func(q transform.Vec) (transform.Vec, bool) {
 		p, err := t.Invert(q)
@@ -153,7 +167,7 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 		}
 	}
 	f := &field{grid: grid, mapPoint: mapPoint, check: tol / 2, exact: opt.Exact}
-	smp := newSampler(src, srcVoxel)
+	smp := newSampler(src, srcVoxel, opt.StackOrigin)
 	var outside, failed atomic.Int64
 	rep.Evaluations = f.run(func(j, i0 int, pos []transform.Vec, ok []bool) {
 		nOut, nFail := smp.sampleRow(out.Data[j*grid.Width+i0:][:len(pos)], pos, ok)
@@ -180,42 +194,77 @@ func checkVoxel(v transform.Vec) error {
 	return nil
 }
 
-// sampler interpolates a stack trilinearly at positions in µm.
+// sampler interpolates a stack trilinearly at positions in µm. It reads
+// the stack page by page, so that warp can hand it only the pages a stretch
+// of output needs (nil elsewhere).
 type sampler struct {
-	data []uint16
-	inv  transform.Vec // voxels per µm
+	pages  [][]uint16
+	inv    transform.Vec // voxels per µm
+	origin transform.Vec // µm
 	// Per axis: the upper end of the stack's extent in voxels (centres at
 	// 0 … n−1, extent −½ … n−½), the largest lower neighbour index, the
-	// index step to the upper neighbour (0 for a single voxel) and the
-	// stride in Data.
+	// index step to the upper neighbour (0 for a single voxel) and, for x
+	// and y, the stride within a page.
 	hi     [3]float64
 	top    [3]int
 	next   [3]int
-	stride [3]int
+	stride [2]int
 }
 
-func newSampler(s *Stack, voxel transform.Vec) *sampler {
-	sm := &sampler{data: s.Data, inv: transform.Vec{1 / voxel[0], 1 / voxel[1], 1 / voxel[2]}}
-	n := [3]int{s.Width, s.Height, s.Depth}
-	sm.stride = [3]int{1, s.Width, s.Width * s.Height}
+func newSampler(s *Stack, voxel, origin transform.Vec) *sampler {
+	pages := make([][]uint16, s.Depth)
+	for k := range pages {
+		pages[k] = s.PageData(k)
+	}
+	return newPageSampler(pages, s.Width, s.Height, voxel, origin)
+}
+
+func newPageSampler(pages [][]uint16, width, height int, voxel, origin transform.Vec) *sampler {
+	sm := &sampler{pages: pages, inv: transform.Vec{1 / voxel[0], 1 / voxel[1], 1 / voxel[2]}, origin: origin}
+	n := [3]int{width, height, len(pages)}
+	sm.stride = [2]int{1, width}
 	for a := range 3 {
 		sm.hi[a] = float64(n[a]) - 0.5
 		sm.top[a] = max(n[a]-2, 0)
-		sm.next[a] = min(n[a]-1, 1) * sm.stride[a]
+		sm.next[a] = min(n[a]-1, 1)
+		if a < 2 {
+			sm.next[a] *= sm.stride[a]
+		}
 	}
 	return sm
+}
+
+// pageRange is the range of pages k0 … k1 that trilinear sampling at the
+// positions reads; ok is false when every position is outside or failed.
+func (sm *sampler) pageRange(pos []transform.Vec, good []bool) (k0, k1 int, ok bool) {
+	iz, oz, hz := sm.inv[2], sm.origin[2], sm.hi[2]
+	k0, k1 = math.MaxInt, -1
+	for n, p := range pos {
+		if !good[n] {
+			continue
+		}
+		w := (p[2] - oz) * iz
+		if !(w >= -0.5 && w < hz) {
+			continue
+		}
+		k := min(int(max(w, 0)), sm.top[2])
+		k0 = min(k0, k)
+		k1 = max(k1, k+sm.next[2])
+	}
+	return k0, k1, k1 >= 0
 }
 
 // sampleRow sets out[n] to the trilinear value at pos[n] µm, rounded, or to
 // 0 where ok[n] is false or pos[n] lies outside the stack, and counts the
 // pixels outside and those not ok.
 func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outside, failed int) {
-	data := sm.data
+	pages := sm.pages
 	ix, iy, iz := sm.inv[0], sm.inv[1], sm.inv[2]
+	ox, oy, oz := sm.origin[0], sm.origin[1], sm.origin[2]
 	hx, hy, hz := sm.hi[0], sm.hi[1], sm.hi[2]
 	tx, ty, tz := sm.top[0], sm.top[1], sm.top[2]
 	nx, ny, nz := sm.next[0], sm.next[1], sm.next[2]
-	sy, sz := sm.stride[1], sm.stride[2]
+	sy := sm.stride[1]
 	ok = ok[:len(pos)]
 	out = out[:len(pos)]
 	for n := range pos {
@@ -224,7 +273,7 @@ func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outs
 			failed++
 			continue
 		}
-		u, v, w := pos[n][0]*ix, pos[n][1]*iy, pos[n][2]*iz
+		u, v, w := (pos[n][0]-ox)*ix, (pos[n][1]-oy)*iy, (pos[n][2]-oz)*iz
 		// Written so that NaN falls outside too.
 		if !(u >= -0.5 && u < hx && v >= -0.5 && v < hy && w >= -0.5 && w < hz) {
 			out[n] = 0
@@ -235,14 +284,15 @@ func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outs
 		u, v, w = max(u, 0), max(v, 0), max(w, 0)
 		i, j, k := min(int(u), tx), min(int(v), ty), min(int(w), tz)
 		fu, fv, fw := min(u-float64(i), 1), min(v-float64(j), 1), min(w-float64(k), 1)
-		at := i + j*sy + k*sz
-		a00 := lerp(float64(data[at]), float64(data[at+nx]), fu)
-		a01 := lerp(float64(data[at+ny]), float64(data[at+ny+nx]), fu)
+		at := i + j*sy
+		p := pages[k]
+		a00 := lerp(float64(p[at]), float64(p[at+nx]), fu)
+		a01 := lerp(float64(p[at+ny]), float64(p[at+ny+nx]), fu)
 		a := lerp(a00, a01, fv)
 		if fw != 0 {
-			at += nz
-			b00 := lerp(float64(data[at]), float64(data[at+nx]), fu)
-			b01 := lerp(float64(data[at+ny]), float64(data[at+ny+nx]), fu)
+			p = pages[k+nz]
+			b00 := lerp(float64(p[at]), float64(p[at+nx]), fu)
+			b01 := lerp(float64(p[at+ny]), float64(p[at+ny+nx]), fu)
 			a = lerp(a, lerp(b00, b01, fv), fw)
 		}
 		out[n] = uint16(a + 0.5)
@@ -273,7 +323,8 @@ type emitFunc func(j, i0 int, pos []transform.Vec, ok []bool)
 
 // position is the target-side position of pixel (i, j) of the plane, µm.
 func (f *field) position(i, j int) transform.Vec {
-	return transform.Vec{float64(i) * f.grid.Voxel[0], float64(j) * f.grid.Voxel[1], float64(f.grid.Z) * f.grid.Voxel[2]}
+	g := &f.grid
+	return transform.Vec{g.Origin[0] + float64(i)*g.Voxel[0], g.Origin[1] + float64(j)*g.Voxel[1], g.Origin[2] + float64(g.Z)*g.Voxel[2]}
 }
 
 // run calls emit for every pixel of the plane, on all cores, and returns the

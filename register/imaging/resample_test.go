@@ -185,19 +185,19 @@ func TestInterpolationBound(t *testing.T) {
 		// offset moves the plane's origin, µm.
 		offset transform.Vec
 	}{
-		{"linear", linear(transform.Mat{{0.9, 0.1, 0}, {-0.1, 1.1, 0.05}, {0, 0, 1}}, transform.Vec{5, 7, -2}), false, Grid{300, 200, transform.Vec{0.7, 0.7, 2}, 10}, 0.05, 0.01, transform.Vec{}},
-		{"warp", warp, false, Grid{300, 260, transform.Vec{0.5, 0.5, 2}, 5}, 0.05, 0.25, transform.Vec{}},
-		{"warp tight", warp, false, Grid{200, 200, transform.Vec{0.5, 0.5, 2}, 5}, 0.005, 1.1, transform.Vec{}},
-		{"warp forward", warp, true, Grid{300, 260, transform.Vec{0.5, 0.5, 2}, 5}, 0.05, 0.25, transform.Vec{}},
-		{"strong kink", cone, false, Grid{300, 300, transform.Vec{0.1, 0.1, 1}, 10}, 0.05, 0.2, transform.Vec{}},
-		{"strong kink forward", cone, true, Grid{300, 300, transform.Vec{0.1, 0.1, 1}, 10}, 0.05, 0.2, transform.Vec{}},
-		{"spline, landmarks on the plane", spline, false, Grid{260, 260, transform.Vec{2, 2, 1}, 100}, 0.05, 0.7, transform.Vec{}},
-		{"spline forward", spline, true, Grid{260, 260, transform.Vec{2, 2, 1}, 100}, 0.05, 0.7, transform.Vec{}},
+		{"linear", linear(transform.Mat{{0.9, 0.1, 0}, {-0.1, 1.1, 0.05}, {0, 0, 1}}, transform.Vec{5, 7, -2}), false, Grid{Width: 300, Height: 200, Voxel: transform.Vec{0.7, 0.7, 2}, Z: 10}, 0.05, 0.01, transform.Vec{}},
+		{"warp", warp, false, Grid{Width: 300, Height: 260, Voxel: transform.Vec{0.5, 0.5, 2}, Z: 5}, 0.05, 0.25, transform.Vec{}},
+		{"warp tight", warp, false, Grid{Width: 200, Height: 200, Voxel: transform.Vec{0.5, 0.5, 2}, Z: 5}, 0.005, 1.1, transform.Vec{}},
+		{"warp forward", warp, true, Grid{Width: 300, Height: 260, Voxel: transform.Vec{0.5, 0.5, 2}, Z: 5}, 0.05, 0.25, transform.Vec{}},
+		{"strong kink", cone, false, Grid{Width: 300, Height: 300, Voxel: transform.Vec{0.1, 0.1, 1}, Z: 10}, 0.05, 0.2, transform.Vec{}},
+		{"strong kink forward", cone, true, Grid{Width: 300, Height: 300, Voxel: transform.Vec{0.1, 0.1, 1}, Z: 10}, 0.05, 0.2, transform.Vec{}},
+		{"spline, landmarks on the plane", spline, false, Grid{Width: 260, Height: 260, Voxel: transform.Vec{2, 2, 1}, Z: 100}, 0.05, 0.7, transform.Vec{}},
+		{"spline forward", spline, true, Grid{Width: 260, Height: 260, Voxel: transform.Vec{2, 2, 1}, Z: 100}, 0.05, 0.7, transform.Vec{}},
 		// Fine pixels around a landmark that lies on the plane.
-		{"spline near a kink", spline, false, Grid{200, 200, transform.Vec{0.05, 0.05, 1}, 100}, 0.05, 0.5, transform.Vec{}},
+		{"spline near a kink", spline, false, Grid{Width: 200, Height: 200, Voxel: transform.Vec{0.05, 0.05, 1}, Z: 100}, 0.05, 0.5, transform.Vec{}},
 		// Windows of the plane of BenchmarkResample4096, at its pixel size.
-		{"spline, benchmark pixels", spline, false, Grid{400, 300, transform.Vec{0.125, 0.125, 1}, 100}, 0.05, 0.1, transform.Vec{211.7, 143.2, 0}},
-		{"spline, benchmark pixels forward", spline, true, Grid{400, 300, transform.Vec{0.125, 0.125, 1}, 100}, 0.05, 0.1, transform.Vec{377.1, 402.9, 0}},
+		{"spline, benchmark pixels", spline, false, Grid{Width: 400, Height: 300, Voxel: transform.Vec{0.125, 0.125, 1}, Z: 100}, 0.05, 0.1, transform.Vec{211.7, 143.2, 0}},
+		{"spline, benchmark pixels forward", spline, true, Grid{Width: 400, Height: 300, Voxel: transform.Vec{0.125, 0.125, 1}, Z: 100}, 0.05, 0.1, transform.Vec{377.1, 402.9, 0}},
 	}
 	if testing.Short() {
 		tests = tests[:6]
@@ -272,17 +272,17 @@ func TestResampleValues(t *testing.T) {
 			func(i, j int) (uint16, bool) { return pattern16(i-2, j, 2), i >= 2 }, 2 * 7},
 		{"shift, inverse", linear(transform.Identity(), transform.Vec{1, 0, 0}), same, true,
 			func(i, j int) (uint16, bool) { return pattern16(i+2, j, 2), i+2 < 13 }, 2 * 7},
-		{"half a page", linear(transform.Identity(), transform.Vec{0, 0, 1}), Grid{13, 7, voxel, 3}, false,
+		{"half a page", linear(transform.Identity(), transform.Vec{0, 0, 1}), Grid{Width: 13, Height: 7, Voxel: voxel, Z: 3}, false,
 			func(i, j int) (uint16, bool) {
 				// Target z = 6 µm comes from source z = 5 µm, page 2.5.
 				a, b := float64(pattern16(i, j, 2)), float64(pattern16(i, j, 3))
 				return uint16(math.Floor((a+b)/2 + 0.5)), true
 			}, 0},
-		{"transposed", linear(transform.Mat{{0, 1, 0}, {1, 0, 0}, {0, 0, 1}}, transform.Vec{}), Grid{7, 13, voxel, 0}, false,
+		{"transposed", linear(transform.Mat{{0, 1, 0}, {1, 0, 0}, {0, 0, 1}}, transform.Vec{}), Grid{Width: 7, Height: 13, Voxel: voxel, Z: 0}, false,
 			func(i, j int) (uint16, bool) { return pattern16(j, i, 0), true }, 0},
-		{"outside in z", linear(transform.Identity(), transform.Vec{}), Grid{13, 7, voxel, 4}, false,
+		{"outside in z", linear(transform.Identity(), transform.Vec{}), Grid{Width: 13, Height: 7, Voxel: voxel, Z: 4}, false,
 			func(i, j int) (uint16, bool) { return 0, false }, 13 * 7},
-		{"finer grid", linear(transform.Identity(), transform.Vec{}), Grid{25, 13, transform.Vec{0.25, 0.25, 2}, 1}, false,
+		{"finer grid", linear(transform.Identity(), transform.Vec{}), Grid{Width: 25, Height: 13, Voxel: transform.Vec{0.25, 0.25, 2}, Z: 1}, false,
 			func(i, j int) (uint16, bool) {
 				// Every even pixel is a voxel centre; odd ones lie halfway.
 				a := func(i, j int) float64 { return float64(pattern16(i, j, 1)) }
@@ -329,7 +329,7 @@ func TestResampleNoConvergence(t *testing.T) {
 		src.Data[n] = 200
 	}
 	voxel := transform.Vec{1, 1, 1}
-	grid := Grid{400, 300, voxel, 0}
+	grid := Grid{Width: 400, Height: 300, Voxel: voxel, Z: 0}
 	disc := failDisc{c: transform.Vec{151.3, 122.7, 0}, r: 61.5}
 	for _, exact := range []bool{false, true} {
 		out, rep, err := ResampleWithReport(disc, src, voxel, grid, ResampleOptions{Exact: exact})
@@ -370,15 +370,15 @@ func TestResampleErrors(t *testing.T) {
 		opt   ResampleOptions
 		want  string
 	}{
-		{"no transform", nil, src, v, Grid{4, 3, v, 0}, ResampleOptions{}, "no transform"},
-		{"no stack", id, nil, v, Grid{4, 3, v, 0}, ResampleOptions{}, "no stack"},
-		{"bad stack", id, &Stack{Width: 4, Height: 3, Depth: 2, Bits: 8}, v, Grid{4, 3, v, 0}, ResampleOptions{}, "samples"},
-		{"zero voxel", id, src, transform.Vec{1, 0, 1}, Grid{4, 3, v, 0}, ResampleOptions{}, "positive"},
-		{"NaN grid voxel", id, src, v, Grid{4, 3, transform.Vec{math.NaN(), 1, 1}, 0}, ResampleOptions{}, "output plane"},
-		{"empty grid", id, src, v, Grid{0, 3, v, 0}, ResampleOptions{}, "at least 1"},
-		{"huge grid", id, src, v, Grid{1 << 21, 3, v, 0}, ResampleOptions{}, "at most"},
-		{"huge plane", id, src, v, Grid{1 << 20, 1 << 20, v, 0}, ResampleOptions{}, "at most"},
-		{"negative tolerance", id, src, v, Grid{4, 3, v, 0}, ResampleOptions{ToleranceUM: -1}, "tolerance"},
+		{"no transform", nil, src, v, Grid{Width: 4, Height: 3, Voxel: v}, ResampleOptions{}, "no transform"},
+		{"no stack", id, nil, v, Grid{Width: 4, Height: 3, Voxel: v}, ResampleOptions{}, "no stack"},
+		{"bad stack", id, &Stack{Width: 4, Height: 3, Depth: 2, Bits: 8}, v, Grid{Width: 4, Height: 3, Voxel: v}, ResampleOptions{}, "samples"},
+		{"zero voxel", id, src, transform.Vec{1, 0, 1}, Grid{Width: 4, Height: 3, Voxel: v}, ResampleOptions{}, "positive"},
+		{"NaN grid voxel", id, src, v, Grid{Width: 4, Height: 3, Voxel: transform.Vec{math.NaN(), 1, 1}, Z: 0}, ResampleOptions{}, "output plane"},
+		{"empty grid", id, src, v, Grid{Width: 0, Height: 3, Voxel: v}, ResampleOptions{}, "at least 1"},
+		{"huge grid", id, src, v, Grid{Width: 1 << 21, Height: 3, Voxel: v}, ResampleOptions{}, "at most"},
+		{"huge plane", id, src, v, Grid{Width: 1 << 20, Height: 1 << 20, Voxel: v}, ResampleOptions{}, "at most"},
+		{"negative tolerance", id, src, v, Grid{Width: 4, Height: 3, Voxel: v}, ResampleOptions{ToleranceUM: -1}, "tolerance"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -400,7 +400,7 @@ func BenchmarkResample4096(b *testing.B) {
 		src.Data[n] = uint16(n * 2654435761 >> 16)
 	}
 	voxel := transform.Vec{1, 1, 4}
-	grid := Grid{4096, 4096, transform.Vec{0.125, 0.125, 1}, 100}
+	grid := Grid{Width: 4096, Height: 4096, Voxel: transform.Vec{0.125, 0.125, 1}, Z: 100}
 	var rep ResampleReport
 	b.ResetTimer()
 	for b.Loop() {

@@ -23,6 +23,11 @@ type Stack struct {
 	// Colour reports that at least one plane was stored in colour and was
 	// converted to grey when read (see ReadPlane).
 	Colour bool
+	// Geometry is what the file records of the voxel size and origin
+	// (ImageJ metadata, TIFF resolution tags), or what the maker of a
+	// stack in memory set; WriteTIFF records it. Its zero value records
+	// nothing.
+	Geometry Geometry
 }
 
 // NewStack returns a zeroed stack of the given size and bit depth.
@@ -92,6 +97,7 @@ func (s *Stack) Page(k int) (*Stack, error) {
 	p := *s
 	p.Depth = 1
 	p.Data = s.PageData(k)
+	p.Geometry.OriginUM[2] += float64(k) * p.Geometry.VoxelUM[2]
 	return &p, nil
 }
 

@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strings"
 
 	"golang.org/x/image/tiff/lzw"
 )
@@ -33,11 +34,15 @@ const (
 	tagBitsPerSample   = 258
 	tagCompression     = 259
 	tagPhotometric     = 262
+	tagDescription     = 270
 	tagStripOffsets    = 273
 	tagSamplesPerPixel = 277
 	tagRowsPerStrip    = 278
 	tagStripByteCounts = 279
+	tagXResolution     = 282
+	tagYResolution     = 283
 	tagPlanarConfig    = 284
+	tagResolutionUnit  = 296
 	tagPredictor       = 317
 	tagTileWidth       = 322
 	tagTileLength      = 323
@@ -98,6 +103,9 @@ type tiffPage struct {
 	tiled              bool
 	offsets            []int64
 	counts             []int64
+	// calibration is read from page 0 only, where ImageJ and most
+	// writers put it.
+	calibration tiffCalibration
 }
 
 // pageError is an error about one page of a file.
@@ -447,6 +455,9 @@ func (f *tiffFile) parseIFD(k int, off int64) (tiffPage, int64, error) {
 	} else {
 		return p, 0, f.pageError(k, "a compressed page without strip or tile byte counts (tag %d)", countTag)
 	}
+	if k == 0 {
+		p.calibration = f.calibration(entries)
+	}
 	what := "strip"
 	if p.tiled {
 		what = "tile"
@@ -475,6 +486,54 @@ func (f *tiffFile) parseIFD(k int, off int64) (tiffPage, int64, error) {
 	return p, next, nil
 }
 
+// maxDescription bounds the ImageDescription read for its metadata: ImageJ's
+// keys come first, and a longer text is someone's notes.
+const maxDescription = 1 << 16
+
+// calibration reads the tags that record page 0's geometry. They are
+// optional and informative: a damaged or odd one is skipped, not an error,
+// and the user is asked for the voxel size as if it were absent.
+func (f *tiffFile) calibration(entries map[uint16]entry) tiffCalibration {
+	var c tiffCalibration
+	if e, ok := entries[tagDescription]; ok && e.typ == 2 && e.count > 0 {
+		n := min(int64(e.count), maxDescription)
+		raw := e.value[:min(n, 4)]
+		if e.count > 4 {
+			off := int64(f.order.Uint32(e.value[:]))
+			if off+n <= f.size && f.claim(n) {
+				raw = make([]byte, n)
+				if f.readAt(raw, off) != nil {
+					raw = nil
+				}
+			} else {
+				raw = nil
+			}
+		}
+		c.description = strings.TrimRight(string(raw), "\x00")
+	}
+	rat := func(tag uint16) float64 {
+		e, ok := entries[tag]
+		if !ok || e.typ != 5 || e.count < 1 {
+			return 0
+		}
+		off := int64(f.order.Uint32(e.value[:]))
+		var b [8]byte
+		if off+8 > f.size || f.readAt(b[:], off) != nil {
+			return 0
+		}
+		num, den := f.order.Uint32(b[:4]), f.order.Uint32(b[4:])
+		if num == 0 || den == 0 {
+			return 0
+		}
+		return float64(num) / float64(den)
+	}
+	c.xres, c.yres = rat(tagXResolution), rat(tagYResolution)
+	if e, ok := entries[tagResolutionUnit]; ok && e.typ == 3 && e.count == 1 {
+		c.resUnit = int(f.order.Uint16(e.value[:2]))
+	}
+	return c
+}
+
 // readTIFF reads every page of a classic TIFF into a stack. With onePlane it
 // refuses files of more than one page.
 func readTIFF(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, error) {
@@ -500,7 +559,8 @@ func readTIFF(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, er
 	if err != nil {
 		return nil, fmt.Errorf("imaging: %s: %w", name, err)
 	}
-	s := &Stack{Width: p0.width, Height: p0.height, Depth: len(pages), Bits: p0.bits, Data: make([]uint16, n), Path: name}
+	s := &Stack{Width: p0.width, Height: p0.height, Depth: len(pages), Bits: p0.bits, Data: make([]uint16, n), Path: name,
+		Geometry: p0.calibration.geometry()}
 	var d pageDecoder
 	for k := range pages {
 		colour, err := d.decode(f, &pages[k], s.PageData(k))

@@ -14,7 +14,7 @@ import (
 // The layout WriteTIFF gives a 13 × 7 8-bit stack: page data of 91 bytes
 // padded to 92, then a directory of 11 entries (138 bytes).
 const (
-	craftPlane = 92
+	craftPlane = 91
 	craftIFD   = 138
 )
 
@@ -32,8 +32,9 @@ func craftedTIFF(t testing.TB) []byte {
 	return b
 }
 
-// ifdAt is the offset of page k's directory in a crafted file.
-func ifdAt(k int) int { return 8 + k*(craftPlane+craftIFD) + craftPlane }
+// ifdAt is the offset of page k's directory in a crafted file: the
+// directories follow the three pages' pixels.
+func ifdAt(k int) int { return 8 + 3*craftPlane + 1 + k*craftIFD } // one pad byte
 
 // setEntry overwrites the value of entry n of page k (SHORT or LONG).
 func setEntry(b []byte, k, n int, v uint32) {

@@ -2,7 +2,6 @@ package imaging
 
 import (
 	"context"
-	"encoding/binary"
 	"fmt"
 	"image"
 	"image/png"
@@ -14,8 +13,12 @@ import (
 
 // WriteTIFF writes s as a classic little-endian multi-page TIFF: one
 // uncompressed grey page (black is zero) of s.Bits bits per voxel page, each
-// page in one strip. The file appears whole or not at all: it is written to
-// a temporary file in the same folder and renamed over path only when
+// page in one strip. When s.Geometry knows the voxel size, it is recorded
+// for other programs as ImageJ does: the lateral pixel size in the
+// XResolution and YResolution tags (pixels per µm), and the unit, the
+// section spacing and the origin in an ImageJ ImageDescription on page 0
+// (see tiffwrite.go). The file appears whole or not at all: it is written
+// to a temporary file in the same folder and renamed over path only when
 // complete. It refuses to write over the file s was read from.
 func WriteTIFF(path string, s *Stack) error {
 	if err := s.check(); err != nil {
@@ -24,75 +27,21 @@ func WriteTIFF(path string, s *Stack) error {
 	if err := refuseOwnInput(path, s.Path); err != nil {
 		return err
 	}
-	bytesPer := int64(s.Bits / 8)
-	plane := int64(s.Width) * int64(s.Height) * bytesPer
-	padded := plane + plane%2 // directories start on a word boundary
-	const entries = 11
-	const ifdSize = 2 + 12*entries + 4
-	total := 8 + int64(s.Depth)*(padded+ifdSize)
-	if total > 1<<32-1 {
-		return fmt.Errorf("imaging: %s: %d bytes exceed the 4 GiB of a classic TIFF; write a folder of planes instead", path, total)
+	l := tiffLayout{width: s.Width, height: s.Height, depth: s.Depth, bits: s.Bits, geometry: s.Geometry}
+	if err := l.check(path); err != nil {
+		return err
 	}
-	return writeAtomic(path, func(bw io.Writer) error {
-		le := binary.LittleEndian
-		header := []byte{'I', 'I', 42, 0, 0, 0, 0, 0}
-		le.PutUint32(header[4:], uint32(8+padded)) // the first directory follows page 0
-		if _, err := bw.Write(header); err != nil {
+	return writeAtomic(path, func(w io.Writer) error {
+		tw, err := newTIFFWriter(w, l)
+		if err != nil {
 			return err
 		}
-		buf := make([]byte, padded)
-		ifd := make([]byte, ifdSize)
 		for k := range s.Depth {
-			page := s.PageData(k)
-			if s.Bits == 8 {
-				for i, v := range page {
-					buf[i] = uint8(min(v, 0xff))
-				}
-			} else {
-				for i, v := range page {
-					le.PutUint16(buf[2*i:], v)
-				}
-			}
-			if _, err := bw.Write(buf); err != nil {
-				return err
-			}
-			dataAt := 8 + int64(k)*(padded+ifdSize)
-			next := uint32(0)
-			if k+1 < s.Depth {
-				next = uint32(dataAt + padded + ifdSize + padded)
-			}
-			// Entries in ascending tag order, as TIFF 6.0 requires.
-			le.PutUint16(ifd, entries)
-			put := func(n int, tag, typ uint16, value uint32) {
-				e := ifd[2+12*n:]
-				le.PutUint16(e, tag)
-				le.PutUint16(e[2:], typ)
-				le.PutUint32(e[4:], 1)
-				if typ == 3 {
-					le.PutUint32(e[8:], 0)
-					le.PutUint16(e[8:], uint16(value))
-				} else {
-					le.PutUint32(e[8:], value)
-				}
-			}
-			const short, long = 3, 4
-			put(0, 254, long, 0) // NewSubfileType: a full-resolution image
-			put(1, tagImageWidth, long, uint32(s.Width))
-			put(2, tagImageLength, long, uint32(s.Height))
-			put(3, tagBitsPerSample, short, uint32(s.Bits))
-			put(4, tagCompression, short, compNone)
-			put(5, tagPhotometric, short, photoBlackIsZero)
-			put(6, tagStripOffsets, long, uint32(dataAt))
-			put(7, tagSamplesPerPixel, short, 1)
-			put(8, tagRowsPerStrip, long, uint32(s.Height))
-			put(9, tagStripByteCounts, long, uint32(plane))
-			put(10, tagSampleFormat, short, 1)
-			le.PutUint32(ifd[2+12*entries:], next)
-			if _, err := bw.Write(ifd); err != nil {
+			if err := tw.writePage(s.PageData(k)); err != nil {
 				return err
 			}
 		}
-		return nil
+		return tw.finish()
 	})
 }
 

@@ -7,13 +7,30 @@ import (
 	"image/color"
 	"image/png"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	xtiff "golang.org/x/image/tiff"
+
+	"ferry/transform"
 )
+
+// goldenGeometry is the voxel size and origin recorded in go_written16.tif.
+var goldenGeometry = Geometry{VoxelUM: transform.Vec{0.3, 0.4, 2.5}, OriginUM: transform.Vec{12, -6, 100}, HasOrigin: [3]bool{true, true, true}}
+
+// checkGeometry compares a geometry read back with what was meant, to
+// nine significant digits (a TIFF RATIONAL's precision for these values).
+func checkGeometry(t *testing.T, got Geometry, voxel, origin transform.Vec) {
+	t.Helper()
+	for a := range 3 {
+		if math.Abs(got.VoxelUM[a]-voxel[a]) > 1e-9*voxel[a] || math.Abs(got.OriginUM[a]-origin[a]) > 1e-9*(1+math.Abs(origin[a])) {
+			t.Fatalf("geometry read back as voxel %v µm, origin %v µm (from %q); want voxel %v, origin %v", got.VoxelUM, got.OriginUM, got.From, voxel, origin)
+		}
+	}
+}
 
 // patternStack is a stack filled with make_images.py's pattern of its depth.
 func patternStack(t testing.TB, width, height, depth, bits int) *Stack {
@@ -84,14 +101,20 @@ func TestGoldenFiles(t *testing.T) {
 		name    string
 		w, h, d int
 		bits    int
+		geom    Geometry
 	}{
-		{"go_written8.tif", 13, 7, 3, 8},
-		{"go_written16.tif", 13, 7, 4, 16},
-		{"go_written16.png", 13, 7, 1, 16},
-		{"go_written8.png", 13, 7, 1, 8},
+		// make_images.py --verify checks with tifffile that these record
+		// their geometry (.ci/run passes it these values), and reads the
+		// 8-bit one's odd-sized pages through tifffile's ImageJ path,
+		// which takes the pages as one block.
+		{"go_written8.tif", 13, 7, 3, 8, Geometry{VoxelUM: transform.Vec{0.5, 0.5, 1}, HasOrigin: [3]bool{true, true, true}}},
+		{"go_written16.tif", 13, 7, 4, 16, goldenGeometry},
+		{"go_written16.png", 13, 7, 1, 16, Geometry{}},
+		{"go_written8.png", 13, 7, 1, 8, Geometry{}},
 	} {
 		t.Run(g.name, func(t *testing.T) {
 			s := patternStack(t, g.w, g.h, g.d, g.bits)
+			s.Geometry = g.geom
 			golden := filepath.Join(testdata, g.name)
 			out := filepath.Join(t.TempDir(), g.name)
 			if update {
@@ -111,6 +134,9 @@ func TestGoldenFiles(t *testing.T) {
 				t.Fatal(err)
 			}
 			checkPattern(t, read, map[int]func(i, j, k int) uint16{8: pattern8, 16: pattern16}[g.bits])
+			if g.geom.HasVoxel() {
+				checkGeometry(t, read.Geometry, g.geom.VoxelUM, g.geom.OriginUM)
+			}
 			if strings.HasSuffix(g.name, ".tif") {
 				a, _ := os.ReadFile(out)
 				b, _ := os.ReadFile(golden)

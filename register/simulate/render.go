@@ -16,7 +16,7 @@ import (
 // microscope's physics.
 const (
 	InVivoStackFile = "invivo_stack.tif"
-	EMPlaneFile     = "em_plane.png"
+	EMPlaneFile     = "em_plane.tif"
 )
 
 // ImageParams fix the images' grids.
@@ -58,7 +58,9 @@ func (s *Scenario) DefaultImageParams() ImageParams {
 }
 
 // WriteImages draws and writes the in vivo stack (multi-page TIFF) and the
-// EM plane (PNG) into dir, returning their paths.
+// EM plane (a one-page TIFF) into dir, returning their paths. Both record
+// their voxel size and origin (ImageJ metadata and resolution tags), the
+// plane its z position, so that resample, overlay and warp need no flags.
 func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string, err error) {
 	st, err := s.InVivoStack(ip)
 	if err != nil {
@@ -72,7 +74,7 @@ func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string,
 	if err := imaging.WriteTIFF(stack, st); err != nil {
 		return "", "", err
 	}
-	if err := imaging.WritePNG(plane, pl.Image(0)); err != nil {
+	if err := imaging.WriteTIFF(plane, pl); err != nil {
 		return "", "", err
 	}
 	return stack, plane, nil
@@ -88,6 +90,7 @@ func (s *Scenario) InVivoStack(ip ImageParams) (*imaging.Stack, error) {
 	if err != nil {
 		return nil, fmt.Errorf("simulate: in vivo stack: %w", err)
 	}
+	st.Geometry = imaging.Geometry{VoxelUM: v, HasOrigin: [3]bool{true, true, true}}
 	val := make([]float64, w*h*d)
 	at := func(i, j, k int) *float64 { return &val[(k*h+j)*w+i] }
 	// Somata: soft balls. The in vivo z blur is several times the lateral
@@ -122,6 +125,7 @@ func (s *Scenario) EMPlane(ip ImageParams) (*imaging.Stack, error) {
 	if err != nil {
 		return nil, fmt.Errorf("simulate: EM plane: %w", err)
 	}
+	st.Geometry = imaging.Geometry{VoxelUM: v, OriginUM: transform.Vec{0, 0, zt}, HasOrigin: [3]bool{true, true, true}}
 	val := make([]float64, w*h)
 	rng := stream(s.Seed, 102)
 	for i := range val {

@@ -20,7 +20,20 @@ twice gives the same bytes.
 
 --verify reads each named file with tifffile (TIFF) or Pillow (PNG) and checks
 that it holds grey 8- or 16-bit planes whose values follow the pattern of their
-bit depth; it exits 1 with a message on the first file that does not.
+bit depth; it exits 1 with a message on the first file that does not. Before a
+file, --geometry VX,VY,VZ,OX,OY,OZ (micrometres) also checks that the file
+records that voxel size and origin the way ImageJ reads them: XResolution and
+YResolution in pixels per unit, ResolutionUnit none, and an ImageJ
+ImageDescription (as tifffile.imagej_metadata parses it) with unit=micron,
+spacing, and xorigin/yorigin/zorigin in pixels, where ImageJ places pixel x at
+(x - xorigin) * pixel width. --geometry-only skips the pattern check (for
+images that hold pictures, such as ferry simulate's).
+
+Two of the files written carry geometry for ferry's reader: imagej16.tif,
+written by tifffile's ImageJ writer (voxel 0.25 x 0.5 x 2 um, xorigin 4 and
+zorigin -3 pixels, so the origin is (-1, 0, 6) um), and res_cm8.tif, with
+plain TIFF resolution tags of 40000 pixels per centimetre (0.25 um pixels)
+and no ImageJ metadata.
 """
 
 import os
@@ -122,11 +135,56 @@ def write_all():
     png(os.path.join("mixed_size", "a2.png"), pattern8(1, width=WIDTH - 1)[0])
     png(os.path.join("mixed_bits", "b1.png"), pattern8(1)[0])
     png(os.path.join("mixed_bits", "b2.png"), pattern16(1)[0])
+    # Geometry recorded by another writer: ImageJ metadata through
+    # tifffile's ImageJ mode, and centimetre resolution tags alone.
+    tifffile.imwrite(path("imagej16.tif"), pattern16(3), imagej=True,
+                     resolution=(1 / 0.25, 1 / 0.5),
+                     metadata={"axes": "ZYX", "spacing": 2.0, "unit": "um",
+                               "xorigin": 4, "zorigin": -3},
+                     datetime=False, software=None)
+    tiff("res_cm8.tif", pattern8(2), resolution=(40000, 40000),
+         resolutionunit="CENTIMETER")
 
 
 def fail(name, why):
     print(f"{name}: {why}", file=sys.stderr)
     sys.exit(1)
+
+
+def check_geometry(name, want):
+    """Check the voxel size and origin name records, as ImageJ reads them."""
+    vx, vy, vz, ox, oy, oz = want
+    with tifffile.TiffFile(name) as tif:
+        page = tif.pages[0]
+        tags = page.tags
+        meta = tif.imagej_metadata
+        if meta is None:
+            fail(name, "no ImageJ metadata in the ImageDescription")
+        for tag in ("XResolution", "YResolution", "ResolutionUnit"):
+            if tag not in tags:
+                fail(name, f"no {tag} tag")
+        unit = int(tags["ResolutionUnit"].value)
+        if unit != 1:
+            fail(name, f"ResolutionUnit {unit}, want 1 (none; the unit is in the ImageJ metadata)")
+        if meta.get("unit") not in ("micron", "um", "\\u00B5m"):
+            fail(name, f"ImageJ unit {meta.get('unit')!r}, want micron")
+        xn, xd = tags["XResolution"].value
+        yn, yd = tags["YResolution"].value
+        got = {
+            "x voxel": xd / xn, "y voxel": yd / yn,
+            "z voxel": float(meta.get("spacing", float("nan"))),
+            "x origin": -float(meta.get("xorigin", 0)) * xd / xn,
+            "y origin": -float(meta.get("yorigin", 0)) * yd / yn,
+            "z origin": -float(meta.get("zorigin", 0)) * float(meta.get("spacing", 1)),
+        }
+        wanted = {"x voxel": vx, "y voxel": vy, "z voxel": vz,
+                  "x origin": ox, "y origin": oy, "z origin": oz}
+        for key, w in wanted.items():
+            if not abs(got[key] - w) <= 1e-9 * max(1.0, abs(w)):
+                fail(name, f"{key} {got[key]!r} um, want {w!r} um")
+        if len(tif.pages) > 1 and int(meta.get("images", 0)) != len(tif.pages):
+            fail(name, f"ImageJ images={meta.get('images')} for {len(tif.pages)} pages")
+    print(f"{name}: geometry ok, voxel {vx} x {vy} x {vz} um, origin ({ox}, {oy}, {oz}) um")
 
 
 def verify(name):
@@ -174,8 +232,28 @@ def main(argv):
     if len(argv) >= 1 and argv[0] == "--verify":
         if len(argv) < 2:
             fail("make_images.py", "--verify needs at least one file")
-        for name in argv[1:]:
-            verify(name)
+        args = argv[1:]
+        geometry, pattern = None, True
+        while args:
+            a = args.pop(0)
+            if a == "--geometry":
+                if not args:
+                    fail("make_images.py", "--geometry needs VX,VY,VZ,OX,OY,OZ")
+                try:
+                    geometry = [float(v) for v in args.pop(0).split(",")]
+                except ValueError:
+                    geometry = []
+                if len(geometry) != 6:
+                    fail("make_images.py", "--geometry needs six numbers VX,VY,VZ,OX,OY,OZ")
+                continue
+            if a == "--geometry-only":
+                pattern = False
+                continue
+            if geometry is not None:
+                check_geometry(a, geometry)
+            if pattern:
+                verify(a)
+            geometry, pattern = None, True
         return
     if argv:
         fail("make_images.py", f"unknown arguments {argv}; use no arguments or --verify FILE...")
