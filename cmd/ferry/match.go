@@ -2,7 +2,6 @@ package main
 
 import (
 	"fmt"
-	"io"
 	"math"
 	"strconv"
 	"strings"
@@ -12,7 +11,6 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/match"
-	"ferry/register/outfile"
 )
 
 // maxAmbiguousListed bounds the ambiguous cells printed; the output file
@@ -74,9 +72,7 @@ the nearest one. See docs/matching.md for the method.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return match.WriteMatches(w, prov, cells, cands, res)
-			}); err != nil {
+			if err := match.WriteMatchesTable(cmd.Context(), out, prov, cells, cands, res); err != nil {
 				return err
 			}
 			w := cmd.OutOrStdout()

@@ -2,12 +2,14 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/transform"
 )
@@ -162,7 +164,7 @@ marked, coloured by status.`,
 			}
 			var marks []imaging.Mark
 			if mapped != "" {
-				if marks, err = readMarks(mapped, job, &f); err != nil {
+				if marks, err = readMarks(mapped, job, &f, cmd.ErrOrStderr()); err != nil {
 					return err
 				}
 			}
@@ -183,9 +185,10 @@ marked, coloured by status.`,
 }
 
 // readMarks reads a map output and keeps the cells whose 95 % sphere meets
-// the plane. map writes target voxels when the transform records them, else
-// micrometres.
-func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, error) {
+// the plane. The units of its positions are those its sidecar records;
+// without one, those map writes: target voxels when the transform records
+// them, else micrometres (a warning says so).
+func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) ([]imaging.Mark, error) {
 	set, err := landmarks.ReadPoints(path, "mapped cells")
 	if err != nil {
 		return nil, err
@@ -202,9 +205,16 @@ func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, er
 			r95 = i
 		}
 	}
-	written := job.file.TargetVoxel
+	written, frame := job.file.TargetVoxel, register.FrameTarget
 	if f.inverse {
-		written = job.file.SourceVoxel
+		written, frame = job.file.SourceVoxel, register.FrameSource
+	}
+	written, note, err := register.PositionUnits(path, frame, written)
+	if err != nil {
+		return nil, err
+	}
+	if note != "" {
+		fmt.Fprintf(stderr, "ferry: warning: %s\n", note)
 	}
 	pos := make([]transform.Vec, len(set.Points))
 	reach := make([]float64, len(set.Points))

@@ -9,7 +9,6 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/register/suggest"
 	"ferry/transform"
 )
@@ -79,9 +78,7 @@ See docs/suggest.md.`,
 				return err
 			}
 			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return res.WriteCSV(w, output)
-			}); err != nil {
+			if err := res.WriteTable(cmd.Context(), out, output); err != nil {
 				return err
 			}
 			stderr := cmd.ErrOrStderr()

@@ -167,9 +167,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}},
 		Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
-	if err := outfile.Write(ctx, f.Mapped, func(w io.Writer) error {
-		return register.WriteMapped(w, mprov, cells, mapped, tf.TargetVoxel)
-	}); err != nil {
+	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.TargetVoxel); err != nil {
 		return nil, err
 	}
 
@@ -192,9 +190,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
 		Flags: mprov.Flags}
-	if err := outfile.Write(ctx, f.Matches, func(w io.Writer) error {
-		return match.WriteMatches(w, xprov, cells, cands, res)
-	}); err != nil {
+	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res); err != nil {
 		return nil, err
 	}
 	trueCandidate := map[string]string{}
