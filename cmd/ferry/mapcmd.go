@@ -22,7 +22,7 @@ func newMapCommand() *cobra.Command {
 the radius r95_um of the sphere that holds the true position with 95 %
 probability, and a status (ok, or a word saying why the point deserves care).
 With --inverse the cells are in the target and are mapped back to the source.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "CELLS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args...); err != nil {
 				return err

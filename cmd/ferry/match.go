@@ -31,7 +31,7 @@ not (the runner-up is named), and unmatched where it most probably has no
 counterpart among the candidates, as for cells mapped outside the candidates'
 volume. distance_um is to the assigned candidate, or for an unmatched cell to
 the nearest one. See docs/matching.md for the method.`,
-		Args: cobra.ExactArgs(3),
+		Args: exactArgs("TRANSFORM", "CELLS", "CANDIDATES"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args...); err != nil {
 				return err

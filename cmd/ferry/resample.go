@@ -105,7 +105,7 @@ func newResampleCommand() *cobra.Command {
 from SOURCE_STACK (a multi-page TIFF or a folder of TIFF/PNG planes) through
 the inverse of the transform, by trilinear interpolation. With --inverse the
 stack is in the target and the plane in the source.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if like == "" {
 				return fmt.Errorf("--like: a target image whose pixel grid to fill is required")
@@ -149,7 +149,7 @@ writes a colour composite: the target plane in sky blue, the resampled source
 in orange (Okabe & Ito's colour-blind-safe palette), each contrast-stretched.
 With --mapped, the mapped cells that lie within one page of the plane are
 marked, coloured by status.`,
-		Args: cobra.ExactArgs(3),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK", "TARGET_IMAGE"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
 				return err

@@ -33,7 +33,7 @@ in vivo), or a regular grid over the box of the landmarks and the cells. Each
 suggestion comes with the target position the current fit predicts for it and
 that prediction's 95 % radius: where to look in the EM volume, and how far.
 See docs/suggest.md.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("LANDMARKS", "CELLS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			inputs := append([]string(nil), args...)
 			if where != "" {

@@ -148,3 +148,48 @@ func unwrapPathError(err error) error {
 	}
 	return err
 }
+
+// WriteDir fills a fresh temporary folder inside dir (created if need be)
+// and, when fill returns nil and ctx is still live, moves each entry of it
+// into dir, replacing an entry of the same name (a file, or a folder such
+// as a Zarr store). Each entry appears whole or not at all; on an error
+// nothing of the temporary folder is left behind.
+func WriteDir(ctx context.Context, dir string, fill func(tmp string) error) (err error) {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("cannot write into %s: %w", dir, unwrapPathError(err))
+	}
+	tmp, err := os.MkdirTemp(dir, tempPattern)
+	if err != nil {
+		return fmt.Errorf("cannot write into %s: %w", dir, unwrapPathError(err))
+	}
+	defer os.RemoveAll(tmp)
+	if err := fill(tmp); err != nil {
+		return fmt.Errorf("%s not written: %w", dir, err)
+	}
+	if err := ctx.Err(); err != nil {
+		return fmt.Errorf("%s not written: %w", dir, err)
+	}
+	entries, err := os.ReadDir(tmp)
+	if err != nil {
+		return fmt.Errorf("cannot write into %s: %w", dir, unwrapPathError(err))
+	}
+	for _, e := range entries {
+		from, to := filepath.Join(tmp, e.Name()), filepath.Join(dir, e.Name())
+		if e.IsDir() {
+			if err := os.Chmod(from, 0o755); err != nil {
+				return fmt.Errorf("cannot write %s: %w", to, unwrapPathError(err))
+			}
+			// A folder cannot be renamed over another: move the old one
+			// into the temporary folder, which is removed at the end.
+			if _, err := os.Stat(to); err == nil {
+				if err := os.Rename(to, filepath.Join(tmp, ".old-"+e.Name())); err != nil {
+					return fmt.Errorf("cannot replace %s: %w", to, unwrapPathError(err))
+				}
+			}
+		}
+		if err := os.Rename(from, to); err != nil {
+			return fmt.Errorf("cannot write %s: %w", to, unwrapPathError(err))
+		}
+	}
+	return nil
+}
