@@ -13,6 +13,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/export"
 	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/register/outfile"
@@ -67,6 +68,8 @@ type Outcome struct {
 	// reach.
 	OverlayMarks   int
 	OverlayOutside float64
+	// Export is what the export wrote and measured.
+	Export *export.Result
 	// flaggedVerdicts are the first check's verdicts on the landmarks it
 	// flagged.
 	flaggedVerdicts []register.LandmarkCheck
@@ -236,6 +239,19 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	}
 	f.Extra = append(f.Extra, reportPath)
 
+	step("exporting the transform for other programs")
+	exportDir := filepath.Join(o.Dir, "export")
+	tv := ip.TargetVoxelUM
+	if out.Export, err = export.Write(ctx, exportDir, tf, export.Options{
+		Mapped: f.Mapped, TargetVoxel: &tv, Grid: export.GridOptions{Margin: -1}, Seed: 1,
+		Provenance: register.Provenance{Command: "export", Inputs: []register.Input{
+			{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Mapped, SHA256: sha(f.Mapped)}},
+			Flags: []string{"--mapped=" + f.Mapped, fmt.Sprintf("--target-voxel=%g,%g,%g", tv[0], tv[1], tv[2])}},
+	}); err != nil {
+		return nil, err
+	}
+	f.Extra = append(f.Extra, exportDir)
+
 	// Against the truth.
 	truth := map[string]simulate.Cell{}
 	for _, c := range scen.Cells {
@@ -397,6 +413,18 @@ func (o *Outcome) Print(w io.Writer) {
 	}
 	if o.OverlayMarks > 0 || len(o.Files.Extra) > 0 {
 		fmt.Fprintf(w, "   overlay.png: the in vivo stack (orange) resampled onto an EM section (sky blue), %d mapped cells near the section marked.\n", o.OverlayMarks)
+	}
+	if e := o.Export; e != nil {
+		fmt.Fprintln(w)
+		fmt.Fprintf(w, "5. Exported for other programs into %s: the affine part as 4×4 matrices", e.Dir)
+		if e.Field != nil {
+			g := e.Field.Grid
+			fmt.Fprintf(w, ", the spline's displacement field on %d × %d × %d samples as a TIFF and an OME-Zarr store", g.Size[0], g.Size[1], g.Size[2])
+		}
+		fmt.Fprintf(w, ", %d mapped cells as a target-voxel point list.\n", e.Points)
+		if e.Field != nil {
+			fmt.Fprintf(w, "   Sampling error of the field against the spline: %s.\n", e.SequenceError)
+		}
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))

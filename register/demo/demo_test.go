@@ -44,9 +44,21 @@ func TestDemo(t *testing.T) {
 			t.Errorf("%s: not written (%v)", p, err)
 		}
 	}
+	// The export: the spline's field within a fraction of a micrometre of
+	// the spline, and every cell with a position in the point list.
+	if e := out.Export; e == nil || e.Field == nil {
+		t.Error("the demo wrote no displacement field")
+	} else {
+		if e.SequenceError.MaxUM <= 0 || e.SequenceError.MaxUM > 0.5 {
+			t.Errorf("sampling error of the exported field %v", e.SequenceError)
+		}
+		if e.Points+e.Unplaced != out.Cells || e.Points == 0 {
+			t.Errorf("point list of %d cells (%d unplaced) for %d mapped", e.Points, e.Unplaced, out.Cells)
+		}
+	}
 	var b bytes.Buffer
 	out.Print(&b)
-	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Results are for research"} {
+	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Sampling error", "Results are for research"} {
 		if !strings.Contains(b.String(), want) {
 			t.Errorf("summary lacks %q:\n%s", want, b.String())
 		}
