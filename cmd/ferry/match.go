@@ -3,12 +3,14 @@ package main
 import (
 	"fmt"
 	"math"
+	"os"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/match"
 )
@@ -58,6 +60,7 @@ the nearest one. See docs/matching.md for the method.`,
 			res, err := match.Match(job.mapper, job.pos, job.cellSD, candPos, match.Options{
 				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
 				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands),
+				Progress: progress.Terminal(os.Stderr),
 			})
 			if err != nil {
 				return err

@@ -3,11 +3,13 @@ package main
 import (
 	"fmt"
 	"io"
+	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/suggest"
 	"ferry/transform"
@@ -66,7 +68,7 @@ See docs/suggest.md.`,
 			if err != nil {
 				return err
 			}
-			opt := suggest.Options{N: n, CellSD: sd}
+			opt := suggest.Options{N: n, CellSD: sd, Progress: progress.Terminal(os.Stderr)}
 			var whereSet *landmarks.PointSet
 			if where != "" {
 				if whereSet, opt.Candidates, err = register.ReadCells(where, "candidate locations", file, false); err != nil {

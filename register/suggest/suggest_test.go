@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/simulate"
 	"ferry/transform"
@@ -306,13 +307,17 @@ func TestSuggestMonotone(t *testing.T) {
 		t.Run(fmt.Sprintf("%d-D %s sd=%t where=%t", tc.dim, tc.model, tc.sd != nil, tc.where), func(t *testing.T) {
 			p, cells := synthetic(uint64(tc.n), tc.dim, tc.n, 150)
 			f, _ := fitFile(t, p, register.Settings{Model: tc.model, Smoothing: register.Smoothing{Auto: true}})
-			opt := Options{N: 8, CellSD: tc.sd}
+			var rec progress.Recorder
+			opt := Options{N: 8, CellSD: tc.sd, Progress: &rec}
 			if tc.where {
 				_, opt.Candidates = synthetic(5, tc.dim, 0, 300)
 			}
 			res, err := Suggest(f, cells, opt)
 			if err != nil {
 				t.Fatal(err)
+			}
+			if rec.Done() != len(res.Suggestions) || rec.Finished() != 1 {
+				t.Errorf("progress: %d landmarks chosen reported for %d suggestions", rec.Done(), len(res.Suggestions))
 			}
 			if len(res.Suggestions) != opt.N {
 				t.Fatalf("%d suggestions, want %d", len(res.Suggestions), opt.N)
@@ -376,13 +381,13 @@ func TestSearchAgreesWithSequence(t *testing.T) {
 			var got []transform.Mat
 			if sp, ok := transform.AsScalar(cp); ok {
 				s := newScalarSearch(sp, u.NoiseFactor, m, cells, cand)
-				chosen = s.run(6)
+				chosen = s.run(6, progress.None)
 				for _, v := range s.t {
 					got = append(got, scalarMat(v, 3))
 				}
 			} else {
 				s := newBlockSearch(cp, u.NoiseFactor, m, cells, cand)
-				chosen = s.run(6)
+				chosen = s.run(6, progress.None)
 				got = s.fx
 			}
 			var zs []transform.Vec
@@ -672,7 +677,7 @@ func TestPruningChoosesAsFullScoring(t *testing.T) {
 			sp, _ := transform.AsScalar(cp)
 			_, cand := synthetic(32, 3, 0, 600)
 			m := newCellModel(f.Transform, u, cells, tc.sd)
-			got := newScalarSearch(sp, u.NoiseFactor, m, cells, cand).run(6)
+			got := newScalarSearch(sp, u.NoiseFactor, m, cells, cand).run(6, progress.None)
 			ref := newScalarSearch(sp, u.NoiseFactor, m, cells, cand)
 			r := make([]float64, len(cells))
 			var want []int
