@@ -152,6 +152,25 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 	if res.AffineVoxel != nil {
 		m.AffineVoxel = res.AffineVoxel.Rows()
 	}
+	var points *pointList
+	if opt.Mapped != "" {
+		vox := file.TargetVoxel
+		if opt.TargetVoxel != nil {
+			vox = opt.TargetVoxel
+		}
+		if points, err = readPoints(opt.Mapped, file.TargetVoxel, vox); err != nil {
+			return nil, err
+		}
+		if points.dim != dim {
+			return nil, fmt.Errorf("%s: %d-D mapped cells for a %d-D transform", opt.Mapped, points.dim, dim)
+		}
+		res.Points, res.Unplaced = len(points.rows), points.unplaced
+		if points.note != "" {
+			res.Notes = append(res.Notes, points.note)
+		}
+		m.Points = &PointsRecord{File: PointsFile, Count: len(points.rows), Unplaced: points.unplaced, TargetVoxelUM: [3]float64(*vox)}
+	}
+
 	if s, ok := file.Transform.(*transform.Spline); ok {
 		g, err := FieldGrid(s, opt.Grid)
 		if err != nil {
@@ -176,21 +195,6 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 				NGFFVersion, DisplacementsPath, ArrayPath, names),
 			TotalError: res.TotalError, SequenceError: res.SequenceError,
 		}
-	}
-	var points *pointList
-	if opt.Mapped != "" {
-		vox := file.TargetVoxel
-		if opt.TargetVoxel != nil {
-			vox = opt.TargetVoxel
-		}
-		if points, err = readPoints(opt.Mapped, file.TargetVoxel, vox); err != nil {
-			return nil, err
-		}
-		res.Points, res.Unplaced = len(points.rows), points.unplaced
-		if points.note != "" {
-			res.Notes = append(res.Notes, points.note)
-		}
-		m.Points = &PointsRecord{File: PointsFile, Count: len(points.rows), Unplaced: points.unplaced, TargetVoxelUM: [3]float64(*vox)}
 	}
 
 	m.Files = append(m.Files, ManifestFile, AffineUMFile)

@@ -35,9 +35,9 @@ func specDir() string {
 
 // exportForOutside writes an export of a 3-D spline and the points at which
 // the outside readers apply it.
-func exportForOutside(t *testing.T) (dir, pointsPath string, fd *Field, s *transform.Spline, pts []transform.Vec) {
+func exportForOutside(t *testing.T, dim int) (dir, pointsPath string, fd *Field, s *transform.Spline, pts []transform.Vec) {
 	t.Helper()
-	s = testSpline(t, 3)
+	s = testSpline(t, dim)
 	file := &transform.File{Transform: s}
 	dir = filepath.Join(t.TempDir(), "export")
 	res, err := Write(context.Background(), dir, file, Options{Grid: GridOptions{Spacing: transform.Vec{10, 12, 15}, Margin: 20}})
@@ -66,7 +66,8 @@ func compare(t *testing.T, who string, got [][]float64, pts []transform.Vec, own
 	}
 	worst := 0.0
 	for i, p := range pts {
-		g := transform.Vec{got[i][0], got[i][1], got[i][2]}
+		var g transform.Vec
+		copy(g[:], got[i])
 		if e := g.Sub(own(p)).Norm(); e > 1e-6*(1+g.Norm()) {
 			t.Errorf("%s maps %v to %v, ferry's interpolation to %v", who, p, g, own(p))
 		}
@@ -89,25 +90,27 @@ func TestOutsidePythonReadsExport(t *testing.T) {
 	needOutside(t, err == nil, python+" cannot import jsonschema, tifffile and scipy (apt-get install python3-jsonschema python3-tifffile python3-scipy); .ci/run installs them")
 	_, err = os.Stat(filepath.Join(specDir(), "schemas", "scene.schema"))
 	needOutside(t, err == nil, "no OME-NGFF specification at "+specDir()+" (set FERRY_NGFF_SPEC)")
-	dir, pointsPath, fd, s, pts := exportForOutside(t)
-	out, err := exec.Command(python, filepath.Join("..", "..", "testdata", "export", "check_export.py"), specDir(), dir, pointsPath).Output()
-	if err != nil {
-		var stderr []byte
-		if ee, ok := err.(*exec.ExitError); ok {
-			stderr = ee.Stderr
+	for _, dim := range []int{2, 3} {
+		dir, pointsPath, fd, s, pts := exportForOutside(t, dim)
+		out, err := exec.Command(python, filepath.Join("..", "..", "testdata", "export", "check_export.py"), specDir(), dir, pointsPath).Output()
+		if err != nil {
+			var stderr []byte
+			if ee, ok := err.(*exec.ExitError); ok {
+				stderr = ee.Stderr
+			}
+			t.Fatalf("%d-D: check_export.py: %v\n%s", dim, err, stderr)
 		}
-		t.Fatalf("check_export.py: %v\n%s", err, stderr)
+		var res struct {
+			Cases  int         `json:"schema_cases"`
+			Points [][]float64 `json:"tiff_points"`
+		}
+		if err := json.Unmarshal(out, &res); err != nil {
+			t.Fatalf("%v: %s", err, out)
+		}
+		t.Logf("%d-D: the validator agreed with %d conformance cases of the specification", dim, res.Cases)
+		_, seq := fd.Errors(s, fd.Grid.RandomPoints(4000, 5))
+		compare(t, "tifffile + scipy", res.Points, pts, fd.ApplyTotal, s, 2*seq.MaxUM)
 	}
-	var res struct {
-		Cases  int         `json:"schema_cases"`
-		Points [][]float64 `json:"tiff_points"`
-	}
-	if err := json.Unmarshal(out, &res); err != nil {
-		t.Fatalf("%v: %s", err, out)
-	}
-	t.Logf("the validator agreed with %d conformance cases of the specification", res.Cases)
-	_, seq := fd.Errors(s, fd.Grid.RandomPoints(4000, 5))
-	compare(t, "tifffile + scipy", res.Points, pts, fd.ApplyTotal, s, 2*seq.MaxUM)
 }
 
 // An independent Zarr reader, the npm package zarrita, reads the store and
@@ -120,7 +123,6 @@ func TestOutsideZarritaReadsExport(t *testing.T) {
 	needOutside(t, modules != "" && err == nil, "set FERRY_ZARRITA_DIR to a folder with node_modules/zarrita (npm install zarrita); .ci/run does")
 	node, err := exec.LookPath("node")
 	needOutside(t, err == nil, "no node on PATH")
-	dir, pointsPath, fd, s, pts := exportForOutside(t)
 	run := t.TempDir()
 	if err := os.Symlink(filepath.Join(modules, "node_modules"), filepath.Join(run, "node_modules")); err != nil {
 		t.Fatal(err)
@@ -132,25 +134,31 @@ func TestOutsideZarritaReadsExport(t *testing.T) {
 	if err := os.WriteFile(filepath.Join(run, "apply_zarr.mjs"), script, 0o644); err != nil {
 		t.Fatal(err)
 	}
-	cmd := exec.Command(node, "apply_zarr.mjs", filepath.Join(dir, FieldZarrFile), pointsPath)
-	cmd.Dir = run
-	out, err := cmd.Output()
-	if err != nil {
-		var stderr []byte
-		if ee, ok := err.(*exec.ExitError); ok {
-			stderr = ee.Stderr
+	for _, dim := range []int{2, 3} {
+		dir, pointsPath, fd, s, pts := exportForOutside(t, dim)
+		cmd := exec.Command(node, "apply_zarr.mjs", filepath.Join(dir, FieldZarrFile), pointsPath)
+		cmd.Dir = run
+		out, err := cmd.Output()
+		if err != nil {
+			var stderr []byte
+			if ee, ok := err.(*exec.ExitError); ok {
+				stderr = ee.Stderr
+			}
+			t.Fatalf("%d-D: apply_zarr.mjs: %v\n%s", dim, err, stderr)
 		}
-		t.Fatalf("apply_zarr.mjs: %v\n%s", err, stderr)
+		var res struct {
+			Version string      `json:"zarrita"`
+			Shape   []int       `json:"shape"`
+			Points  [][]float64 `json:"points"`
+		}
+		if err := json.Unmarshal(out, &res); err != nil {
+			t.Fatalf("%v: %s", err, out)
+		}
+		if len(res.Shape) != dim+1 || res.Shape[0] != dim {
+			t.Errorf("%d-D: zarrita read an array of shape %v", dim, res.Shape)
+		}
+		t.Logf("%d-D: zarrita %s read an array of shape %v", dim, res.Version, res.Shape)
+		_, seq := fd.Errors(s, fd.Grid.RandomPoints(4000, 5))
+		compare(t, "zarrita", res.Points, pts, fd.ApplySequence, s, 2*seq.MaxUM)
 	}
-	var res struct {
-		Version string      `json:"zarrita"`
-		Shape   []int       `json:"shape"`
-		Points  [][]float64 `json:"points"`
-	}
-	if err := json.Unmarshal(out, &res); err != nil {
-		t.Fatalf("%v: %s", err, out)
-	}
-	t.Logf("zarrita %s read an array of shape %v", res.Version, res.Shape)
-	_, seq := fd.Errors(s, fd.Grid.RandomPoints(4000, 5))
-	compare(t, "zarrita", res.Points, pts, fd.ApplySequence, s, 2*seq.MaxUM)
 }
