@@ -20,8 +20,8 @@ conformance/jsonschema_dingus.py does with the newer `referencing`):
 With python3-tifffile and python3-scipy:
 
 3. displacement_um.tif is read by tifffile, which must find an ImageJ
-   hyperstack (Z, C, Y, X) whose spacing and resolution are the grid's
-   spacing in export.json; each point of POINTS.json (source µm, x y z) is
+   hyperstack (Z, C, Y, X) whose spacing, resolution and origin are the
+   grid's in export.json; each point of POINTS.json (source µm, x y z) is
    mapped as x + D(x) with D interpolated by
    scipy.ndimage.map_coordinates(order=1).
 
@@ -108,6 +108,13 @@ def main():
         fail(f"XResolution {xres} is not 1/{spacing[0]} µm")
     if grid["size"][2] > 1 and abs(float(ij["spacing"]) - spacing[2]) > 1e-9 * spacing[2]:
         fail(f"ImageJ spacing {ij['spacing']}, want {spacing[2]}")
+    # ImageJ's calibration origin is in pixels: µm = (index - origin) * spacing.
+    for k, axis in enumerate("xyz"):
+        want = -origin[k] / spacing[k]
+        if abs(float(ij.get(axis + "origin", 0)) - want) > 1e-9 * (1 + abs(want)):
+            fail(f"ImageJ {axis}origin {ij.get(axis + 'origin')}, want {want}")
+    if ij.get("unit") != "micron":
+        fail(f"ImageJ unit {ij.get('unit')!r}, want 'micron'")
 
     pts = numpy.array(json.loads(points_path.read_text()), dtype=numpy.float64)
     # index coordinates (z, y, x) of every point on the grid
