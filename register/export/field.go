@@ -146,7 +146,7 @@ type Field struct {
 // does not depend on their number. ctx stops the work between planes.
 func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t transform.Vec, g Grid, rep progress.Reporter) (*Field, error) {
 	inv, ok := a.Inverse()
-	if !ok || (g.Dim == 2 && math.Abs(a[0][0]*a[1][1]-a[0][1]*a[1][0]) < 1e-300) {
+	if !ok {
 		return nil, fmt.Errorf("the affine part of the transform is singular: its displacement residual is undefined")
 	}
 	n := g.Samples() * g.Dim
@@ -155,7 +155,6 @@ func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t 
 	rep.Step("sampling the displacement field", g.Size[1]*g.Size[2])
 	defer rep.Finish()
 	rows := g.Size[1] * g.Size[2]
-	var bad error
 	transform.ParallelRanges(rows, 1, func(lo, hi int) {
 		for r := lo; r < hi; r++ {
 			if ctx.Err() != nil {
@@ -180,12 +179,12 @@ func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t 
 		return nil, err
 	}
 	for i, v := range fd.Total {
-		if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) || math.IsNaN(float64(fd.Residual[i])) || math.IsInf(float64(fd.Residual[i]), 0) {
-			bad = fmt.Errorf("the displacement at sample %d is not a finite float32 number", i/g.Dim)
-			break
+		if !finite32(v) || !finite32(fd.Residual[i]) {
+			x := g.At(i/g.Dim%g.Size[0], i/g.Dim/g.Size[0]%g.Size[1], i/g.Dim/g.Size[0]/g.Size[1])
+			return nil, fmt.Errorf("the displacement at source %v µm is not a finite float32 number", x)
 		}
 	}
-	return fd, bad
+	return fd, nil
 }
 
 // interpolate is the multilinear interpolation of field at x (inside the
@@ -290,3 +289,5 @@ func summarise(e []float64) SamplingError {
 	s.MaxUM = sorted[len(e)-1]
 	return s
 }
+
+func finite32(v float32) bool { return !math.IsNaN(float64(v)) && !math.IsInf(float64(v), 0) }
