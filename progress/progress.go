@@ -114,3 +114,52 @@ func (b *bar) finishLocked() {
 		b.pb = nil
 	}
 }
+
+// Recorder is a Reporter that keeps what it hears: the names of the
+// stages and the units done in all of them. Tests use it to see that a
+// long step reports; its methods are safe for concurrent use.
+type Recorder struct {
+	mu     sync.Mutex
+	steps  []string
+	done   int
+	finish int
+}
+
+func (r *Recorder) Step(name string, _ int) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	r.steps = append(r.steps, name)
+}
+
+func (r *Recorder) Add(n int) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	r.done += n
+}
+
+func (r *Recorder) Finish() {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	r.finish++
+}
+
+// Steps are the stage names in the order they started.
+func (r *Recorder) Steps() []string {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return append([]string(nil), r.steps...)
+}
+
+// Done is the number of units reported in all stages.
+func (r *Recorder) Done() int {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return r.done
+}
+
+// Finished is how many times a stage was ended.
+func (r *Recorder) Finished() int {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return r.finish
+}

@@ -2,6 +2,7 @@ package register
 
 import (
 	"errors"
+	"ferry/progress"
 	"fmt"
 	"math"
 	"sort"
@@ -156,6 +157,11 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	}
 	a := &Assessment{Dim: p.Dim, Radii: Radius95(p.Dim)}
 	weights := equalWeights(p.Len())
+	// How many fits the check needs depends on what it finds: the bar
+	// counts them without a total.
+	rep := progress.Of(s.Progress)
+	rep.Step(fmt.Sprintf("leave-one-out fits of %d landmarks", p.Len()), 0)
+	defer rep.Finish()
 
 	// Flag with the model asked for or else with the most flexible model
 	// the set supports: a wrong landmark is a local inconsistency, which the
@@ -356,7 +362,7 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
-			sm, err := chooseSmoothing(p, weights)
+			sm, err := chooseSmoothing(p, weights, progress.Of(s.Progress))
 			if err != nil {
 				return nil, err
 			}
@@ -366,6 +372,7 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 		}
 	}
 	res, err := transform.Fit(kind, p.Dim, p.Source, p.Target, opt)
+	progress.Of(s.Progress).Add(1)
 	if err != nil {
 		return nil, fmt.Errorf("%s fit: %w", kind, err)
 	}
@@ -378,11 +385,12 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 // interpolation to nearly affine, refined around the best. The scale of the
 // grid follows the kernel: a typical landmark distance in 3-D, its square
 // times its logarithm in 2-D.
-func chooseSmoothing(q *Problem, w []float64) (float64, error) {
+func chooseSmoothing(q *Problem, w []float64, rep progress.Reporter) (float64, error) {
 	unit := kernelScale(q)
 	cost := func(sm float64) float64 {
 		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
 			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true})
+		rep.Add(1)
 		if err != nil {
 			return math.Inf(1)
 		}

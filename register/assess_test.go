@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/transform"
 )
 
@@ -176,4 +177,19 @@ func nearestTo(p *Problem, i int) int {
 		}
 	}
 	return best
+}
+
+// Assess reports every fit it makes to the Reporter it is given.
+func TestAssessReportsProgress(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 3))
+	p := synthetic(rng, 30, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	var rec progress.Recorder
+	if _, err := Assess(p, Settings{Smoothing: Smoothing{Auto: true}, Progress: &rec}); err != nil {
+		t.Fatal(err)
+	}
+	// At least the smoothing search (15 values and 2 refinements) and the
+	// five models compared.
+	if steps := rec.Steps(); len(steps) != 1 || !strings.Contains(steps[0], "30 landmarks") || rec.Done() < 20 || rec.Finished() != 1 {
+		t.Errorf("stages %q, %d fits reported, %d finished", steps, rec.Done(), rec.Finished())
+	}
 }

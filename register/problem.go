@@ -1,6 +1,7 @@
 package register
 
 import (
+	"ferry/progress"
 	"fmt"
 	"math"
 	"strconv"
@@ -101,4 +102,7 @@ type Settings struct {
 	// SourceSD and TargetSD, when set, are the localisation standard
 	// deviations per axis (µm) of the landmark picks on each side.
 	SourceSD, TargetSD *transform.Vec
+	// Progress, when not nil, hears of every fit Assess makes: with many
+	// landmarks the leave-one-out check takes seconds.
+	Progress progress.Reporter
 }

@@ -119,7 +119,7 @@ func TestWriteMappedRefusesNonFinite(t *testing.T) {
 	}
 	for _, tc := range tests {
 		var buf bytes.Buffer
-		err := WriteMapped(&buf, Provenance{Command: "map"}, cells, []Mapped{good, tc.bad}, nil)
+		err := WriteMapped(&buf, cells, []Mapped{good, tc.bad}, NewMappedLayout(cells, FrameTarget, nil), nil)
 		if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.Contains(err.Error(), "not a finite number") {
 			t.Errorf("%s: error %v, want one saying %q", tc.name, err, tc.want)
 		}

@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"encoding/csv"
 	"fmt"
 	"io"
@@ -15,8 +16,8 @@ import (
 )
 
 // Provenance says which inputs, flags and program made an output. It is
-// written as a leading comment line of every CSV file and as a field of every
-// JSON and HTML output.
+// written into the sidecar of every CSV table (see Sidecar) and as a field of
+// every JSON and HTML output.
 type Provenance struct {
 	Command string
 	// Inputs are the input files with their SHA-256, in the order given.
@@ -27,7 +28,8 @@ type Provenance struct {
 
 // Input is one input file and the SHA-256 of its bytes.
 type Input struct {
-	Path, SHA256 string
+	Path   string `json:"path"`
+	SHA256 string `json:"sha256"`
 }
 
 // Line is the provenance as one line of text, without a comment mark.
@@ -90,24 +92,73 @@ func appendField(dst []byte, f string) []byte {
 	return append(dst, '"')
 }
 
-// WriteMapped writes the mapped cells in the contract's columns: id, x, y, z
-// (mapped, in micrometres or, when voxel is not nil, in voxels of that size),
-// sd_x_um, sd_y_um, sd_z_um, r95_um, status, then the cells' own extra
-// columns. A point without an inverse has empty position and error fields.
-// A value that is not finite stops the writing with an error naming the
-// cell, its line in the cells file and the column.
-func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped []Mapped, voxel *transform.Vec) error {
-	if _, err := fmt.Fprintf(w, "# %s\n", prov.Line()); err != nil {
-		return err
-	}
-	cw := csv.NewWriter(w)
+// MappedLayout is the column layout of a mapped-cells table.
+type MappedLayout struct {
+	// Header is every column, in order.
+	Header []string
+	// Frame is FrameTarget for cells mapped forward, FrameSource for cells
+	// mapped back with --inverse.
+	Frame string
+	// Coordinates describe the position columns: x, y, z in the units
+	// given, and, unless a cell's own column already has the name,
+	// target_x_um… (or source_x_um…) in micrometres.
+	Coordinates []Coordinates
+	// withUM says whether the micrometre columns are written.
+	withUM bool
+}
+
+// NewMappedLayout is the layout of the table of cells mapped into frame,
+// written in voxels of voxel (nil: micrometres).
+func NewMappedLayout(cells *landmarks.PointSet, frame string, voxel *transform.Vec) MappedLayout {
 	axes := []string{"x", "y", "z"}[:cells.Dim]
-	header := append([]string{"id"}, axes...)
+	l := MappedLayout{Frame: frame}
+	l.Header = append([]string{"id"}, axes...)
 	for _, a := range axes {
-		header = append(header, "sd_"+a+"_um")
+		l.Header = append(l.Header, "sd_"+a+"_um")
 	}
-	header = append(header, "r95_um", "status")
-	header = append(header, cells.ExtraColumns...)
+	l.Header = append(l.Header, "r95_um", "status")
+	l.Coordinates = []Coordinates{CoordinatesIn(axes, frame, voxel)}
+	um := make([]string, len(axes))
+	for k, a := range axes {
+		um[k] = frame + "_" + a + "_um"
+	}
+	l.withUM = true
+	for _, e := range cells.ExtraColumns {
+		for _, u := range um {
+			if strings.EqualFold(e, u) {
+				l.withUM = false
+			}
+		}
+	}
+	if l.withUM {
+		l.Header = append(l.Header, um...)
+		l.Coordinates = append(l.Coordinates, CoordinatesIn(um, frame, nil))
+	}
+	l.Header = append(l.Header, cells.ExtraColumns...)
+	return l
+}
+
+// WriteMappedTable writes the mapped cells to path with their sidecar,
+// whole or not at all: the table of WriteMapped, and prov with the frame
+// and units of its position columns beside it.
+func WriteMappedTable(ctx context.Context, path string, prov Provenance, cells *landmarks.PointSet, mapped []Mapped, frame string, voxel *transform.Vec) error {
+	layout := NewMappedLayout(cells, frame, voxel)
+	return WriteTable(ctx, path, prov, layout.Coordinates, func(w io.Writer) error {
+		return WriteMapped(w, cells, mapped, layout, voxel)
+	})
+}
+
+// WriteMapped writes the mapped cells in the contract's columns, header
+// row first: id, x, y, z (mapped, in micrometres or, when voxel is not nil,
+// in voxels of that size), sd_x_um, sd_y_um, sd_z_um, r95_um, status, the
+// position again in micrometres under names that say its frame
+// (target_x_um… or source_x_um…, see MappedLayout), then the cells' own
+// extra columns. A point without an inverse has empty position and error
+// fields. A value that is not finite stops the writing with an error naming
+// the cell, its line in the cells file and the column.
+func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout MappedLayout, voxel *transform.Vec) error {
+	cw := csv.NewWriter(w)
+	header := layout.Header
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -148,6 +199,16 @@ func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped
 		}
 		line = append(line, ',')
 		line = appendField(line, m.Status)
+		if layout.withUM {
+			for k := range cells.Dim {
+				line = append(line, ',')
+				if m.Status == StatusNoInverse {
+					continue
+				}
+				// Finite: the same value passed above.
+				line, _ = appendCoord(line, m.Pos[k])
+			}
+		}
 		for _, e := range c.Extra {
 			line = append(line, ',')
 			line = appendField(line, e)

@@ -22,11 +22,14 @@ func TestWriteMappedQuoting(t *testing.T) {
 		mapped = append(mapped, Mapped{Pos: transform.Vec{1.5, -0.00001, 3}, SD: transform.Vec{1, 2, 3}, R95: 4, Status: StatusOK})
 	}
 	var b bytes.Buffer
-	if err := WriteMapped(&b, Provenance{Command: "test"}, cells, mapped, nil); err != nil {
+	if err := WriteMapped(&b, cells, mapped, NewMappedLayout(cells, FrameTarget, nil), nil); err != nil {
 		t.Fatal(err)
 	}
-	text := b.String()
-	body := text[strings.Index(text, "\n")+1:]
+	// The header row comes first: no comment line before it.
+	body := b.String()
+	if !strings.HasPrefix(body, "id,x,y,z,sd_x_um,sd_y_um,sd_z_um,r95_um,status,target_x_um,target_y_um,target_z_um,note\n") {
+		t.Errorf("table begins %q, want the header row", body[:strings.Index(body, "\n")])
+	}
 	r := csv.NewReader(strings.NewReader(body))
 	rows, err := r.ReadAll()
 	if err != nil {

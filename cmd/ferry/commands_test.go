@@ -207,9 +207,11 @@ func TestExtremeNumbers(t *testing.T) {
 	})
 }
 
-// TestProvenance checks that every CSV output starts with the provenance
-// comment, that the check's JSON carries it, and that the transform file
-// records the landmark file's SHA-256.
+// TestProvenance checks that every CSV output starts with its header row
+// and has its provenance in a sidecar with the table's checksum and the
+// frame and units of its positions, that the check's JSON carries the same
+// provenance, and that the transform file records the landmark file's
+// SHA-256.
 func TestProvenance(t *testing.T) {
 	fx := newFixture(t)
 	dir := t.TempDir()
@@ -256,11 +258,40 @@ func TestProvenance(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	if want := "id,x,y,z,sd_x_um,sd_y_um,sd_z_um,r95_um,status,target_x_um,target_y_um,target_z_um"; !strings.HasPrefix(line, want) {
+		t.Errorf("mapped.csv starts\n%s\nwant the header row\n%s", line, want)
+	}
 	prov := register.Provenance{Command: "map", Inputs: []register.Input{
 		{Path: fx.transform, SHA256: sum(fx.transform)}, {Path: fx.cells, SHA256: sum(fx.cells)}},
 		Flags: []string{"--cell-sd=1,1,2", "--output=" + mapped}}
-	if want := "# " + prov.Line(); line != want {
-		t.Errorf("mapped.csv starts\n%s\nwant\n%s", line, want)
+	table, err := os.ReadFile(mapped)
+	if err != nil {
+		t.Fatal(err)
+	}
+	side, err := register.ReadSidecar(mapped, table)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if side.Provenance != prov.Line() || side.Command != "map" || side.TableSHA256 != sum(mapped) || len(side.Inputs) != 2 {
+		t.Errorf("sidecar %+v, want provenance %q", side, prov.Line())
+	}
+	wantCoords := []register.Coordinates{
+		{Columns: []string{"x", "y", "z"}, Frame: "target", Units: "um"},
+		{Columns: []string{"target_x_um", "target_y_um", "target_z_um"}, Frame: "target", Units: "um"},
+	}
+	if fmt.Sprint(side.Coordinates) != fmt.Sprint(wantCoords) {
+		t.Errorf("sidecar coordinates %v, want %v", side.Coordinates, wantCoords)
+	}
+	back := filepath.Join(dir, "back.csv")
+	mustSucceed(t, "map", "--inverse", fx.transform, mapped, "-o", back)
+	if table, err = os.ReadFile(back); err != nil {
+		t.Fatal(err)
+	}
+	if side, err = register.ReadSidecar(back, table); err != nil {
+		t.Fatal(err)
+	}
+	if c, ok := side.CoordinatesOf("x"); !ok || c.Frame != register.FrameSource {
+		t.Errorf("map --inverse: sidecar coordinates %v, want x in the source frame", side.Coordinates)
 	}
 
 	o := mustSucceed(t, "check", fx.landmarks, "--json", "--model", "affine")
@@ -274,7 +305,7 @@ func TestProvenance(t *testing.T) {
 		t.Errorf("check provenance %q, want %q", check["provenance"], want)
 	}
 
-	// The simulator's tables say what made them too.
+	// The simulator's tables begin with their header rows too.
 	simDir := filepath.Join(dir, "sim")
 	mustSucceed(t, "simulate", simDir)
 	entries, err := os.ReadDir(simDir)
@@ -289,8 +320,8 @@ func TestProvenance(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if !strings.HasPrefix(line, "# ferry/register/simulate seed 1: ") {
-			t.Errorf("%s starts %q", e.Name(), line)
+		if !strings.HasPrefix(line, "id,") {
+			t.Errorf("%s starts %q, want its header row", e.Name(), line)
 		}
 	}
 }

@@ -18,7 +18,7 @@ func newDemoCommand() *cobra.Command {
 ./ferry-demo), checks the landmarks, fits the transform without the flagged
 ones, maps and matches the imaged cells, writes every file, and compares the
 results with the truth.`,
-		Args: cobra.MaximumNArgs(1),
+		Args: maxArgs("DIR"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			dir := "ferry-demo"
 			if len(args) == 1 {
@@ -48,7 +48,7 @@ func newSimulateCommand() *cobra.Command {
 		Long: `simulate writes an invented block of cortex: landmark pairs, imaged cells,
 EM candidate nuclei, and the truth (true positions, true matches, which
 landmarks were spoiled). See docs/simulation.md.`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("DIR"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := simulate.Generate(simulate.DefaultParams(), seed)
 			if err != nil {

@@ -20,7 +20,7 @@ func newFitCommand() *cobra.Command {
 		Long: `fit compares the models by their exact leave-one-out errors, chooses one (or
 fits the one given with --model), and writes the transform file with the
 leave-one-out summary and the uncertainty model that map and match use.`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("LANDMARKS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args[0]); err != nil {
 				return err
@@ -73,7 +73,7 @@ func newCheckCommand() *cobra.Command {
 wrong, and reports the errors per landmark and per kind with the calibration of
 the predicted 95 % radii. Exit status 3 when a landmark is flagged or a
 leave-one-out error exceeds --max-error.`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("LANDMARKS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
 				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)

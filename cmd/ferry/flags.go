@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/outfile"
 	"ferry/transform"
@@ -98,7 +99,9 @@ func (f *modelFlags) assess(path string) (*landmarkJob, *register.Assessment, er
 	if err != nil {
 		return nil, nil, err
 	}
-	a, err := register.Assess(job.problem, job.settings)
+	settings := job.settings
+	settings.Progress = progress.Terminal(os.Stderr)
+	a, err := register.Assess(job.problem, settings)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", path, err)
 	}

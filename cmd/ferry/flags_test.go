@@ -65,7 +65,7 @@ func TestFlagValidation(t *testing.T) {
 		{"malformed cell sd", mapCells("--cell-sd", "1,1,z"), []string{"--cell-sd", `Z: "z" is not a number`}},
 		{"two-number cell sd", mapCells("--cell-sd", "1,1"), []string{"--cell-sd", "2 numbers"}},
 		{"map: missing -o", []string{"map", fx.transform, fx.cells}, []string{"-o", "required"}},
-		{"map: one argument", []string{"map", fx.transform, "-o", out}, []string{"accepts 2 arg(s), received 1"}},
+		{"map: one argument", []string{"map", fx.transform, "-o", out}, []string{"map: missing CELLS"}},
 		{"negative target z", resample("--target-z", "-1"), []string{"--target-z", "-1 is negative"}},
 		{"malformed target z", resample("--target-z", "1.5"), []string{"--target-z", `"1.5"`}},
 		{"resample: zero source voxel", resample("--source-voxel", "0,1,1"), []string{"--source-voxel", "not positive"}},
@@ -75,9 +75,9 @@ func TestFlagValidation(t *testing.T) {
 		{"resample: no voxel size anywhere", []string{"resample", sc.transform, sc.uncalibratedStack(t), "--like", sc.plane, "-o", out}, []string{"--source-voxel", "records no voxel size"}},
 		{"overlay: negative target z", overlay("--target-z", "-3"), []string{"--target-z", "negative"}},
 		{"overlay: missing -o", []string{"overlay", sc.transform, sc.stack, sc.plane}, []string{"-o", "required"}},
-		{"simulate: no folder", []string{"simulate"}, []string{"accepts 1 arg(s)"}},
+		{"simulate: no folder", []string{"simulate"}, []string{"simulate: missing DIR"}},
 		{"simulate: negative seed", []string{"simulate", dir, "--seed", "-1"}, []string{"--seed", `"-1"`}},
-		{"demo: two folders", []string{"demo", dir, dir}, []string{"accepts at most 1 arg(s)"}},
+		{"demo: two folders", []string{"demo", dir, dir}, []string{"want at most 1 (DIR)"}},
 		{"unknown flag", fit("--smooth", "1"), []string{"unknown flag: --smooth"}},
 		{"unknown command", []string{"register", fx.landmarks}, []string{`unknown command "register"`}},
 	}
@@ -143,5 +143,30 @@ func TestOutputNamesAnInput(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// A usage mistake says what is wrong and shows the command's usage line;
+// --version prints the version as the version command does.
+func TestUsageLine(t *testing.T) {
+	for _, tc := range []struct {
+		args      []string
+		msg, line string
+	}{
+		{[]string{"check"}, "ferry: check: missing LANDMARKS", "usage: ferry check LANDMARKS [flags]"},
+		{[]string{"match", "t.json"}, "ferry: match: missing CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES -o MATCHES.csv [flags]"},
+		{[]string{"export"}, "ferry: export: missing TRANSFORM", "usage: ferry export TRANSFORM -o DIR"},
+		{[]string{"fit", "a.csv", "b.csv"}, "ferry: fit: 2 arguments given (a.csv b.csv), want 1 (LANDMARKS)", "usage: ferry fit LANDMARKS"},
+		{[]string{"fit", "a.csv", "--smooth", "1"}, "ferry: fit: unknown flag: --smooth", "usage: ferry fit LANDMARKS"},
+	} {
+		o := ferry(t, tc.args...)
+		lines := strings.Split(strings.TrimSuffix(o.stderr, "\n"), "\n")
+		if o.code != exitError || len(lines) != 2 || lines[0] != tc.msg || !strings.HasPrefix(lines[1], tc.line) {
+			t.Errorf("ferry %s: exit %d, stderr\n%s\nwant exit 1 with\n%s\n%s…", strings.Join(tc.args, " "), o.code, o.stderr, tc.msg, tc.line)
+		}
+	}
+	v, w := ferry(t, "--version"), ferry(t, "version")
+	if v.code != exitOK || v.stdout != w.stdout || !strings.HasPrefix(v.stdout, "ferry ") {
+		t.Errorf("--version printed %q (exit %d), version %q", v.stdout, v.code, w.stdout)
 	}
 }

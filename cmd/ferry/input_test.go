@@ -259,7 +259,7 @@ func TestBadImages(t *testing.T) {
 		{"truncated stack", append([]string{"resample", sc.transform, truncated, "--like", sc.plane}, vox...), []string{truncated}},
 		{"overlay, truncated stack", append([]string{"overlay", sc.transform, truncated, sc.plane}, vox...), []string{truncated}},
 		{"overlay, landmarks as --mapped", append([]string{"overlay", sc.transform, sc.stack, sc.plane, "--mapped", sc.files.Landmarks}, vox...),
-			[]string{sc.files.Landmarks + ":2: ", `column "x"`}},
+			[]string{sc.files.Landmarks + ":1: ", `column "x"`}},
 		{"overlay, 2-D --mapped", append([]string{"overlay", sc.transform, sc.stack, sc.plane, "--mapped",
 			writeFile(t, filepath.Join(dir, "mapped2d.csv"), "id,x,y,status\nc1,1,2,ok\n")}, vox...),
 			[]string{filepath.Join(dir, "mapped2d.csv"), "2-D"}},

@@ -253,8 +253,12 @@ func oneLine(t testing.TB, o outcome, want ...string) {
 		t.Errorf("exit %d, want %d\n%v", o.code, exitError, o)
 	}
 	msg := strings.TrimSuffix(o.stderr, "\n")
+	// A usage mistake may add the command's usage line, nothing else.
+	if first, usage, two := strings.Cut(msg, "\n"); two && strings.HasPrefix(usage, "usage: ferry ") && !strings.Contains(usage, "\n") {
+		msg = first
+	}
 	if msg == "" || strings.Contains(msg, "\n") {
-		t.Errorf("stderr is not one line:\n%s", o.stderr)
+		t.Errorf("stderr is not one line (and a usage line):\n%s", o.stderr)
 	}
 	for _, w := range want {
 		if !strings.Contains(msg, w) {

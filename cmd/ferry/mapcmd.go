@@ -9,7 +9,6 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/transform"
 )
 
@@ -23,7 +22,7 @@ func newMapCommand() *cobra.Command {
 the radius r95_um of the sphere that holds the true position with 95 %
 probability, and a status (ok, or a word saying why the point deserves care).
 With --inverse the cells are in the target and are mapped back to the source.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "CELLS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args...); err != nil {
 				return err
@@ -34,9 +33,9 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			}
 			file, cells := job.file, job.cells
 			mapped := job.mapper.MapAll(job.pos, job.cellSD, inverse)
-			voxel := file.TargetVoxel
+			voxel, frame := file.TargetVoxel, register.FrameTarget
 			if inverse {
-				voxel = file.SourceVoxel
+				voxel, frame = file.SourceVoxel, register.FrameSource
 			}
 			inputs, err := inputsOf(args[0])
 			if err != nil {
@@ -44,9 +43,7 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256})
 			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return register.WriteMapped(w, prov, cells, mapped, voxel)
-			}); err != nil {
+			if err := register.WriteMappedTable(cmd.Context(), out, prov, cells, mapped, frame, voxel); err != nil {
 				return err
 			}
 			counts := map[string]int{}

@@ -2,17 +2,17 @@ package main
 
 import (
 	"fmt"
-	"io"
 	"math"
+	"os"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/match"
-	"ferry/register/outfile"
 )
 
 // maxAmbiguousListed bounds the ambiguous cells printed; the output file
@@ -33,7 +33,7 @@ not (the runner-up is named), and unmatched where it most probably has no
 counterpart among the candidates, as for cells mapped outside the candidates'
 volume. distance_um is to the assigned candidate, or for an unmatched cell to
 the nearest one. See docs/matching.md for the method.`,
-		Args: cobra.ExactArgs(3),
+		Args: exactArgs("TRANSFORM", "CELLS", "CANDIDATES"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args...); err != nil {
 				return err
@@ -60,6 +60,7 @@ the nearest one. See docs/matching.md for the method.`,
 			res, err := match.Match(job.mapper, job.pos, job.cellSD, candPos, match.Options{
 				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
 				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands),
+				Progress: progress.Terminal(os.Stderr),
 			})
 			if err != nil {
 				return err
@@ -74,9 +75,7 @@ the nearest one. See docs/matching.md for the method.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return match.WriteMatches(w, prov, cells, cands, res)
-			}); err != nil {
+			if err := match.WriteMatchesTable(cmd.Context(), out, prov, cells, cands, res); err != nil {
 				return err
 			}
 			w := cmd.OutOrStdout()

@@ -28,7 +28,7 @@ With --transform the page shows that transform and the check made when it was
 fitted; LANDMARKS must be the file it was fitted from, and the model, smoothing,
 exclusions, voxel sizes and picking errors are the transform file's. Without
 it the landmarks are checked and fitted here with the flags given, as fit does.`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("LANDMARKS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			inputs := []string{args[0]}
 			for _, p := range []string{transformPath, mappedPath, matchesPath} {

@@ -2,12 +2,14 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/transform"
 )
@@ -167,7 +169,7 @@ TIFF resolution tags), else from --source-voxel/--target-voxel and
 records its z position is drawn there; --target-z must then agree. When the
 stack reaches no pixel of the plane, nothing is written and the message says
 where the stack maps.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if like == "" {
 				return fmt.Errorf("--like: a target image whose pixel grid to fill is required")
@@ -211,7 +213,7 @@ writes a colour composite: the target plane in sky blue, the resampled source
 in orange (Okabe & Ito's colour-blind-safe palette), each contrast-stretched.
 With --mapped, the mapped cells that lie within one page of the plane are
 marked, coloured by status. Voxel sizes, origins and --target-z as for resample.`,
-		Args: cobra.ExactArgs(3),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK", "TARGET_IMAGE"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
 				return err
@@ -226,7 +228,7 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 			}
 			var marks []imaging.Mark
 			if mapped != "" {
-				if marks, err = readMarks(mapped, job, &f); err != nil {
+				if marks, err = readMarks(mapped, job, &f, cmd.ErrOrStderr()); err != nil {
 					return err
 				}
 			}
@@ -247,9 +249,10 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 }
 
 // readMarks reads a map output and keeps the cells whose 95 % sphere meets
-// the plane. map writes target voxels when the transform records them, else
-// micrometres.
-func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, error) {
+// the plane. The units of its positions are those its sidecar records;
+// without one, those map writes: target voxels when the transform records
+// them, else micrometres (a warning says so).
+func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) ([]imaging.Mark, error) {
 	set, err := landmarks.ReadPoints(path, "mapped cells")
 	if err != nil {
 		return nil, err
@@ -266,9 +269,16 @@ func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, er
 			r95 = i
 		}
 	}
-	written := job.file.TargetVoxel
+	written, frame := job.file.TargetVoxel, register.FrameTarget
 	if f.inverse {
-		written = job.file.SourceVoxel
+		written, frame = job.file.SourceVoxel, register.FrameSource
+	}
+	written, note, err := register.PositionUnits(path, frame, written)
+	if err != nil {
+		return nil, err
+	}
+	if note != "" {
+		fmt.Fprintf(stderr, "ferry: warning: %s\n", note)
 	}
 	pos := make([]transform.Vec, len(set.Points))
 	reach := make([]float64, len(set.Points))

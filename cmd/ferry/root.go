@@ -22,7 +22,13 @@ sizes are given; every error is in micrometres.
 Results are for research and must be checked by eye before tracing.`,
 		SilenceUsage:  true,
 		SilenceErrors: true,
+		Version:       register.Version,
 	}
+	// --version prints what the version command prints.
+	root.SetVersionTemplate("ferry {{.Version}}\n")
+	// A flag cobra cannot parse is a usage mistake like a missing argument:
+	// the message names it and shows the command's usage line.
+	root.SetFlagErrorFunc(flagError)
 	root.SetOut(stdout)
 	root.SetErr(stderr)
 	root.AddCommand(
@@ -38,6 +44,7 @@ Results are for research and must be checked by eye before tracing.`,
 		newOverlayCommand(),
 		newWarpCommand(),
 		newSuggestCommand(),
+		newExportCommand(),
 	)
 	return root
 }
@@ -46,7 +53,7 @@ func newVersionCommand() *cobra.Command {
 	return &cobra.Command{
 		Use:   "version",
 		Short: "Print the program version",
-		Args:  cobra.NoArgs,
+		Args:  noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			fmt.Fprintf(cmd.OutOrStdout(), "ferry %s\n", register.Version)
 			return nil

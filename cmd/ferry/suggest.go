@@ -3,13 +3,14 @@ package main
 import (
 	"fmt"
 	"io"
+	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/register/suggest"
 	"ferry/transform"
 )
@@ -34,7 +35,7 @@ in vivo), or a regular grid over the box of the landmarks and the cells. Each
 suggestion comes with the target position the current fit predicts for it and
 that prediction's 95 % radius: where to look in the EM volume, and how far.
 See docs/suggest.md.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("LANDMARKS", "CELLS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			inputs := append([]string(nil), args...)
 			if where != "" {
@@ -67,7 +68,7 @@ See docs/suggest.md.`,
 			if err != nil {
 				return err
 			}
-			opt := suggest.Options{N: n, CellSD: sd}
+			opt := suggest.Options{N: n, CellSD: sd, Progress: progress.Terminal(os.Stderr)}
 			var whereSet *landmarks.PointSet
 			if where != "" {
 				if whereSet, opt.Candidates, err = register.ReadCells(where, "candidate locations", file, false); err != nil {
@@ -79,9 +80,7 @@ See docs/suggest.md.`,
 				return err
 			}
 			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return res.WriteCSV(w, output)
-			}); err != nil {
+			if err := res.WriteTable(cmd.Context(), out, output); err != nil {
 				return err
 			}
 			stderr := cmd.ErrOrStderr()

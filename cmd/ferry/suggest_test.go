@@ -12,22 +12,27 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"ferry/register"
 )
 
-// readSuggestions reads a suggestions table: its provenance line, header
-// and rows.
+// readSuggestions reads a suggestions table, header row first, and the
+// provenance line of its sidecar.
 func readSuggestions(t *testing.T, path string) (string, []string, [][]string) {
 	t.Helper()
 	data, err := os.ReadFile(path)
 	if err != nil {
 		t.Fatal(err)
 	}
-	first, rest, _ := strings.Cut(string(data), "\n")
-	rows, err := csv.NewReader(strings.NewReader(rest)).ReadAll()
+	rows, err := csv.NewReader(strings.NewReader(string(data))).ReadAll()
 	if err != nil {
 		t.Fatal(err)
 	}
-	return first, rows[0], rows[1:]
+	side, err := register.ReadSidecar(path, data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return side.Provenance, rows[0], rows[1:]
 }
 
 func column(t *testing.T, header []string, name string) int {
@@ -67,18 +72,18 @@ func TestSuggestCommand(t *testing.T) {
 		header string
 	}{
 		{"grid", []string{"suggest", f.landmarks, f.cells, "--n", "4", "--cell-sd", "0.8,0.8,3"}, 4,
-			"rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status"},
+			"rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,source_x_um,source_y_um,source_z_um,target_x_um,target_y_um,target_z_um"},
 		{"where", []string{"suggest", f.landmarks, f.cells, "--where", where, "--n", "2", "--model", "affine"}, 2,
-			"rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,where_id,seen"},
+			"rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,source_x_um,source_y_um,source_z_um,target_x_um,target_y_um,target_z_um,where_id,seen"},
 		{"2-D", []string{"suggest", lm2, cells2, "--n", "3"}, 3,
-			"rank,x,y,target_x,target_y,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,status"},
+			"rank,x,y,target_x,target_y,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,status,source_x_um,source_y_um,target_x_um,target_y_um"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			out := filepath.Join(t.TempDir(), "next.csv")
 			o := mustSucceed(t, append(tc.args, "-o", out, "--json")...)
 			prov, header, rows := readSuggestions(t, out)
-			if !strings.HasPrefix(prov, "# ferry ") || !strings.Contains(prov, "suggest") {
-				t.Errorf("first line %q is not the provenance", prov)
+			if !strings.HasPrefix(prov, "ferry ") || !strings.Contains(prov, "suggest") {
+				t.Errorf("sidecar provenance %q does not name the command", prov)
 			}
 			if got := strings.Join(header, ","); got != tc.header {
 				t.Errorf("header\n%s\nwant\n%s", got, tc.header)

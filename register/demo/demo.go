@@ -13,6 +13,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/export"
 	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/register/outfile"
@@ -70,6 +71,8 @@ type Outcome struct {
 	// Warped is the in vivo stack warped into the EM frame, as ferry warp
 	// writes it.
 	Warped string
+	// Export is what the export wrote and measured.
+	Export *export.Result
 	// flaggedVerdicts are the first check's verdicts on the landmarks it
 	// flagged.
 	flaggedVerdicts []register.LandmarkCheck
@@ -170,9 +173,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}},
 		Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
-	if err := outfile.Write(ctx, f.Mapped, func(w io.Writer) error {
-		return register.WriteMapped(w, mprov, cells, mapped, tf.TargetVoxel)
-	}); err != nil {
+	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.TargetVoxel); err != nil {
 		return nil, err
 	}
 
@@ -195,9 +196,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
 		Flags: mprov.Flags}
-	if err := outfile.Write(ctx, f.Matches, func(w io.Writer) error {
-		return match.WriteMatches(w, xprov, cells, cands, res)
-	}); err != nil {
+	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res); err != nil {
 		return nil, err
 	}
 	trueCandidate := map[string]string{}
@@ -250,6 +249,19 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 	f.Extra = append(f.Extra, reportPath)
+
+	step("exporting the transform for other programs")
+	exportDir := filepath.Join(o.Dir, "export")
+	tv := ip.TargetVoxelUM
+	if out.Export, err = export.Write(ctx, exportDir, tf, export.Options{
+		Mapped: f.Mapped, TargetVoxel: &tv, Grid: export.GridOptions{Margin: -1}, Seed: 1,
+		Provenance: register.Provenance{Command: "export", Inputs: []register.Input{
+			{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Mapped, SHA256: sha(f.Mapped)}},
+			Flags: []string{"--mapped=" + f.Mapped, fmt.Sprintf("--target-voxel=%g,%g,%g", tv[0], tv[1], tv[2])}},
+	}); err != nil {
+		return nil, err
+	}
+	f.Extra = append(f.Extra, exportDir)
 
 	// Against the truth.
 	truth := map[string]simulate.Cell{}
@@ -462,6 +474,18 @@ func (o *Outcome) Print(w io.Writer) {
 	}
 	if o.Warped != "" {
 		fmt.Fprintf(w, "   %s: the whole in vivo stack warped into the EM frame, a layer for a viewer (voxel size and origin recorded).\n", filepath.Base(o.Warped))
+	}
+	if e := o.Export; e != nil {
+		fmt.Fprintln(w)
+		fmt.Fprintf(w, "5. Exported for other programs into %s: the affine part as 4×4 matrices", e.Dir)
+		if e.Field != nil {
+			g := e.Field.Grid
+			fmt.Fprintf(w, ", the spline's displacement field on %d × %d × %d samples as a TIFF and an OME-Zarr store", g.Size[0], g.Size[1], g.Size[2])
+		}
+		fmt.Fprintf(w, ", %d mapped cells as a target-voxel point list.\n", e.Points)
+		if e.Field != nil {
+			fmt.Fprintf(w, "   Sampling error of the field against the spline: %s.\n", e.SequenceError)
+		}
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))

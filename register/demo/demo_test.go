@@ -46,6 +46,18 @@ func TestDemo(t *testing.T) {
 			t.Errorf("%s: not written (%v)", p, err)
 		}
 	}
+	// The export: the spline's field within a fraction of a micrometre of
+	// the spline, and every cell with a position in the point list.
+	if e := out.Export; e == nil || e.Field == nil {
+		t.Error("the demo wrote no displacement field")
+	} else {
+		if e.SequenceError.MaxUM <= 0 || e.SequenceError.MaxUM > 0.5 {
+			t.Errorf("sampling error of the exported field %v", e.SequenceError)
+		}
+		if e.Points+e.Unplaced != out.Cells || e.Points == 0 {
+			t.Errorf("point list of %d cells (%d unplaced) for %d mapped", e.Points, e.Unplaced, out.Cells)
+		}
+	}
 	var b bytes.Buffer
 	out.Print(&b)
 	// The warped stack records its grid, and most of it holds the stack.
@@ -65,7 +77,7 @@ func TestDemo(t *testing.T) {
 	if lit < len(warped.Data)/2 {
 		t.Errorf("%d of %d warped voxels hold the stack", lit, len(warped.Data))
 	}
-	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Results are for research", WarpedFile} {
+	for _, want := range []string{"flagged v", "Chosen:", "Calibration:", "Against the truth", "Sampling error", "Results are for research", WarpedFile} {
 		if !strings.Contains(b.String(), want) {
 			t.Errorf("summary lacks %q:\n%s", want, b.String())
 		}

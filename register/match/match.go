@@ -2,6 +2,7 @@ package match
 
 import (
 	"errors"
+	"ferry/progress"
 	"fmt"
 	"math"
 	"runtime"
@@ -99,6 +100,9 @@ type Options struct {
 	// then broken by id, so the result does not depend on the order of the
 	// rows. Without them ties go to the lower index.
 	CellIDs, CandidateIDs []string
+	// Progress, when not nil, hears how many cells have had their
+	// candidates weighed: with many candidates that takes seconds.
+	Progress progress.Reporter
 }
 
 // Result is the match of one cell.
@@ -192,6 +196,9 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 	// Each cell's options, on all cores; every cell's are its own, so the
 	// result is the same on any number of them.
 	opts := make([]cellOptions, len(mapped))
+	rep := progress.Of(opt.Progress)
+	rep.Step(fmt.Sprintf("weighing %d candidates for %d cells", len(cands), len(mapped)), len(mapped))
+	defer rep.Finish()
 	workers := max(1, min(runtime.GOMAXPROCS(0), len(mapped)/64))
 	var wg sync.WaitGroup
 	var next sync.Mutex
@@ -208,10 +215,12 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 				if lo >= len(mapped) {
 					return
 				}
-				for r := lo; r < min(lo+64, len(mapped)); r++ {
+				hi := min(lo+64, len(mapped))
+				for r := lo; r < hi; r++ {
 					i := cellOrder[r]
 					opts[r] = sp.options(mapped[i])
 				}
+				rep.Add(hi - lo)
 			}
 		}()
 	}

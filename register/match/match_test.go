@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/simulate"
 	"ferry/transform"
@@ -241,7 +242,11 @@ func TestMatch2D(t *testing.T) {
 		{Pos: transform.Vec{184, 180, 0}, Cov: cov, R95: 2.45, Status: register.StatusOK},  // 4 µm from one: no match is likely too
 		{Pos: transform.Vec{60, 60, 5000}, Cov: cov, R95: 2.45, Status: register.StatusOK}, // z is ignored
 	}
-	res := runMapped(t, cells, cands, Options{Dim: 2, PriorCounterpart: 0.9})
+	var rec progress.Recorder
+	res := runMapped(t, cells, cands, Options{Dim: 2, PriorCounterpart: 0.9, Progress: &rec})
+	if rec.Done() != len(cells) || rec.Finished() != 1 {
+		t.Errorf("progress: %d of %d cells reported, %d stages finished", rec.Done(), len(cells), rec.Finished())
+	}
 	want := []string{StatusMatched, StatusUnmatched, StatusAmbiguous, StatusMatched}
 	for i, r := range res {
 		if r.Status != want[i] {

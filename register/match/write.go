@@ -1,6 +1,7 @@
 package match
 
 import (
+	"context"
 	"encoding/csv"
 	"fmt"
 	"io"
@@ -16,20 +17,26 @@ import (
 // columns.
 var Columns = []string{"id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status", "p_none"}
 
-// WriteMatches writes the matches in the contract's columns, after a
-// comment line with the provenance: id, candidate (empty when none),
+// WriteMatchesTable writes the matches to path with their sidecar (see
+// register.Sidecar) whole or not at all: the table of WriteMatches, with
+// prov beside it. The table holds no positions: distances are in µm.
+func WriteMatchesTable(ctx context.Context, path string, prov register.Provenance, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result) error {
+	return register.WriteTable(ctx, path, prov, nil, func(w io.Writer) error {
+		return WriteMatches(w, cells, cands, res)
+	})
+}
+
+// WriteMatches writes the matches in the contract's columns, header row
+// first: id, candidate (empty when none),
 // p_match, distance_um, runner_up (empty when none), p_runner_up (0 when
 // none), status,
 // then p_none (the posterior probability that the cell has no counterpart
 // among the candidates) and the cells' own extra columns. Probabilities have
 // four decimals; distances are micrometres to the nanometre. res is Match's
 // result for cells and cands, in their order.
-func WriteMatches(w io.Writer, prov register.Provenance, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result) error {
+func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result) error {
 	if len(res) != len(cells.Points) {
 		return fmt.Errorf("match: %d results for %d cells", len(res), len(cells.Points))
-	}
-	if _, err := fmt.Fprintf(w, "# %s\n", prov.Line()); err != nil {
-		return err
 	}
 	cw := csv.NewWriter(w)
 	header := append(append([]string(nil), Columns...), cells.ExtraColumns...)

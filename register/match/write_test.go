@@ -7,7 +7,6 @@ import (
 	"testing"
 
 	"ferry/landmarks"
-	"ferry/register"
 )
 
 func TestWriteMatches(t *testing.T) {
@@ -26,13 +25,11 @@ func TestWriteMatches(t *testing.T) {
 		{Candidate: 0, PMatch: 0.6, PNone: 0.4, DistanceUM: 3, RunnerUp: -1, Status: StatusAmbiguous},
 		{Candidate: -1, PMatch: 1, PNone: 1, DistanceUM: math.NaN(), RunnerUp: -1, Status: StatusUnmatched, Outside: true},
 	}
-	prov := register.Provenance{Command: "match", Inputs: []register.Input{{Path: "t.json", SHA256: "ab"}}}
 	var b bytes.Buffer
-	if err := WriteMatches(&b, prov, cells, cands, res); err != nil {
+	if err := WriteMatches(&b, cells, cands, res); err != nil {
 		t.Fatal(err)
 	}
-	want := "# " + prov.Line() + "\n" +
-		"id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,osi,note\n" +
+	want := "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,osi,note\n" +
 		"c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,0.5,\"a, b\"\n" +
 		"c2,n1,0.6000,3.0000,,0.0000,ambiguous,0.4000,0.25,\n" +
 		"c3,,1.0000,,,0.0000,unmatched,1.0000,0.75,x\n"
@@ -66,7 +63,7 @@ func TestWriteMatchesRefusesMismatch(t *testing.T) {
 		nil,
 		{{Candidate: 3, RunnerUp: -1}},
 	} {
-		if err := WriteMatches(&bytes.Buffer{}, register.Provenance{}, cells, cands, res); err == nil {
+		if err := WriteMatches(&bytes.Buffer{}, cells, cands, res); err == nil {
 			t.Errorf("%+v: written", res)
 		}
 	}

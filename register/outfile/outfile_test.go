@@ -121,3 +121,81 @@ func TestWriteErrorsNameThePath(t *testing.T) {
 		t.Errorf("folder holds %v, want only sub", entries)
 	}
 }
+
+// Files written together appear together or not at all: a failure in the
+// second fill leaves the first file as it was.
+func TestWriteFilesTogether(t *testing.T) {
+	dir := t.TempDir()
+	a, b := filepath.Join(dir, "a.csv"), filepath.Join(dir, "a.csv.json")
+	if err := WriteBytes(context.Background(), a, []byte("old\n")); err != nil {
+		t.Fatal(err)
+	}
+	boom := errors.New("boom")
+	err := WriteFiles(context.Background(),
+		File{Path: a, Fill: func(w io.Writer) error { _, err := io.WriteString(w, "new\n"); return err }},
+		File{Path: b, Fill: func(w io.Writer) error { return boom }})
+	if !errors.Is(err, boom) {
+		t.Fatalf("error %v, want boom", err)
+	}
+	if got, _ := os.ReadFile(a); string(got) != "old\n" {
+		t.Errorf("first file changed to %q", got)
+	}
+	entries, _ := os.ReadDir(dir)
+	if len(entries) != 1 {
+		t.Errorf("folder holds %v", entries)
+	}
+	seen := ""
+	if err := WriteFiles(context.Background(),
+		File{Path: a, Fill: func(w io.Writer) error { seen = "new"; _, err := io.WriteString(w, "new\n"); return err }},
+		File{Path: b, Fill: func(w io.Writer) error { _, err := io.WriteString(w, seen); return err }}); err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := os.ReadFile(b); string(got) != "new" {
+		t.Errorf("second file %q: a later fill sees what an earlier one did", got)
+	}
+}
+
+// WriteDir moves what fill made into the folder, replacing a folder of the
+// same name, and leaves nothing behind on an error.
+func TestWriteDir(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "out")
+	fill := func(text string) func(string) error {
+		return func(tmp string) error {
+			if err := os.MkdirAll(filepath.Join(tmp, "store.zarr", "c"), 0o755); err != nil {
+				return err
+			}
+			if err := os.WriteFile(filepath.Join(tmp, "store.zarr", "c", "0"), []byte(text), 0o644); err != nil {
+				return err
+			}
+			return os.WriteFile(filepath.Join(tmp, "m.json"), []byte(text), 0o644)
+		}
+	}
+	for _, text := range []string{"one", "two"} {
+		if err := WriteDir(context.Background(), dir, fill(text)); err != nil {
+			t.Fatal(err)
+		}
+		for _, f := range []string{"m.json", filepath.Join("store.zarr", "c", "0")} {
+			if got, _ := os.ReadFile(filepath.Join(dir, f)); string(got) != text {
+				t.Errorf("%s holds %q, want %q", f, got, text)
+			}
+		}
+	}
+	boom := errors.New("boom")
+	if err := WriteDir(context.Background(), dir, func(tmp string) error {
+		os.WriteFile(filepath.Join(tmp, "m.json"), []byte("three"), 0o644)
+		return boom
+	}); !errors.Is(err, boom) {
+		t.Fatalf("error %v", err)
+	}
+	entries, _ := os.ReadDir(dir)
+	var names []string
+	for _, e := range entries {
+		names = append(names, e.Name())
+	}
+	if strings.Join(names, ",") != "m.json,store.zarr" {
+		t.Errorf("after a failed write the folder holds %v", names)
+	}
+	if got, _ := os.ReadFile(filepath.Join(dir, "m.json")); string(got) != "two" {
+		t.Errorf("m.json changed to %q", got)
+	}
+}

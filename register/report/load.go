@@ -53,17 +53,18 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 	return nil
 }
 
-// AddMapped reads a map output for the report, in the voxels of the
-// transform's target side, and checks its dimension.
+// AddMapped reads a map output for the report (ReadMappedTable; without
+// a sidecar or micrometre columns its positions are taken to be in the
+// units of the transform's target side) and checks its dimension.
 func AddMapped(in *Input, path string) error {
-	cells, dim, err := ReadMapped(path, in.Transform.TargetVoxel)
+	m, err := ReadMappedTable(path, in.Transform.TargetVoxel)
 	if err != nil {
 		return err
 	}
-	if dim != in.Check.Dim {
-		return fmt.Errorf("%s: %d-D mapped cells for %d-D landmarks", path, dim, in.Check.Dim)
+	if m.Dim != in.Check.Dim {
+		return fmt.Errorf("%s: %d-D mapped cells for %d-D landmarks", path, m.Dim, in.Check.Dim)
 	}
-	in.Cells, in.CellsFile = cells, path
+	in.Cells, in.CellsFile, in.CellsAssumed = m.Cells, path, m.Assumed
 	return nil
 }
 

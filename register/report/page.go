@@ -35,6 +35,9 @@ type Input struct {
 	// Cells, when not nil, are the mapped cells of CellsFile (ReadMapped).
 	Cells     []Cell
 	CellsFile string
+	// CellsAssumed says what had to be assumed about the frame or units of
+	// the cells' positions (MappedTable.Assumed); the page warns of it.
+	CellsAssumed string
 	// Matches, when not nil, are the matches of MatchesFile (ReadMatches).
 	Matches     []Match
 	MatchesFile string
@@ -82,6 +85,9 @@ func New(in *Input) (*Page, error) {
 	d.LandmarkFile = in.LandmarkFile
 	d.Title = "ferry report: " + in.LandmarkFile
 	d.summarise(in)
+	if in.CellsAssumed != "" {
+		pg.Warnings = append(pg.Warnings, in.CellsAssumed)
+	}
 
 	var err error
 	if d.ErrorsFigure, err = errorsFigure(ck); err != nil {

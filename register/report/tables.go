@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"ferry/landmarks"
+	"ferry/register"
 	"ferry/transform"
 )
 
@@ -48,40 +49,80 @@ const (
 	MatchUnmatched = "unmatched"
 )
 
-// ReadMapped reads the mapped cells written by `ferry map`, by column name:
-// id, x, y, z (absent in 2-D), r95_um and status; any other column is
-// ignored. targetVoxel, when not nil, says that x, y and z are target voxel
-// indices of that size (µm), as map writes them for a transform fitted in
-// voxels; positions are returned in micrometres. A table written by
-// `ferry map --inverse` holds source positions and is refused.
+// ReadMapped is ReadMappedTable's cells and dimension.
 func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int, err error) {
-	t, err := readTable(path)
+	m, err := ReadMappedTable(path, targetVoxel)
 	if err != nil {
 		return nil, 0, err
 	}
-	if t.mentions("--inverse=true") {
-		return nil, 0, &landmarks.InputError{File: path, Msg: "was written by ferry map --inverse and holds source positions: the report draws cells mapped forward into the target"}
-	}
-	cols, err := t.require("id", "x", "y", "r95_um", "status")
+	return m.Cells, m.Dim, nil
+}
+
+// MappedTable is the table of `ferry map` as the report reads it.
+type MappedTable struct {
+	Cells []Cell
+	Dim   int
+	// Assumed, when not empty, says what the reader had to assume about
+	// the frame or units of the positions, for the user to hear.
+	Assumed string
+}
+
+// ReadMappedTable reads the mapped cells written by `ferry map`, by column
+// name: id, x, y, z (absent in 2-D), r95_um and status; positions are
+// returned in target micrometres. The frame and units of the positions come
+// from the data, in this order:
+//
+//   - the table's sidecar (path + ".json", see register.Sidecar): x, y, z
+//     in target µm or target voxels of the size it records;
+//   - without a usable sidecar, the columns target_x_um, target_y_um,
+//     target_z_um that map writes beside x, y, z;
+//   - without either (a table made by hand or by an older ferry), x, y, z
+//     are assumed to be target positions, in voxels of targetVoxel when it
+//     is not nil (as map writes them for a transform fitted in voxels) and
+//     in µm otherwise; Assumed says so.
+//
+// A table of source positions (`ferry map --inverse`: a sidecar naming the
+// source frame, source_x_um columns, or an older table whose comment line
+// records --inverse=true) is refused: the report draws cells mapped
+// forward into the target.
+func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, error) {
+	data, err := os.ReadFile(path)
 	if err != nil {
-		return nil, 0, err
+		return nil, fmt.Errorf("cannot read %s: %w", path, unwrapPath(err))
 	}
-	dim = 2
-	axes := []int{cols[1], cols[2], -1}
-	if z := t.column("z"); z >= 0 {
-		dim, axes[2] = 3, z
+	t, err := parseTable(path, data)
+	if err != nil {
+		return nil, err
 	}
-	cells = make([]Cell, len(t.rows))
+	cols, err := t.require("id", "r95_um", "status")
+	if err != nil {
+		return nil, err
+	}
+	inverse := &landmarks.InputError{File: path, Msg: "holds source positions (written by ferry map --inverse): the report draws cells mapped forward into the target"}
+	out := &MappedTable{}
+	pos, scale, err := mappedPositions(t, data, targetVoxel, out, inverse)
+	if err != nil {
+		return nil, err
+	}
+	dim := len(pos)
+	out.Dim = dim
+	cols = []int{cols[0], pos[0], pos[1], cols[1], cols[2]}
+	axes := []int{pos[0], pos[1], -1}
+	if dim == 3 {
+		axes[2] = pos[2]
+	}
+	targetVoxel = scale
+	cells := make([]Cell, len(t.rows))
 	for r, row := range t.rows {
 		c := Cell{ID: strings.TrimSpace(row[cols[0]]), Status: strings.TrimSpace(row[cols[4]])}
 		if c.ID == "" {
-			return nil, 0, t.fail(r, cols[0], "empty id: every row needs one")
+			return nil, t.fail(r, cols[0], "empty id: every row needs one")
 		}
 		empty := 0
 		for k := range dim {
 			v, ok, err := t.number(r, axes[k])
 			if err != nil {
-				return nil, 0, err
+				return nil, err
 			}
 			if !ok {
 				empty++
@@ -97,14 +138,85 @@ func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int,
 			c.Placed = true
 		case dim:
 		default:
-			return nil, 0, t.fail(r, axes[0], "some coordinates of the row are empty and some are not: give all or none")
+			return nil, t.fail(r, axes[0], "some coordinates of the row are empty and some are not: give all or none")
 		}
 		if c.R95, _, err = t.number(r, cols[3]); err != nil {
-			return nil, 0, err
+			return nil, err
 		}
 		cells[r] = c
 	}
-	return cells, dim, nil
+	out.Cells = cells
+	return out, nil
+}
+
+// mappedPositions finds the columns of the mapped positions and their
+// voxel size (nil: µm) as ReadMappedTable describes, noting in out what it
+// had to assume.
+func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *MappedTable, inverse error) ([]int, *transform.Vec, error) {
+	side, err := register.ReadSidecar(t.name, data)
+	var ignored string
+	switch {
+	case err == nil:
+		if c, ok := side.CoordinatesOf("x"); ok {
+			if c.Frame != register.FrameTarget {
+				return nil, nil, inverse
+			}
+			idx, err := t.require(c.Columns...)
+			if err != nil {
+				return nil, nil, err
+			}
+			if c.Units == register.UnitsUM {
+				return idx, nil, nil
+			}
+			var v transform.Vec
+			copy(v[:], c.VoxelUM)
+			return idx, &v, nil
+		}
+		ignored = register.SidecarPath(t.name) + " says nothing of the columns x, y, z"
+	case errors.Is(err, register.ErrNoSidecar):
+	default:
+		ignored = err.Error()
+	}
+	um := func(frame string) []int {
+		var idx []int
+		for _, a := range []string{"x", "y", "z"} {
+			if i := t.column(frame + "_" + a + "_um"); i >= 0 {
+				idx = append(idx, i)
+			}
+		}
+		if len(idx) < 2 {
+			return nil
+		}
+		return idx
+	}
+	note := func(msg string) {
+		if ignored != "" {
+			msg = "the sidecar is ignored (" + ignored + "); " + msg
+		}
+		out.Assumed = t.name + ": " + msg
+	}
+	if idx := um(register.FrameTarget); idx != nil {
+		if ignored != "" {
+			note("positions taken from the columns target_*_um")
+		}
+		return idx, nil, nil
+	}
+	if um(register.FrameSource) != nil || t.mentions("--inverse=true") {
+		return nil, nil, inverse
+	}
+	idx, err := t.require("x", "y")
+	if err != nil {
+		return nil, nil, err
+	}
+	if z := t.column("z"); z >= 0 {
+		idx = append(idx, z)
+	}
+	if targetVoxel != nil {
+		note(fmt.Sprintf("no sidecar and no target_*_um columns: x, y, z are taken to be target voxels of %g × %g × %g µm, the transform's target voxel size", targetVoxel[0], targetVoxel[1], targetVoxel[2]))
+	} else {
+		note("no sidecar and no target_*_um columns: x, y, z are taken to be target positions in µm")
+	}
+	return idx, targetVoxel, nil
 }
 
 // ReadMatches reads the table of `ferry match` by column name: id,

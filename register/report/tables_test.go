@@ -2,6 +2,8 @@ package report
 
 import (
 	"bytes"
+	"context"
+	"encoding/csv"
 	"math"
 	"os"
 	"path/filepath"
@@ -25,8 +27,11 @@ func writeFile(t *testing.T, name, text string) string {
 	return path
 }
 
-// The table that register.WriteMapped writes is the one ReadMapped reads:
-// the two must agree on the columns of the contract.
+// The table that register.WriteMappedTable writes is the one ReadMapped
+// reads: the two must agree on the columns of the contract, and the reader
+// takes the frame and units from the sidecar, from the micrometre columns
+// when the sidecar is gone, and assumes the transform's units only when
+// neither is there.
 func TestReadMappedRoundTrip(t *testing.T) {
 	cells := &landmarks.PointSet{Dim: 3, ExtraColumns: []string{"osi"}, Points: []landmarks.Point{
 		{ID: "c1", Extra: []string{"0.5"}}, {ID: "c2", Extra: []string{"0.1"}}, {ID: "c3", Extra: []string{""}},
@@ -36,26 +41,133 @@ func TestReadMappedRoundTrip(t *testing.T) {
 		{Pos: transform.Vec{-1.25, 0, 7}, R95: 9, Status: register.StatusExtrapolated},
 		{Status: register.StatusNoInverse},
 	}
-	for _, voxel := range []*transform.Vec{nil, {0.5, 0.25, 2}} {
-		var buf bytes.Buffer
-		if err := register.WriteMapped(&buf, register.Provenance{Command: "map"}, cells, mapped, voxel); err != nil {
+	want := []Cell{
+		{ID: "c1", Target: transform.Vec{10, 20, 30}, Placed: true, R95: 2.5, Status: "ok"},
+		{ID: "c2", Target: transform.Vec{-1.25, 0, 7}, Placed: true, R95: 9, Status: "extrapolated"},
+		{ID: "c3", R95: math.NaN(), Status: "no_inverse"},
+	}
+	voxel := &transform.Vec{0.5, 0.25, 2}
+	other := &transform.Vec{3, 3, 3}
+	for _, tc := range []struct {
+		name string
+		// written is the voxel size the table is written in, given the
+		// voxel size the reader is told.
+		written, told *transform.Vec
+		// edit changes the files after writing.
+		edit func(t *testing.T, path string)
+		// assumed is part of the note the reader must give ("" for none).
+		assumed string
+	}{
+		{name: "sidecar, µm"},
+		{name: "sidecar, voxels", written: voxel},
+		// The sidecar wins over what the reader is told.
+		{name: "sidecar, voxels, reader told other", written: voxel, told: other},
+		{name: "no sidecar, µm columns", written: voxel, told: other, edit: removeSidecar},
+		{name: "stale sidecar, µm columns", written: voxel, edit: func(t *testing.T, path string) {
+			appendTo(t, path, "")
+		}, assumed: "changed after it was written"},
+		{name: "no sidecar, no µm columns, µm assumed", edit: func(t *testing.T, path string) {
+			removeSidecar(t, path)
+			dropColumns(t, path, "target_")
+		}, assumed: "target positions in µm"},
+		{name: "no sidecar, no µm columns, voxels assumed", written: voxel, told: voxel, edit: func(t *testing.T, path string) {
+			removeSidecar(t, path)
+			dropColumns(t, path, "target_")
+		}, assumed: "target voxels of 0.5 × 0.25 × 2 µm"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			path := filepath.Join(t.TempDir(), "mapped.csv")
+			if err := register.WriteMappedTable(context.Background(), path, register.Provenance{Command: "map"}, cells, mapped, register.FrameTarget, tc.written); err != nil {
+				t.Fatal(err)
+			}
+			if tc.edit != nil {
+				tc.edit(t, path)
+			}
+			m, err := ReadMappedTable(path, tc.told)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if m.Dim != 3 {
+				t.Errorf("dimension %d, want 3", m.Dim)
+			}
+			if diff := cmp.Diff(want, m.Cells, cmpopts.EquateNaNs(), cmpopts.EquateApprox(0, 1e-9)); diff != "" {
+				t.Errorf("cells differ (-want +got):\n%s", diff)
+			}
+			if (tc.assumed == "") != (m.Assumed == "") || !strings.Contains(m.Assumed, tc.assumed) {
+				t.Errorf("assumption %q, want one holding %q", m.Assumed, tc.assumed)
+			}
+		})
+	}
+}
+
+// Cells mapped back with --inverse are refused, whether the sidecar or only
+// the columns say so.
+func TestReadMappedRefusesSource(t *testing.T) {
+	cells := &landmarks.PointSet{Dim: 2, Points: []landmarks.Point{{ID: "c1"}}}
+	mapped := []register.Mapped{{Pos: transform.Vec{1, 2}, R95: 1, Status: register.StatusOK}}
+	for _, drop := range []bool{false, true} {
+		path := filepath.Join(t.TempDir(), "back.csv")
+		if err := register.WriteMappedTable(context.Background(), path, register.Provenance{Command: "map"}, cells, mapped, register.FrameSource, nil); err != nil {
 			t.Fatal(err)
 		}
-		got, dim, err := ReadMapped(writeFile(t, "mapped.csv", buf.String()), voxel)
-		if err != nil {
-			t.Fatal(err)
+		if drop {
+			removeSidecar(t, path)
 		}
-		want := []Cell{
-			{ID: "c1", Target: transform.Vec{10, 20, 30}, Placed: true, R95: 2.5, Status: "ok"},
-			{ID: "c2", Target: transform.Vec{-1.25, 0, 7}, Placed: true, R95: 9, Status: "extrapolated"},
-			{ID: "c3", R95: math.NaN(), Status: "no_inverse"},
+		if _, _, err := ReadMapped(path, nil); err == nil || !strings.Contains(err.Error(), "source positions") {
+			t.Errorf("sidecar removed %v: error %v, want a refusal of source positions", drop, err)
 		}
-		if dim != 3 {
-			t.Errorf("dimension %d, want 3", dim)
+	}
+}
+
+func removeSidecar(t *testing.T, path string) {
+	t.Helper()
+	if err := os.Remove(register.SidecarPath(path)); err != nil {
+		t.Fatal(err)
+	}
+}
+
+func appendTo(t *testing.T, path, text string) {
+	t.Helper()
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(path, append(data, text+"\n"...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// dropColumns rewrites the CSV at path without the columns whose names
+// begin with prefix.
+func dropColumns(t *testing.T, path, prefix string) {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows, err := csv.NewReader(f).ReadAll()
+	f.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var keep []int
+	for i, h := range rows[0] {
+		if !strings.HasPrefix(h, prefix) {
+			keep = append(keep, i)
 		}
-		if diff := cmp.Diff(want, got, cmpopts.EquateNaNs(), cmpopts.EquateApprox(0, 1e-9)); diff != "" {
-			t.Errorf("voxel %v: cells differ (-want +got):\n%s", voxel, diff)
+	}
+	var buf bytes.Buffer
+	w := csv.NewWriter(&buf)
+	for _, r := range rows {
+		var out []string
+		for _, i := range keep {
+			out = append(out, r[i])
 		}
+		w.Write(out)
+	}
+	w.Flush()
+	if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
 	}
 }
 
@@ -80,7 +192,8 @@ func TestReadMapped(t *testing.T) {
 		{name: "part of a position", text: "id,x,y,z,r95_um,status\nc1,1,,3,1,ok\n", err: "some coordinates of the row are empty"},
 		{name: "short row", text: "id,x,y,z,r95_um,status\nc1,1,2,3,1\n", err: "mapped.csv:2: the row has 5 fields but the header has 6 columns"},
 		{name: "empty id", text: "id,x,y,z,r95_um,status\n ,1,2,3,1,ok\n", err: "empty id"},
-		{name: "inverse", text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n", err: "--inverse"},
+		{name: "inverse, older table", text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n", err: "--inverse"},
+		{name: "inverse, source columns", text: "id,x,y,r95_um,status,source_x_um,source_y_um\nc1,1,2,1,ok,1,2\n", err: "source positions"},
 		{name: "no header", text: "# nothing\n", err: "no header row"},
 		{name: "bad quotes", text: "id,x,y,z,r95_um,status\n\"c1,1,2,3,1,ok\n", err: "mapped.csv:2:"},
 	} {

@@ -109,10 +109,10 @@ func writeAtomic(path string, data []byte) error {
 	return nil
 }
 
-// table renders a CSV with its leading comment line.
-func (s *Scenario) table(what string, header []string, rows [][]string) ([]byte, error) {
+// table renders a CSV, header row first; what it holds is said in
+// scenario.json (see tables).
+func (s *Scenario) table(header []string, rows [][]string) ([]byte, error) {
 	var buf bytes.Buffer
-	fmt.Fprintf(&buf, "# %s seed %d: %s\n", Generator, s.Seed, what)
 	w := csv.NewWriter(&buf)
 	if err := w.Write(header); err != nil {
 		return nil, err
@@ -143,12 +143,46 @@ func (s *Scenario) targetOut(v transform.Vec) transform.Vec {
 	return transform.Vec{v[0] / vox[0], v[1] / vox[1], v[2] / vox[2]}
 }
 
-func (s *Scenario) targetUnits() string {
-	vox := s.Params.TargetVoxelUM
-	if vox == (transform.Vec{}) {
-		return "µm"
+// coordinates describes a group of position columns of a table, with the
+// JSON keys of a ferry table sidecar (register.Coordinates), which this
+// package cannot import.
+type coordinates struct {
+	Columns []string  `json:"columns"`
+	Frame   string    `json:"frame"`
+	Units   string    `json:"units"`
+	VoxelUM []float64 `json:"voxel_um,omitempty"`
+}
+
+// tableRecord says what one of the scenario's tables holds.
+type tableRecord struct {
+	File        string        `json:"file"`
+	Description string        `json:"description"`
+	Coordinates []coordinates `json:"coordinates"`
+}
+
+// tables describes the scenario's tables, for scenario.json: the tables
+// begin with their header rows and say nothing of themselves.
+func (s *Scenario) tables() []tableRecord {
+	xyz := func(prefix, suffix string) []string {
+		return []string{prefix + "x" + suffix, prefix + "y" + suffix, prefix + "z" + suffix}
 	}
-	return fmt.Sprintf("voxels of %s × %s × %s µm", formatFloat(vox[0]), formatFloat(vox[1]), formatFloat(vox[2]))
+	um := func(cols []string, frame string) coordinates {
+		return coordinates{Columns: cols, Frame: frame, Units: "um"}
+	}
+	target := func(cols []string) coordinates {
+		vox := s.Params.TargetVoxelUM
+		if vox == (transform.Vec{}) {
+			return um(cols, "target")
+		}
+		return coordinates{Columns: cols, Frame: "target", Units: "voxel", VoxelUM: vox[:]}
+	}
+	return []tableRecord{
+		{LandmarksFile, "landmark pairs", []coordinates{um(xyz("source_", ""), "source"), target(xyz("target_", ""))}},
+		{CellsFile, "imaged cells in source space", []coordinates{um(xyz("", ""), "source")}},
+		{CandidatesFile, "EM nucleus centroids in target space", []coordinates{target(xyz("", ""))}},
+		{TruthCellsFile, "truth of the imaged cells", []coordinates{um(xyz("true_", "_um"), "target"), um(xyz("true_source_", "_um"), "source")}},
+		{TruthLandmarksFile, "truth of the landmark pairs", []coordinates{um(xyz("true_source_", "_um"), "source"), um(xyz("true_target_", "_um"), "target")}},
+	}
 }
 
 func (s *Scenario) landmarksCSV() ([]byte, error) {
@@ -160,7 +194,7 @@ func (s *Scenario) landmarksCSV() ([]byte, error) {
 		row = append(row, vecFields(s.targetOut(l.TargetUM))...)
 		rows = append(rows, append(row, l.Note))
 	}
-	return s.table("landmark pairs, source in µm, target in "+s.targetUnits(), header, rows)
+	return s.table(header, rows)
 }
 
 func (s *Scenario) cellsCSV() ([]byte, error) {
@@ -171,7 +205,7 @@ func (s *Scenario) cellsCSV() ([]byte, error) {
 		row = append(row, vecFields(c.SourceUM)...)
 		rows = append(rows, append(row, strconv.Itoa(c.Plane), formatFloat(c.PrefOrientationDeg), formatFloat(c.OSI)))
 	}
-	return s.table("imaged cells in source space, µm", header, rows)
+	return s.table(header, rows)
 }
 
 func (s *Scenario) candidatesCSV() ([]byte, error) {
@@ -182,7 +216,7 @@ func (s *Scenario) candidatesCSV() ([]byte, error) {
 		row = append(row, vecFields(s.targetOut(c.TargetUM))...)
 		rows = append(rows, append(row, formatFloat(c.NucleusVolumeUM3)))
 	}
-	return s.table("EM nucleus centroids in target space, "+s.targetUnits(), header, rows)
+	return s.table(header, rows)
 }
 
 func (s *Scenario) truthCellsCSV() ([]byte, error) {
@@ -194,7 +228,7 @@ func (s *Scenario) truthCellsCSV() ([]byte, error) {
 		row = append(row, c.TrueCandidate, strconv.FormatBool(c.InsideEM))
 		rows = append(rows, append(row, vecFields(c.TrueSourceUM)...))
 	}
-	return s.table("truth of the imaged cells, target µm", header, rows)
+	return s.table(header, rows)
 }
 
 func (s *Scenario) truthLandmarksCSV() ([]byte, error) {
@@ -205,7 +239,7 @@ func (s *Scenario) truthLandmarksCSV() ([]byte, error) {
 		row = append(row, vecFields(l.TrueSourceUM)...)
 		rows = append(rows, append(row, vecFields(l.TrueTargetUM)...))
 	}
-	return s.table("truth of the landmark pairs, µm", header, rows)
+	return s.table(header, rows)
 }
 
 // scenarioRecord is the layout of scenario.json.
@@ -223,6 +257,9 @@ type scenarioRecord struct {
 	TrueMap       TrueMapModel   `json:"true_map"`
 	Counts        scenarioCounts `json:"counts"`
 	Files         []string       `json:"files"`
+	// Tables say what each table holds and the frame and units of its
+	// position columns.
+	Tables []tableRecord `json:"tables"`
 }
 
 type scenarioCounts struct {
@@ -249,6 +286,7 @@ func (s *Scenario) scenarioJSON() ([]byte, error) {
 		EMBlockUM: s.EMBlock,
 		TrueMap:   s.Map,
 		Files:     []string{LandmarksFile, CellsFile, CandidatesFile, TruthCellsFile, TruthLandmarksFile},
+		Tables:    s.tables(),
 	}
 	if v := s.Params.TargetVoxelUM; v != (transform.Vec{}) {
 		rec.TargetVoxelUM = &v

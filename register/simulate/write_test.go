@@ -17,19 +17,14 @@ import (
 )
 
 // readTable parses a written CSV the way the contract says a reader must:
-// # lines are comments, the header names the columns.
+// the header row first, naming the columns.
 func readTable(t *testing.T, path string) (header []string, rows []map[string]string) {
 	t.Helper()
 	data, err := os.ReadFile(path)
 	if err != nil {
 		t.Fatal(err)
 	}
-	first, _, _ := bytes.Cut(data, []byte("\n"))
-	if !bytes.HasPrefix(first, []byte("# "+Generator+" seed ")) {
-		t.Errorf("%s starts with %q: want a comment naming the generator and seed", path, first)
-	}
 	r := csv.NewReader(bytes.NewReader(data))
-	r.Comment = '#'
 	records, err := r.ReadAll()
 	if err != nil {
 		t.Fatalf("%s does not parse as CSV: %v", path, err)
@@ -251,6 +246,51 @@ func TestWriteReportsErrors(t *testing.T) {
 	for _, e := range entries {
 		if strings.Contains(e.Name(), ".tmp-") {
 			t.Errorf("temporary file %s left behind", e.Name())
+		}
+	}
+}
+
+// scenario.json says, for every table, the frame and units of its position
+// columns, and every column it names is in that table's header.
+func TestScenarioDescribesTables(t *testing.T) {
+	p := SmallParams()
+	p.TargetVoxelUM = transform.Vec{0.008, 0.008, 0.04}
+	s := mustGenerate(t, p, 5)
+	files, err := s.Write(t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := os.ReadFile(files.Scenario)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rec scenarioRecord
+	if err := json.Unmarshal(data, &rec); err != nil {
+		t.Fatal(err)
+	}
+	if len(rec.Tables) != len(rec.Files) {
+		t.Fatalf("%d tables described for %d files", len(rec.Tables), len(rec.Files))
+	}
+	units := map[string]string{}
+	for _, tab := range rec.Tables {
+		header, _ := readTable(t, filepath.Join(filepath.Dir(files.Scenario), tab.File))
+		for _, c := range tab.Coordinates {
+			for _, col := range c.Columns {
+				if !slices.Contains(header, col) {
+					t.Errorf("%s: column %s described but not in the header %v", tab.File, col, header)
+				}
+			}
+			units[tab.File+":"+c.Columns[0]] = c.Frame + " " + c.Units + fmt.Sprint(c.VoxelUM)
+		}
+	}
+	for key, want := range map[string]string{
+		CandidatesFile + ":x":         "target voxel[0.008 0.008 0.04]",
+		CellsFile + ":x":              "source um[]",
+		LandmarksFile + ":target_x":   "target voxel[0.008 0.008 0.04]",
+		TruthCellsFile + ":true_x_um": "target um[]",
+	} {
+		if units[key] != want {
+			t.Errorf("%s: %q, want %q", key, units[key], want)
 		}
 	}
 }

@@ -1,6 +1,7 @@
 package suggest
 
 import (
+	"ferry/progress"
 	"math"
 	"runtime"
 	"sort"
@@ -177,7 +178,7 @@ const leaders = 8
 // set 1e-9 of itself above the best median so that rounding can never drop
 // a candidate that ties: the choice is the one a full scoring of all
 // candidates makes.
-func (s *scalarSearch) run(n int) []int {
+func (s *scalarSearch) run(n int, rep progress.Reporter) []int {
 	var picks []int
 	scores := make([]score, len(s.cand))
 	proxy := make([]float64, len(s.cand))
@@ -248,6 +249,7 @@ func (s *scalarSearch) run(n int) []int {
 		j := best(scores)
 		s.add(j)
 		picks = append(picks, j)
+		rep.Add(1)
 	}
 	return picks
 }
@@ -365,7 +367,7 @@ func (b *blockSearch) cross(x transform.Vec, us [][]transform.Mat, i, j int) tra
 	return c
 }
 
-func (b *blockSearch) run(n int) []int {
+func (b *blockSearch) run(n int, rep progress.Reporter) []int {
 	var picks []int
 	scores := make([]score, len(b.cand))
 	for range n {
@@ -394,6 +396,7 @@ func (b *blockSearch) run(n int) []int {
 		}
 		b.add(j)
 		picks = append(picks, j)
+		rep.Add(1)
 	}
 	return picks
 }

@@ -2,6 +2,7 @@ package suggest
 
 import (
 	"errors"
+	"ferry/progress"
 	"fmt"
 	"math"
 	"sort"
@@ -34,6 +35,9 @@ type Options struct {
 	// CellSD, when not nil, is the cells' own localisation error (µm per
 	// axis, one standard deviation), as for `ferry map --cell-sd`.
 	CellSD *transform.Vec
+	// Progress, when not nil, hears of each landmark chosen: each one
+	// weighs every candidate location against the cells.
+	Progress progress.Reporter
 }
 
 // Suggestion is one suggested landmark.
@@ -155,13 +159,16 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 		sub[k] = cells[i]
 	}
 	var chosen []int
+	rep := progress.Of(opt.Progress)
+	rep.Step(fmt.Sprintf("choosing %d of %d locations for %d cells", n, len(res.Candidates), len(search)), n)
 	if sp, ok := transform.AsScalar(cp); ok {
 		s := newScalarSearch(sp, u.NoiseFactor, model.subset(search), sub, res.Candidates)
-		chosen = s.run(n)
+		chosen = s.run(n, rep)
 	} else {
 		s := newBlockSearch(cp, u.NoiseFactor, model.subset(search), sub, res.Candidates)
-		chosen = s.run(n)
+		chosen = s.run(n, rep)
 	}
+	rep.Finish()
 
 	// The radii reported, exactly, over all cells.
 	zs := make([]transform.Vec, len(chosen))

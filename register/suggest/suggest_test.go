@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/register"
 	"ferry/register/simulate"
 	"ferry/transform"
@@ -306,13 +307,17 @@ func TestSuggestMonotone(t *testing.T) {
 		t.Run(fmt.Sprintf("%d-D %s sd=%t where=%t", tc.dim, tc.model, tc.sd != nil, tc.where), func(t *testing.T) {
 			p, cells := synthetic(uint64(tc.n), tc.dim, tc.n, 150)
 			f, _ := fitFile(t, p, register.Settings{Model: tc.model, Smoothing: register.Smoothing{Auto: true}})
-			opt := Options{N: 8, CellSD: tc.sd}
+			var rec progress.Recorder
+			opt := Options{N: 8, CellSD: tc.sd, Progress: &rec}
 			if tc.where {
 				_, opt.Candidates = synthetic(5, tc.dim, 0, 300)
 			}
 			res, err := Suggest(f, cells, opt)
 			if err != nil {
 				t.Fatal(err)
+			}
+			if rec.Done() != len(res.Suggestions) || rec.Finished() != 1 {
+				t.Errorf("progress: %d landmarks chosen reported for %d suggestions", rec.Done(), len(res.Suggestions))
 			}
 			if len(res.Suggestions) != opt.N {
 				t.Fatalf("%d suggestions, want %d", len(res.Suggestions), opt.N)
@@ -376,13 +381,13 @@ func TestSearchAgreesWithSequence(t *testing.T) {
 			var got []transform.Mat
 			if sp, ok := transform.AsScalar(cp); ok {
 				s := newScalarSearch(sp, u.NoiseFactor, m, cells, cand)
-				chosen = s.run(6)
+				chosen = s.run(6, progress.None)
 				for _, v := range s.t {
 					got = append(got, scalarMat(v, 3))
 				}
 			} else {
 				s := newBlockSearch(cp, u.NoiseFactor, m, cells, cand)
-				chosen = s.run(6)
+				chosen = s.run(6, progress.None)
 				got = s.fx
 			}
 			var zs []transform.Vec
@@ -546,9 +551,9 @@ func TestWrite(t *testing.T) {
 		voxel bool
 		want  string
 	}{
-		{"3-D grid", 3, false, false, "rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status"},
-		{"2-D grid", 2, false, false, "rank,x,y,target_x,target_y,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,status"},
-		{"3-D where in voxels", 3, true, true, "rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,where_id,depth_class"},
+		{"3-D grid", 3, false, false, "rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,source_x_um,source_y_um,source_z_um,target_x_um,target_y_um,target_z_um"},
+		{"2-D grid", 2, false, false, "rank,x,y,target_x,target_y,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,status,source_x_um,source_y_um,target_x_um,target_y_um"},
+		{"3-D where in voxels", 3, true, true, "rank,x,y,z,target_x,target_y,target_z,r95_after_um,gain_um,mean_r95_after_um,target_r95_um,target_sd_x_um,target_sd_y_um,target_sd_z_um,status,source_x_um,source_y_um,source_z_um,target_x_um,target_y_um,target_z_um,where_id,depth_class"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			p, cells := synthetic(4, tc.dim, 25, 50)
@@ -579,16 +584,13 @@ func TestWrite(t *testing.T) {
 				if run == 0 {
 					first = b.Bytes()
 					lines := strings.Split(strings.TrimSpace(b.String()), "\n")
-					if !strings.HasPrefix(lines[0], "# ferry ") || !strings.Contains(lines[0], "suggest") {
-						t.Errorf("first line %q is not the provenance", lines[0])
+					if lines[0] != tc.want {
+						t.Errorf("header\n%s\nwant\n%s", lines[0], tc.want)
 					}
-					if lines[1] != tc.want {
-						t.Errorf("header\n%s\nwant\n%s", lines[1], tc.want)
-					}
-					if len(lines) != 2+len(res.Suggestions) {
+					if len(lines) != 1+len(res.Suggestions) {
 						t.Errorf("%d lines for %d suggestions", len(lines), len(res.Suggestions))
 					}
-					row := strings.Split(lines[2], ",")
+					row := strings.Split(lines[1], ",")
 					if row[0] != "1" {
 						t.Errorf("first row has rank %q", row[0])
 					}
@@ -600,6 +602,21 @@ func TestWrite(t *testing.T) {
 					}
 					if row[1] != formatNumber(src[0]) || row[1+tc.dim] != formatNumber(dst[0]) {
 						t.Errorf("first row %v: want x %s and target_x %s", row, formatNumber(src[0]), formatNumber(dst[0]))
+					}
+					// The micrometre columns hold the positions in µm
+					// whatever the units of x and target_x.
+					um := strings.Split(lines[0], ",")
+					for k, name := range um {
+						switch name {
+						case "source_x_um":
+							if row[k] != formatNumber(s.Source[0]) {
+								t.Errorf("source_x_um %s, want %s", row[k], formatNumber(s.Source[0]))
+							}
+						case "target_x_um":
+							if row[k] != formatNumber(s.Target[0]) {
+								t.Errorf("target_x_um %s, want %s", row[k], formatNumber(s.Target[0]))
+							}
+						}
 					}
 					if tc.where {
 						if want := out.Where.Points[s.Candidate].ID; row[len(row)-2] != want {
@@ -660,7 +677,7 @@ func TestPruningChoosesAsFullScoring(t *testing.T) {
 			sp, _ := transform.AsScalar(cp)
 			_, cand := synthetic(32, 3, 0, 600)
 			m := newCellModel(f.Transform, u, cells, tc.sd)
-			got := newScalarSearch(sp, u.NoiseFactor, m, cells, cand).run(6)
+			got := newScalarSearch(sp, u.NoiseFactor, m, cells, cand).run(6, progress.None)
 			ref := newScalarSearch(sp, u.NoiseFactor, m, cells, cand)
 			r := make([]float64, len(cells))
 			var want []int

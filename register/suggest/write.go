@@ -1,8 +1,8 @@
 package suggest
 
 import (
+	"context"
 	"encoding/csv"
-	"fmt"
 	"io"
 	"math"
 	"strconv"
@@ -38,6 +38,11 @@ func (r *Result) columns(out Output) []string {
 		h = append(h, "target_sd_"+a+"_um")
 	}
 	h = append(h, "status")
+	for _, side := range []string{register.FrameSource, register.FrameTarget} {
+		for _, a := range axes {
+			h = append(h, side+"_"+a+"_um")
+		}
+	}
 	if out.Where != nil {
 		h = append(h, "where_id")
 		h = append(h, out.Where.ExtraColumns...)
@@ -45,17 +50,40 @@ func (r *Result) columns(out Output) []string {
 	return h
 }
 
-// WriteCSV writes the suggestions as a table: a leading # provenance line,
-// then rank, the source position x, y, z, the predicted target position
+// coordinates are the frames and units of the table's position columns.
+func (r *Result) coordinates(out Output) []register.Coordinates {
+	axes := []string{"x", "y", "z"}[:r.Dim]
+	named := func(prefix, suffix string) []string {
+		c := make([]string, len(axes))
+		for k, a := range axes {
+			c[k] = prefix + a + suffix
+		}
+		return c
+	}
+	return []register.Coordinates{
+		register.CoordinatesIn(named("", ""), register.FrameSource, out.SourceVoxel),
+		register.CoordinatesIn(named("target_", ""), register.FrameTarget, out.TargetVoxel),
+		register.CoordinatesIn(named("source_", "_um"), register.FrameSource, nil),
+		register.CoordinatesIn(named("target_", "_um"), register.FrameTarget, nil),
+	}
+}
+
+// WriteTable writes the suggestions to path with their sidecar (see
+// register.Sidecar), whole or not at all.
+func (r *Result) WriteTable(ctx context.Context, path string, out Output) error {
+	return register.WriteTable(ctx, path, out.Provenance, r.coordinates(out), func(w io.Writer) error {
+		return r.WriteCSV(w, out)
+	})
+}
+
+// WriteCSV writes the suggestions as a table, header row first: rank, the source position x, y, z, the predicted target position
 // target_x, target_y, target_z, r95_after_um (the cells' median r95 once
 // suggestions 1 to rank are added), gain_um (its drop due to this one),
 // mean_r95_after_um, target_r95_um and target_sd_*_um (the uncertainty of
-// the predicted target), status, and with a --where file its id
+// the predicted target), status, both positions again in micrometres
+// (source_x_um…, target_x_um…), and with a --where file its id
 // (where_id) and extra columns. A 2-D result has no z columns.
 func (r *Result) WriteCSV(w io.Writer, out Output) error {
-	if _, err := fmt.Fprintf(w, "# %s\n", out.Provenance.Line()); err != nil {
-		return err
-	}
 	cw := csv.NewWriter(w)
 	if err := cw.Write(r.columns(out)); err != nil {
 		return err
@@ -74,6 +102,11 @@ func (r *Result) WriteCSV(w io.Writer, out Output) error {
 			row = append(row, formatNumber(s.TargetSD[k]))
 		}
 		row = append(row, s.Status)
+		for _, v := range []transform.Vec{s.Source, s.Target} {
+			for k := range r.Dim {
+				row = append(row, formatNumber(v[k]))
+			}
+		}
 		if out.Where != nil {
 			p := out.Where.Points[s.Candidate]
 			row = append(row, p.ID)

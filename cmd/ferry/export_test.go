@@ -1,0 +1,50 @@
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// export writes its files and prints the sampling error; bad flags and a
+// grid too fine for the machine are refused with nothing written.
+func TestExportCommand(t *testing.T) {
+	fx := newFixture(t)
+	tps := filepath.Join(fx.dir, "tps.json")
+	mustSucceed(t, "fit", fx.landmarks, "--model", "tps", "-o", tps)
+	mapped := filepath.Join(fx.dir, "mapped.csv")
+	mustSucceed(t, "map", tps, fx.cells, "-o", mapped)
+	out := filepath.Join(t.TempDir(), "export")
+	o := mustSucceed(t, "export", tps, "--mapped", mapped, "--target-voxel", "0.5,0.5,1", "--spacing", "25", "-o", out)
+	for _, want := range []string{"Affine part", "Sampling error", "TIFF x + D(x)", "Zarr A·(x + d(x)) + t", "Point list: 30 cells"} {
+		if !strings.Contains(o.stdout, want) {
+			t.Errorf("output lacks %q:\n%s", want, o.stdout)
+		}
+	}
+	for _, f := range []string{"export.json", "affine_um.txt", "displacement_um.tif", "transform.zarr/zarr.json", "points.csv", "points.csv.json"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Errorf("%s: %v", f, err)
+		}
+	}
+	// Without a target voxel size anywhere the point list cannot be made.
+	dir := t.TempDir()
+	for _, tc := range []struct {
+		args []string
+		want []string
+	}{
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--spacing", "0"}, []string{"--spacing", "positive"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--spacing", "1,2"}, []string{"--spacing", "2 numbers"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--margin", "-3"}, []string{"--margin"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--spacing", "0.01"}, []string{"more than 20000000 samples", "--spacing"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--mapped", mapped}, []string{"--target-voxel"}},
+		{[]string{"export", tps, "-o", tps}, []string{"is a file, want a folder"}},
+		{[]string{"export", tps}, []string{"-o", "required"}},
+	} {
+		before := snapshot(t, dir)
+		oneLine(t, ferry(t, tc.args...), tc.want...)
+		if diff := sameFolder(before, snapshot(t, dir)); diff != "" {
+			t.Errorf("%v: the folder changed: %s", tc.args, diff)
+		}
+	}
+}

@@ -1,0 +1,51 @@
+package main
+
+import (
+	"fmt"
+	"strings"
+
+	"github.com/spf13/cobra"
+)
+
+// usageError is a mistake on the command line: its message, then the
+// command's usage line, so that the user sees at once what to type.
+func usageError(cmd *cobra.Command, format string, a ...any) error {
+	return fmt.Errorf("%s: %s\nusage: %s", cmd.Name(), fmt.Sprintf(format, a...), cmd.UseLine())
+}
+
+// exactArgs takes exactly the arguments named, and names the missing ones
+// (or says how many are too many) with the usage line.
+func exactArgs(names ...string) cobra.PositionalArgs {
+	return func(cmd *cobra.Command, args []string) error {
+		switch {
+		case len(args) < len(names):
+			return usageError(cmd, "missing %s", strings.Join(names[len(args):], " and "))
+		case len(args) > len(names):
+			return usageError(cmd, "%d arguments given (%s), want %d (%s)", len(args), strings.Join(args, " "), len(names), strings.Join(names, " "))
+		}
+		return nil
+	}
+}
+
+// maxArgs takes at most the arguments named.
+func maxArgs(names ...string) cobra.PositionalArgs {
+	return func(cmd *cobra.Command, args []string) error {
+		if len(args) > len(names) {
+			return usageError(cmd, "%d arguments given (%s), want at most %d (%s)", len(args), strings.Join(args, " "), len(names), strings.Join(names, " "))
+		}
+		return nil
+	}
+}
+
+// noArgs takes no argument.
+func noArgs(cmd *cobra.Command, args []string) error {
+	if len(args) > 0 {
+		return usageError(cmd, "takes no arguments, got %s", strings.Join(args, " "))
+	}
+	return nil
+}
+
+// flagError adds the usage line to a flag that cobra could not parse.
+func flagError(cmd *cobra.Command, err error) error {
+	return usageError(cmd, "%v", err)
+}
