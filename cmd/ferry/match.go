@@ -75,7 +75,7 @@ the nearest one. See docs/matching.md for the method.`,
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
 			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				return match.WriteMatches(w, prov, cells, cands, res)
+				return match.WriteMatches(w, prov, cells, cands, res, job.file.TargetVoxel)
 			}); err != nil {
 				return err
 			}

@@ -193,7 +193,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
 		Flags: mprov.Flags}
 	if err := outfile.Write(ctx, f.Matches, func(w io.Writer) error {
-		return match.WriteMatches(w, xprov, cells, cands, res)
+		return match.WriteMatches(w, xprov, cells, cands, res, tf.TargetVoxel)
 	}); err != nil {
 		return nil, err
 	}
@@ -299,8 +299,8 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	for i, m := range mapped {
 		pos[i], reach[i], status[i] = m.Pos, m.R95, m.Status
 	}
-	marks := imaging.PlaneMarks(pos, reach, status, grid)
-	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{})
+	marks := imaging.PlaneMarks(pos, reach, status, nil, grid)
+	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{PixelUM: ip.TargetVoxelUM[0]})
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err
 	}
