@@ -44,8 +44,9 @@ func CoordinateColumns(dim int, voxel *transform.Vec) []string {
 // status, then p_none (the posterior probability that the cell has no
 // counterpart among the candidates), the target coordinates of the mapped
 // cell and of the candidate with the cell's r95_um (CoordinateColumns;
-// empty where there is no candidate or no mapped position) and the cells'
-// own extra columns. Probabilities have four decimals; distances and
+// empty where there is no candidate or no mapped position), decision
+// ("accepted" or "none" where a person's decision settled the cell, see
+// Options.Decisions) and the cells' own extra columns. Probabilities have four decimals; distances and
 // coordinates are written to the tenth of a nanometre. res is Match's
 // result for cells and cands, in their order; cands holds the candidates as
 // read, so their coordinates are written as they were given. voxel, when
@@ -60,7 +61,7 @@ func WriteMatches(w io.Writer, prov register.Provenance, cells *landmarks.PointS
 	}
 	cw := csv.NewWriter(w)
 	dim := cells.Dim
-	header := append(append(append([]string(nil), Columns...), CoordinateColumns(dim, voxel)...), cells.ExtraColumns...)
+	header := append(append(append(append([]string(nil), Columns...), CoordinateColumns(dim, voxel)...), "decision"), cells.ExtraColumns...)
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -99,7 +100,7 @@ func WriteMatches(w io.Writer, prov register.Provenance, cells *landmarks.PointS
 		if mapped && r.Mapped.R95 > 0 && !math.IsInf(r.Mapped.R95, 0) {
 			r95 = formatCoord(r.Mapped.R95)
 		}
-		row = append(row, r95)
+		row = append(row, r95, r.Decision)
 		row = append(row, c.Extra...)
 		if err := cw.Write(row); err != nil {
 			return err

@@ -38,10 +38,10 @@ func TestWriteMatches(t *testing.T) {
 	// An unmatched row names no candidate, so it has no p_match: p_none
 	// says how likely no counterpart is.
 	want := "# " + prov.Line() + "\n" +
-		"id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_um,cell_y_um,cell_z_um,candidate_x_um,candidate_y_um,candidate_z_um,r95_um,osi,note\n" +
-		"c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,2.0000,4.0000,6.0000,1.0000,1.0000,1.0000,2.5000,0.5,\"a, b\"\n" +
-		"c2,n1,0.6000,3.0000,,0.0000,ambiguous,0.4000,0.0000,1.0000,2.0000,0.0000,0.0000,0.0000,3.0000,0.25,\n" +
-		"c3,,,,,0.0000,unmatched,1.0000,,,,,,,,0.75,x\n"
+		"id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_um,cell_y_um,cell_z_um,candidate_x_um,candidate_y_um,candidate_z_um,r95_um,decision,osi,note\n" +
+		"c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,2.0000,4.0000,6.0000,1.0000,1.0000,1.0000,2.5000,,0.5,\"a, b\"\n" +
+		"c2,n1,0.6000,3.0000,,0.0000,ambiguous,0.4000,0.0000,1.0000,2.0000,0.0000,0.0000,0.0000,3.0000,,0.25,\n" +
+		"c3,,,,,0.0000,unmatched,1.0000,,,,,,,,,0.75,x\n"
 	if b.String() != want {
 		t.Errorf("got\n%s\nwant\n%s", b.String(), want)
 	}
@@ -58,10 +58,10 @@ func TestWriteMatches(t *testing.T) {
 		t.Fatal(err)
 	}
 	lines := strings.Split(b.String(), "\n")
-	if got, want := lines[1], "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_vox,cell_y_vox,cell_z_vox,candidate_x_vox,candidate_y_vox,candidate_z_vox,r95_um,osi,note"; got != want {
+	if got, want := lines[1], "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_vox,cell_y_vox,cell_z_vox,candidate_x_vox,candidate_y_vox,candidate_z_vox,r95_um,decision,osi,note"; got != want {
 		t.Errorf("voxel header %q, want %q", got, want)
 	}
-	if got, want := lines[2], "c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,1.0000,1.0000,12.0000,1.0000,1.0000,1.0000,2.5000,0.5,\"a, b\""; got != want {
+	if got, want := lines[2], "c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,1.0000,1.0000,12.0000,1.0000,1.0000,1.0000,2.5000,,0.5,\"a, b\""; got != want {
 		t.Errorf("voxel row %q, want %q", got, want)
 	}
 
