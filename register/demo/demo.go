@@ -38,8 +38,16 @@ type Options struct {
 type Files struct {
 	simulate.Files
 	Transform, Mapped, Matches string
-	Extra                      []string
+	// SourceStack and EMStack are the images review looks at;
+	// SourceVoxel the in vivo stack's voxel size (µm).
+	SourceStack, EMStack string
+	SourceVoxel          transform.Vec
+	Extra                []string
 }
+
+// emStackVoxel is the voxel size of the demo's EM stack: coarse enough
+// to draw in a few seconds, fine enough to see nuclei of several µm.
+func emStackVoxel() transform.Vec { return transform.Vec{2, 2, 2} }
 
 // Outcome is what the demo found, set against the truth.
 type Outcome struct {
@@ -233,6 +241,20 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	f.Extra = append(f.Extra, stackPath, planePath, overlay.path)
 	out.OverlayMarks, out.OverlayOutside = overlay.marks, overlay.outside
 
+	// The EM block as a stack of 2 µm voxels, for ferry review.
+	step("drawing the EM stack for review")
+	emIP := simulate.ImageParams{TargetVoxelUM: emStackVoxel()}
+	em, err := scen.EMStack(emIP)
+	if err != nil {
+		return nil, err
+	}
+	f.EMStack = filepath.Join(o.Dir, "em_stack.tif")
+	if err := imaging.WriteTIFF(f.EMStack, em); err != nil {
+		return nil, err
+	}
+	f.SourceStack, f.SourceVoxel = stackPath, ip.SourceVoxelUM
+	f.Extra = append(f.Extra, f.EMStack)
+
 	step("writing the quality report")
 	reportPath := filepath.Join(o.Dir, "report.html")
 	if err := writeReport(ctx, reportPath, f); err != nil {
@@ -411,6 +433,10 @@ func (o *Outcome) Print(w io.Writer) {
 		fmt.Fprintf(w, "   %s\n", p)
 	}
 	fmt.Fprintf(w, "   truth: %s, %s\n", o.Files.TruthCells, o.Files.TruthLandmarks)
+	if o.Files.EMStack != "" {
+		fmt.Fprintln(w, "To confirm the matches by eye in a browser, one cell at a time:")
+		fmt.Fprintf(w, "   %s\n", ReviewCommand(o.Files))
+	}
 	fmt.Fprintf(w, "Done in %.1f s. Results are for research: check them by eye before tracing.\n", o.Elapsed.Seconds())
 }
 
@@ -455,4 +481,12 @@ func (i *indenter) Write(p []byte) (int, error) {
 func IsTerminal(f *os.File) bool {
 	info, err := f.Stat()
 	return err == nil && info.Mode()&os.ModeCharDevice != 0
+}
+
+// ReviewCommand is the ferry review command line for the demo's files.
+func ReviewCommand(f Files) string {
+	v, e := f.SourceVoxel, emStackVoxel()
+	return fmt.Sprintf("ferry review %s --transform %s --cells %s --candidates %s --source-stack %s --source-voxel %g,%g,%g --target-stack %s --target-voxel %g,%g,%g --decisions %s",
+		f.Matches, f.Transform, f.Cells, f.Candidates, f.SourceStack, v[0], v[1], v[2], f.EMStack, e[0], e[1], e[2],
+		filepath.Join(filepath.Dir(f.Matches), "decisions.csv"))
 }

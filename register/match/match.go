@@ -145,6 +145,16 @@ type Result struct {
 	// Decision is "accepted" or "none" when Options.Decisions settled the
 	// cell, empty otherwise.
 	Decision string
+	// Options are the candidates weighed for the cell with their marginal
+	// posterior probabilities under the one-to-one constraint, by
+	// candidate index; those of negligible probability may be missing.
+	Options []Option
+}
+
+// Option is one candidate of a cell and its posterior probability.
+type Option struct {
+	Candidate int
+	P         float64
 }
 
 // Match maps each cell (source µm) with m and assigns it at most one of the
@@ -252,6 +262,7 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 		best, bestP := -1, 0.0
 		for k := assoc.start[r]; k < assoc.start[r+1]; k++ {
 			rank, p := assoc.rank[k], marg.edge[k]
+			out.Options = append(out.Options, Option{Candidate: candOrder[rank], P: p})
 			if rank == chosen[r] {
 				out.Candidate = candOrder[rank]
 				out.PMatch = p

@@ -222,3 +222,26 @@ func tube(a, b transform.Vec, r float64, blur, vox transform.Vec, dims [3]int, p
 
 // edge is a smooth step from 1 inside (d < 0) to 0 outside over width w.
 func edge(d, w float64) float64 { return 0.5 * math.Erfc(d/(w*math.Sqrt2)) }
+
+// EMStack draws the EM block as a stack of sections, page k at target
+// depth k·ip.TargetVoxelUM[2], each as EMPlane draws it: the EM export a
+// user would review matches against.
+func (s *Scenario) EMStack(ip ImageParams) (*imaging.Stack, error) {
+	v := ip.TargetVoxelUM
+	depth := int(s.EMBlock.Max[2]/v[2]) + 1
+	var st *imaging.Stack
+	for k := range depth {
+		ip.TargetZ = k
+		pl, err := s.EMPlane(ip)
+		if err != nil {
+			return nil, err
+		}
+		if st == nil {
+			if st, err = imaging.NewStack(pl.Width, pl.Height, depth, 8); err != nil {
+				return nil, fmt.Errorf("simulate: EM stack: %w", err)
+			}
+		}
+		copy(st.PageData(k), pl.Data)
+	}
+	return st, nil
+}

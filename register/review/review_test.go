@@ -1,0 +1,76 @@
+package review
+
+import (
+	"context"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"ferry/landmarks"
+	"ferry/register/report"
+)
+
+func TestOrder(t *testing.T) {
+	cells, err := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,0,0,0\nc2,0,0,0\nc3,0,0,0\nc4,0,0,0\nc5,0,0,0\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	nan := math.NaN()
+	ms := []report.Match{
+		{ID: "c1", Candidate: "n1", PMatch: 0.99, PNone: 0.01, Status: report.MatchMatched},
+		{ID: "c2", Candidate: "n2", PMatch: 0.7, PNone: 0.2, Status: report.MatchAmbiguous},
+		{ID: "c3", PMatch: nan, PNone: 0.6, Status: report.MatchUnmatched},
+		{ID: "c4", Candidate: "n4", PMatch: 0.55, PNone: 0.4, Status: report.MatchAmbiguous},
+	}
+	got := Order(cells, ms)
+	want := []int{3, 1, 2, 0, 4} // ambiguous by p, then the rest by p, then c5 absent
+	for i := range want {
+		if got[i] != want[i] {
+			t.Fatalf("order %v, want %v", got, want)
+		}
+	}
+}
+
+// Each decision rewrites the whole file at once, replacing the cell's
+// earlier row, and the file reads back as written.
+func TestDecideWritesAtOnce(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "decisions.csv")
+	cells, _ := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,0,0,0\nc2,0,0,0\n"))
+	cands, _ := landmarks.ParsePoints("cands.csv", "candidates", strings.NewReader("id,x,y,z\nn1,0,0,0\nn2,0,0,0\n"))
+	s := &Session{in: Inputs{Cells: cells, Candidates: cands, DecisionsPath: path},
+		cellAt: map[string]int{"c1": 0, "c2": 1}, candAt: map[string]int{"n1": 0, "n2": 1},
+		decided: &landmarks.DecisionSet{Path: path}, now: func() time.Time { return time.Date(2026, 3, 1, 10, 0, 0, 0, time.UTC) }}
+	ctx := context.Background()
+	steps := []struct {
+		id      string
+		verdict landmarks.Verdict
+		cand    string
+		want    string
+	}{
+		{"c1", landmarks.Accepted, "n1", "c1,n1,accepted,2026-03-01T10:00:00Z,\n"},
+		{"c2", landmarks.NoCounterpart, "", "c1,n1,accepted,2026-03-01T10:00:00Z,\nc2,,none,2026-03-01T10:00:00Z,\n"},
+		{"c1", landmarks.Accepted, "n2", "c2,,none,2026-03-01T10:00:00Z,\nc1,n2,accepted,2026-03-01T10:00:00Z,\n"},
+	}
+	for _, st := range steps {
+		if err := s.Decide(ctx, st.id, st.verdict, st.cand, ""); err != nil {
+			t.Fatal(err)
+		}
+		data, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if want := "id,candidate,decision,decided_at,note\n" + st.want; string(data) != want {
+			t.Errorf("after %s %s: file\n%s\nwant\n%s", st.id, st.verdict, data, want)
+		}
+	}
+	if err := s.Decide(ctx, "c2", landmarks.Accepted, "n2", ""); err == nil {
+		t.Error("a candidate accepted for two cells")
+	}
+	if _, err := landmarks.ReadDecisions(path); err != nil {
+		t.Fatal(err)
+	}
+}
