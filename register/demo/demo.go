@@ -41,8 +41,10 @@ type Files struct {
 	// SourceStack and EMStack are the images review looks at;
 	// SourceVoxel the in vivo stack's voxel size (µm).
 	SourceStack, EMStack string
-	SourceVoxel          transform.Vec
-	Extra                []string
+	// SourceVoxel and EMVoxel are the stacks' voxel sizes (µm), CellSD
+	// the cells' localisation error (µm per axis) that map and match used.
+	SourceVoxel, EMVoxel, CellSD transform.Vec
+	Extra                        []string
 }
 
 // emStackVoxel is the voxel size of the demo's EM stack: coarse enough
@@ -252,7 +254,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err := imaging.WriteTIFF(f.EMStack, em); err != nil {
 		return nil, err
 	}
-	f.SourceStack, f.SourceVoxel = stackPath, ip.SourceVoxelUM
+	f.SourceStack, f.SourceVoxel, f.EMVoxel, f.CellSD = stackPath, ip.SourceVoxelUM, emIP.TargetVoxelUM, cellSD
 	f.Extra = append(f.Extra, f.EMStack)
 
 	step("writing the quality report")
@@ -485,8 +487,8 @@ func IsTerminal(f *os.File) bool {
 
 // ReviewCommand is the ferry review command line for the demo's files.
 func ReviewCommand(f Files) string {
-	v, e := f.SourceVoxel, emStackVoxel()
-	return fmt.Sprintf("ferry review %s --transform %s --cells %s --candidates %s --source-stack %s --source-voxel %g,%g,%g --target-stack %s --target-voxel %g,%g,%g --decisions %s",
-		f.Matches, f.Transform, f.Cells, f.Candidates, f.SourceStack, v[0], v[1], v[2], f.EMStack, e[0], e[1], e[2],
+	v, e, c := f.SourceVoxel, f.EMVoxel, f.CellSD
+	return fmt.Sprintf("ferry review %s --transform %s --cells %s --candidates %s --cell-sd %g,%g,%g --source-stack %s --source-voxel %g,%g,%g --target-stack %s --target-voxel %g,%g,%g --decisions %s",
+		f.Matches, f.Transform, f.Cells, f.Candidates, c[0], c[1], c[2], f.SourceStack, v[0], v[1], v[2], f.EMStack, e[0], e[1], e[2],
 		filepath.Join(filepath.Dir(f.Matches), "decisions.csv"))
 }

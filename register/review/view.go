@@ -149,6 +149,7 @@ func (s *Session) Cell(k int) (*CellView, error) {
 	r := s.results[i]
 	mp := s.mapped[i]
 	v := &CellView{Index: k, Total: len(s.order), ID: c.ID, MappedStatus: mp.Status, R95: finite(mp.R95),
+		Candidates: []Candidate{}, Neighbours: []Neighbour{},
 		PMatch: finite(m.PMatch), PNone: finite(m.PNone), Proposed: m.Candidate, Status: m.Status}
 	if !inTable {
 		v.Status, v.PNone = "not in the matches", finite(r.PNone)

@@ -92,7 +92,10 @@
       if (chosen) el("rect", { x: p[0] - r - 3, y: p[1] - r - 3, width: 2 * r + 6, height: 2 * r + 6, class: "m-chosen" }, g);
       if (!far && (cd.p > 0 || cd.proposed)) {
         const t = el("text", { x: p[0] + r + 2, y: p[1] - r, class: cd.proposed ? "t-proposed" : "t-cand" }, g);
-        t.textContent = cd.id + " " + fmtP(cd.p);
+        // How far the nucleus lies off the plane shown, when it is.
+        const axis = xy ? "z" : "y";
+        const offText = Math.abs(off) >= 1 ? " " + axis + (off > 0 ? "+" : "−") + Math.abs(off).toFixed(1) : "";
+        t.textContent = cd.id + " " + fmtP(cd.p) + offText;
       }
       if (!cd.taken_by) g.addEventListener("click", () => decide("accepted", cd.id));
     }
@@ -180,6 +183,8 @@
     }
     place = Math.max(0, k);
     cell = await getJSON("/api/cell?k=" + place);
+    cell.candidates = cell.candidates || [];
+    cell.neighbours = cell.neighbours || [];
     document.body.dataset.place = String(place);
     document.body.dataset.cell = cell.id;
     $("cell-id").textContent = cell.id;
