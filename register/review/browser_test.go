@@ -238,7 +238,6 @@ func TestReviewInBrowser(t *testing.T) {
 	}
 }
 
-
 // takeScreenshots writes the page at two window sizes into dir (the docs
 // folder when FERRY_UPDATE_SCREENSHOTS=docs is run from the repository).
 func takeScreenshots(t *testing.T, browser context.Context, base, dir string) {
@@ -267,4 +266,3 @@ func takeScreenshots(t *testing.T, browser context.Context, base, dir string) {
 		}
 	}
 }
-
