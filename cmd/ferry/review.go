@@ -72,7 +72,7 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			}
 			var offset transform.Vec
 			if dstOffset != "" {
-				if offset, err = landmarks.ParseTriple("--target-offset", dstOffset, 3); err != nil {
+				if offset, err = landmarks.ParsePosition("--target-offset", dstOffset, 3); err != nil {
 					return err
 				}
 			}

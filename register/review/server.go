@@ -9,6 +9,7 @@ import (
 	"net"
 	"net/http"
 	"strconv"
+	"strings"
 	"time"
 
 	"ferry/landmarks"
@@ -91,9 +92,32 @@ func (s *Session) Handler() http.Handler {
 	return guard(mux)
 }
 
-// guard sets the headers that keep the page to its own server.
+// guard sets the headers that keep the page to its own server, and refuses
+// requests that another site could have made the browser send: a Host that
+// is not a numeric address or localhost (a name of someone else's that
+// resolves to this machine), and a decision that is not JSON (which a form
+// on another page cannot send without the browser asking first) or comes
+// from another origin.
 func guard(h http.Handler) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		host, _, err := net.SplitHostPort(r.Host)
+		if err != nil {
+			host = r.Host
+		}
+		if net.ParseIP(strings.Trim(host, "[]")) == nil && host != "localhost" {
+			http.Error(w, "review answers requests to its numeric address or localhost only", http.StatusForbidden)
+			return
+		}
+		if r.Method == http.MethodPost {
+			if origin := r.Header.Get("Origin"); origin != "" && origin != "http://"+r.Host {
+				http.Error(w, "a decision from another origin", http.StatusForbidden)
+				return
+			}
+			if ct := r.Header.Get("Content-Type"); !strings.HasPrefix(ct, "application/json") {
+				http.Error(w, "want Content-Type application/json", http.StatusUnsupportedMediaType)
+				return
+			}
+		}
 		w.Header().Set("Content-Security-Policy", "default-src 'self'; img-src 'self'; connect-src 'self'; style-src 'self'; script-src 'self'; base-uri 'none'; form-action 'none'")
 		w.Header().Set("X-Content-Type-Options", "nosniff")
 		h.ServeHTTP(w, r)
