@@ -236,7 +236,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, ip, mapped)
+	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, ip, mapped, ids(cells))
 	if err != nil {
 		return nil, err
 	}
@@ -303,7 +303,7 @@ type overlayResult struct {
 // writeOverlay resamples the in vivo stack onto the EM plane through the
 // fitted transform, as ferry overlay does, and marks the mapped cells near
 // the plane.
-func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, ip simulate.ImageParams, mapped []register.Mapped) (overlayResult, error) {
+func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, ip simulate.ImageParams, mapped []register.Mapped, cellIDs []string) (overlayResult, error) {
 	stack, err := imaging.ReadStack(stackPath)
 	if err != nil {
 		return overlayResult{}, err
@@ -323,7 +323,7 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	for i, m := range mapped {
 		pos[i], reach[i], status[i] = m.Pos, m.R95, m.Status
 	}
-	marks := imaging.PlaneMarks(pos, reach, status, nil, grid)
+	marks := imaging.PlaneMarks(pos, reach, status, cellIDs, grid)
 	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{PixelUM: ip.TargetVoxelUM[0]})
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err

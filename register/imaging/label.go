@@ -8,14 +8,33 @@ import (
 
 	"golang.org/x/image/font"
 	"golang.org/x/image/font/basicfont"
+	"golang.org/x/image/font/gofont/gomono"
+	"golang.org/x/image/font/opentype"
 	"golang.org/x/image/math/fixed"
 )
 
+// labelFace is the Go Mono face at 11 pixels, which has µ (x/image's
+// bitmap face has ASCII only). It is parsed on each call: an overlay draws
+// one image, and a package-level face would be shared mutable state.
+func labelFace() font.Face {
+	f, err := opentype.Parse(gomono.TTF)
+	if err == nil {
+		face, err := opentype.NewFace(f, &opentype.FaceOptions{Size: 11, DPI: 72, Hinting: font.HintingFull})
+		if err == nil {
+			return face
+		}
+	}
+	return basicfont.Face7x13
+}
+
 // drawLabel writes text with its baseline's left end at (x, y), in colour c
-// with a one-pixel black outline so that it reads on any ground. The face
-// is x/image's 7 × 13 bitmap face, which covers Latin-1 (µ included).
+// with a one-pixel black outline so that it reads on any ground.
 func drawLabel(img *image.RGBA, x, y int, text string, c Colour) {
-	d := font.Drawer{Dst: img, Face: basicfont.Face7x13}
+	drawLabelWith(labelFace(), img, x, y, text, c)
+}
+
+func drawLabelWith(face font.Face, img *image.RGBA, x, y int, text string, c Colour) {
+	d := font.Drawer{Dst: img, Face: face}
 	d.Src = image.NewUniform(Black)
 	for dy := -1; dy <= 1; dy++ {
 		for dx := -1; dx <= 1; dx++ {

@@ -174,9 +174,10 @@ func Overlay(target *Stack, resampled *Stack, marks []Mark, opt OverlayOptions) 
 	for _, m := range marks {
 		drawMark(img, m, shapes[MarkShapeName(m.Status)].stroke, opt.Colour(m.Status))
 	}
+	face := labelFace()
 	for _, m := range marks {
 		if m.ID != "" && !math.IsNaN(m.X) && !math.IsNaN(m.Y) && math.Abs(m.X) < 1<<30 && math.Abs(m.Y) < 1<<30 {
-			drawLabel(img, int(math.Round(m.X))+opt.MarkSize+3, int(math.Round(m.Y))+4, m.ID, opt.Colour(m.Status))
+			drawLabelWith(face, img, int(math.Round(m.X))+opt.MarkSize+3, int(math.Round(m.Y))+4, m.ID, opt.Colour(m.Status))
 		}
 	}
 	if opt.PixelUM > 0 && !math.IsInf(opt.PixelUM, 0) {
