@@ -107,3 +107,31 @@ func TestResolveAndWriteDecisions(t *testing.T) {
 		}
 	}
 }
+
+// What WriteDecisions writes reads back as the same decisions.
+func FuzzDecisionsRoundTrip(f *testing.F) {
+	f.Add([]byte("id,candidate,decision,decided_at,note,who\nc1,n1,accepted,,\"a, \"\"b\"\"\",x\n\"#c2\",,none,,,\n c3,n2,rejected,2026-03-01T10:00:00Z,,\n"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		set, err := landmarks.ParseDecisions("d.csv", bytes.NewReader(data))
+		if err != nil {
+			return
+		}
+		var b bytes.Buffer
+		if err := WriteDecisions(&b, set); err != nil {
+			t.Fatal(err)
+		}
+		again, err := landmarks.ParseDecisions("d.csv", bytes.NewReader(b.Bytes()))
+		if err != nil {
+			t.Fatalf("written file does not read: %v\n%s", err, b.String())
+		}
+		if len(again.Decisions) != len(set.Decisions) {
+			t.Fatalf("%d decisions read back as %d\n%s", len(set.Decisions), len(again.Decisions), b.String())
+		}
+		for i, d := range set.Decisions {
+			e := again.Decisions[i]
+			if d.ID != e.ID || d.Candidate != e.Candidate || d.Verdict != e.Verdict || d.DecidedAt != e.DecidedAt || strings.TrimLeft(d.Note, " ") != strings.TrimLeft(e.Note, " ") {
+				t.Fatalf("decision %d: %+v read back as %+v\n%s", i, d, e, b.String())
+			}
+		}
+	})
+}
