@@ -70,7 +70,9 @@ func (s *Session) Handler() http.Handler {
 			return
 		}
 		w.Header().Set("Content-Type", "image/png")
-		w.Header().Set("Cache-Control", "max-age=3600")
+		// A place shows another cell in a review of other files on the
+		// same port: never reuse an image.
+		w.Header().Set("Cache-Control", "no-store")
 		w.Write(img)
 	})
 	mux.HandleFunc("POST /api/decide", func(w http.ResponseWriter, r *http.Request) {
