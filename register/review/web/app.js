@@ -186,13 +186,14 @@
     cell.candidates = cell.candidates || [];
     cell.neighbours = cell.neighbours || [];
     document.body.dataset.place = String(place);
+    history.replaceState(null, "", "#cell=" + encodeURIComponent(cell.id));
     document.body.dataset.cell = cell.id;
     $("cell-id").textContent = cell.id;
     const st = $("cell-status");
     st.textContent = cell.status;
     st.className = "badge " + cell.status;
     $("place").textContent = (place + 1) + " of " + cell.total;
-    $("accept").disabled = !cell.proposed;
+    $("accept").firstChild.textContent = cell.proposed ? "Accept proposal " : "Accept: no counterpart ";
     for (const n of ["vivo-xy", "em-xy", "vivo-xz", "em-xz"]) drawPanel(n);
     mix();
     showProposal();
@@ -224,14 +225,17 @@
 
   $("mix").addEventListener("input", mix);
   $("flicker").addEventListener("click", flicker);
-  $("accept").addEventListener("click", () => cell.proposed && decide("accepted", cell.proposed));
+  // Accepting the proposal of an unmatched cell is saying it has no
+  // counterpart.
+  const acceptProposal = () => cell.proposed ? decide("accepted", cell.proposed) : decide("none", "");
+  $("accept").addEventListener("click", acceptProposal);
   $("none").addEventListener("click", () => decide("none", ""));
   $("skip").addEventListener("click", () => load(place + 1));
   $("back").addEventListener("click", () => load(place - 1));
   document.addEventListener("keydown", (e) => {
     if (e.target.tagName === "INPUT" || e.ctrlKey || e.metaKey || e.altKey) return;
     const k = e.key.toLowerCase();
-    if (k === "a" && cell.proposed) decide("accepted", cell.proposed);
+    if (k === "a") acceptProposal();
     else if (k === "n") decide("none", "");
     else if (k === "s" || e.key === "ArrowRight") load(place + 1);
     else if (k === "b" || e.key === "ArrowLeft") load(place - 1);
@@ -245,7 +249,10 @@
   (async function start() {
     try {
       state = await getJSON("/api/state");
-      await load(state.resume);
+      // A link to a cell (#cell=ID) opens it; otherwise resume.
+      const m = /^#cell=(.+)$/.exec(location.hash);
+      const asked = m ? state.order.indexOf(decodeURIComponent(m[1])) : -1;
+      await load(asked >= 0 ? asked : state.resume);
     } catch (e) {
       $("message").textContent = "Cannot load: " + e.message;
     }
