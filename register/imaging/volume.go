@@ -8,8 +8,9 @@ import (
 	"slices"
 )
 
-// Volume is an image stack opened for reading crops: only the pages, and
-// within a TIFF page only the strips or tiles, that a crop needs are read,
+// Volume is an image stack opened for reading crops: only the pages (or a
+// folder's plane files), and within a TIFF page only the strips or tiles,
+// that a crop needs are read,
 // so a stack larger than memory can be looked at piece by piece. It reads
 // what ReadStack reads: a multi-page TIFF, a folder of single-plane TIFF
 // and PNG files in natural name order, or one plane. A Volume is not safe
@@ -137,22 +138,63 @@ func (v *Volume) Crop(x0, y0, z0, w, h, d int) (*Stack, error) {
 				return nil, err
 			}
 			out.Colour = out.Colour || colour
-		} else {
-			p, err := readFile(v.planes[k], true)
-			if err != nil {
-				return nil, err
-			}
-			if p.Width != v.Width || p.Height != v.Height || p.Bits != v.Bits {
-				return nil, fmt.Errorf("imaging: %s: plane %d is %d × %d pixels of %d bits but the first is %d × %d pixels of %d bits; all planes of a stack must agree",
-					v.planes[k], k, p.Width, p.Height, p.Bits, v.Width, v.Height, v.Bits)
-			}
-			for j := win.Min.Y; j < win.Max.Y; j++ {
-				copy(buf[(j-win.Min.Y)*win.Dx():], p.Data[j*p.Width+win.Min.X:j*p.Width+win.Max.X])
-			}
+		} else if err := v.planeWindow(k, win, buf); err != nil {
+			return nil, err
 		}
 		for j := win.Min.Y; j < win.Max.Y; j++ {
 			copy(out.Data[out.Index(win.Min.X-x0, j-y0, k-z0):], buf[(j-win.Min.Y)*win.Dx():(j-win.Min.Y+1)*win.Dx()])
 		}
 	}
 	return out, nil
+}
+
+// planeWindow reads the window win of plane k of a folder (or of a lone
+// plane) into buf: of a TIFF plane only the strips or tiles that meet it, of
+// a PNG the whole plane.
+func (v *Volume) planeWindow(k int, win image.Rectangle, buf []uint16) error {
+	path := v.planes[k]
+	mismatch := func(w, h, bits int) error {
+		return fmt.Errorf("imaging: %s: plane %d is %d × %d pixels of %d bits but the first is %d × %d pixels of %d bits; all planes of a stack must agree",
+			path, k, w, h, bits, v.Width, v.Height, v.Bits)
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		return fmt.Errorf("imaging: %w", err)
+	}
+	defer f.Close()
+	info, err := f.Stat()
+	if err != nil {
+		return fmt.Errorf("imaging: %w", err)
+	}
+	head := make([]byte, 2)
+	if n, _ := f.ReadAt(head, 0); n == 2 && (string(head) == "II" || string(head) == "MM") {
+		tf, first, err := openTIFF(f, info.Size(), path)
+		if err != nil {
+			return err
+		}
+		pages, err := tf.pages(first)
+		if err != nil {
+			return err
+		}
+		if len(pages) != 1 {
+			return fmt.Errorf("imaging: %s: holds %d pages where one plane was wanted", path, len(pages))
+		}
+		p := pages[0]
+		if p.width != v.Width || p.height != v.Height || p.bits != v.Bits {
+			return mismatch(p.width, p.height, p.bits)
+		}
+		_, err = v.dec.decodeWindow(tf, &p, buf, win)
+		return err
+	}
+	p, err := readFile(path, true)
+	if err != nil {
+		return err
+	}
+	if p.Width != v.Width || p.Height != v.Height || p.Bits != v.Bits {
+		return mismatch(p.Width, p.Height, p.Bits)
+	}
+	for j := win.Min.Y; j < win.Max.Y; j++ {
+		copy(buf[(j-win.Min.Y)*win.Dx():], p.Data[j*p.Width+win.Min.X:j*p.Width+win.Max.X])
+	}
+	return nil
 }
