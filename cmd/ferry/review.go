@@ -88,7 +88,7 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			defer dst.Close()
 			s, err := review.NewSession(review.Inputs{
 				Transform: job.file, Mapper: job.mapper, Cells: job.cells, CellPos: job.pos, CellSD: job.cellSD,
-				Candidates: cands, CandidatePos: candPos, Matches: ms,
+				Candidates: cands, CandidatePos: candPos, Matches: ms, MatchesPath: args[0],
 				MatchOptions: match.Options{CandidateSD: candidateSD},
 				Source:       src, Target: dst, SourceVoxel: sv, TargetVoxel: tv, TargetOffset: offset,
 				DecisionsPath: decisions,

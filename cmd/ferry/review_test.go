@@ -69,6 +69,7 @@ func TestReviewInputErrors(t *testing.T) {
 		{with("--target-offset", "1,2"), []string{"--target-offset"}},
 		{with("--source-stack", "/no/such/stack.tif"), []string{"/no/such/stack.tif"}},
 		{append(append([]string(nil), args...), "--listen", ln.Addr().String()), []string{ln.Addr().String(), "in use"}},
+		{with("--cells", writeFile(t, filepath.Join(t.TempDir(), "other.csv"), "id,x,y,z\nx1,100,100,100\n")), []string{"matches.csv", "is not in", "other.csv"}},
 	} {
 		o := ferry(t, tc.args...)
 		oneLine(t, o, tc.want...)

@@ -88,7 +88,7 @@ func demoSession(t *testing.T) (*Session, string) {
 	sd := f.CellSD
 	decisions := filepath.Join(dir, "decisions.csv")
 	s, err := NewSession(Inputs{Transform: tf, Mapper: mapper, Cells: cells, CellPos: pos, CellSD: &sd,
-		Candidates: cands, CandidatePos: candPos, Matches: ms,
+		Candidates: cands, CandidatePos: candPos, Matches: ms, MatchesPath: f.Matches,
 		Source: src, Target: dst, SourceVoxel: f.SourceVoxel, TargetVoxel: f.EMVoxel,
 		DecisionsPath: decisions})
 	if err != nil {

@@ -28,8 +28,9 @@ type Inputs struct {
 	Cells, Candidates     *landmarks.PointSet
 	CellPos, CandidatePos []transform.Vec
 	CellSD                *transform.Vec
-	// Matches are the rows of the matches file.
-	Matches []report.Match
+	// Matches are the rows of the matches file, read from MatchesPath.
+	Matches     []report.Match
+	MatchesPath string
 	// MatchOptions steer the posterior probabilities of the candidates in
 	// reach (the same as match's flags).
 	MatchOptions match.Options
@@ -66,7 +67,7 @@ type Session struct {
 // candidate is no longer offered to a neighbour), reads the decisions file
 // when it exists and orders the cells.
 func NewSession(in Inputs) (*Session, error) {
-	s := &Session{in: in, matchOf: map[string]report.Match{}, now: time.Now, halfUM: 0, pixels: 192}
+	s := &Session{in: in, matchOf: map[string]report.Match{}, now: time.Now}
 	s.cellAt = map[string]int{}
 	for i, p := range in.Cells.Points {
 		s.cellAt[p.ID] = i
@@ -77,11 +78,11 @@ func NewSession(in Inputs) (*Session, error) {
 	}
 	for _, m := range in.Matches {
 		if _, ok := s.cellAt[m.ID]; !ok {
-			return nil, fmt.Errorf("%s: cell %q of the matches is not in %s", "matches", m.ID, in.Cells.Path)
+			return nil, fmt.Errorf("%s: cell %q is not in %s: are they the cells the matches were made of?", in.MatchesPath, m.ID, in.Cells.Path)
 		}
 		if m.Candidate != "" {
 			if _, ok := s.candAt[m.Candidate]; !ok {
-				return nil, fmt.Errorf("matches: candidate %q of cell %q is not in %s", m.Candidate, m.ID, in.Candidates.Path)
+				return nil, fmt.Errorf("%s: candidate %q of cell %q is not in %s: are they the candidates the matches were made of?", in.MatchesPath, m.Candidate, m.ID, in.Candidates.Path)
 			}
 		}
 		s.matchOf[m.ID] = m
