@@ -2,6 +2,7 @@ package review
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -73,4 +74,18 @@ func TestDecideWritesAtOnce(t *testing.T) {
 	if _, err := landmarks.ReadDecisions(path); err != nil {
 		t.Fatal(err)
 	}
+}
+
+func ExampleOrder() {
+	cells, _ := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,0,0,0\nc2,0,0,0\nc3,0,0,0\n"))
+	ms := []report.Match{
+		{ID: "c1", Candidate: "n1", PMatch: 0.99, Status: report.MatchMatched},
+		{ID: "c2", Candidate: "n2", PMatch: 0.62, Status: report.MatchAmbiguous},
+		{ID: "c3", PMatch: math.NaN(), PNone: 0.9, Status: report.MatchUnmatched},
+	}
+	for _, i := range Order(cells, ms) {
+		fmt.Print(cells.Points[i].ID, " ")
+	}
+	fmt.Println()
+	// Output: c2 c3 c1
 }

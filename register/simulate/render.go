@@ -115,6 +115,11 @@ func (s *Scenario) InVivoStack(ip ImageParams) (*imaging.Stack, error) {
 // neuropil, dark nuclei, and pale vessel lumens with a dark wall, outside
 // the EM block nothing (black).
 func (s *Scenario) EMPlane(ip ImageParams) (*imaging.Stack, error) {
+	return s.emPlane(ip, 102)
+}
+
+// emPlane is EMPlane with the neuropil's noise drawn from stream noise.
+func (s *Scenario) emPlane(ip ImageParams, noise uint64) (*imaging.Stack, error) {
 	v := ip.TargetVoxelUM
 	zt := float64(ip.TargetZ) * v[2]
 	w, h := int(s.EMBlock.Max[0]/v[0])+1, int(s.EMBlock.Max[1]/v[1])+1
@@ -123,7 +128,7 @@ func (s *Scenario) EMPlane(ip ImageParams) (*imaging.Stack, error) {
 		return nil, fmt.Errorf("simulate: EM plane: %w", err)
 	}
 	val := make([]float64, w*h)
-	rng := stream(s.Seed, 102)
+	rng := stream(s.Seed, noise)
 	for i := range val {
 		val[i] = 0.55 + 0.06*rng.NormFloat64()
 	}
@@ -224,15 +229,16 @@ func tube(a, b transform.Vec, r float64, blur, vox transform.Vec, dims [3]int, p
 func edge(d, w float64) float64 { return 0.5 * math.Erfc(d/(w*math.Sqrt2)) }
 
 // EMStack draws the EM block as a stack of sections, page k at target
-// depth k·ip.TargetVoxelUM[2], each as EMPlane draws it: the EM export a
-// user would review matches against.
+// depth k·ip.TargetVoxelUM[2], each as EMPlane draws it but with noise of
+// its own (the same noise on every page would draw stripes across the
+// sections): the EM export a user would review matches against.
 func (s *Scenario) EMStack(ip ImageParams) (*imaging.Stack, error) {
 	v := ip.TargetVoxelUM
 	depth := int(s.EMBlock.Max[2]/v[2]) + 1
 	var st *imaging.Stack
 	for k := range depth {
 		ip.TargetZ = k
-		pl, err := s.EMPlane(ip)
+		pl, err := s.emPlane(ip, 1000+uint64(k))
 		if err != nil {
 			return nil, err
 		}
