@@ -47,7 +47,7 @@ func chromium(t *testing.T) string {
 
 // demoSession runs the demo into a temporary folder and opens a review of
 // its files, as `ferry review` with the command the demo prints.
-func demoSession(t *testing.T) (*Session, string) {
+func demoSession(t testing.TB) (*Session, string) {
 	t.Helper()
 	dir := t.TempDir()
 	out, err := demo.Run(context.Background(), demo.Options{Dir: dir, Seed: 1})
