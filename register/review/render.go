@@ -61,7 +61,7 @@ func (s *Session) Panel(k int, name string) ([]byte, error) {
 		s.inverseLattice(pos, n, vox, ok)
 	}
 	s.imageMu.Lock()
-	values, inside, err := sample(vol, vox, ok)
+	values, inside, err := sampleRows(vol, vox, ok, n)
 	s.imageMu.Unlock()
 	if err != nil {
 		return nil, err
@@ -138,28 +138,77 @@ func (s *Session) inverseLattice(pos func(u, v float64) transform.Vec, n int, vo
 	}
 }
 
+// maxCropVoxels bounds the crop read at once (32 MB of 16-bit samples).
+// A panel of a stack much finer than the panel's pixels, such as an EM
+// export at a few nanometres, needs more: it is then read a panel row at a
+// time.
+const maxCropVoxels = 1 << 24
+
+// sampleRows is sample over the n × n positions of a panel, in one crop or,
+// when that would exceed maxCropVoxels, one panel row at a time.
+func sampleRows(vol *imaging.Volume, vox []transform.Vec, ok []bool, n int) ([]float64, []bool, error) {
+	if cropVoxels(vol, vox, ok) <= maxCropVoxels {
+		return sample(vol, vox, ok)
+	}
+	values := make([]float64, len(vox))
+	inside := make([]bool, len(vox))
+	for v := range n {
+		row := v * n
+		vals, in, err := sample(vol, vox[row:row+n], ok[row:row+n])
+		if err != nil {
+			return nil, nil, err
+		}
+		copy(values[row:], vals)
+		copy(inside[row:], in)
+	}
+	return values, inside, nil
+}
+
+// bounds is the box of voxels, clipped to the volume, that trilinear
+// interpolation at the positions needs; empty when lo exceeds hi.
+func bounds(vol *imaging.Volume, vox []transform.Vec, ok []bool) (lo, hi [3]int) {
+	lo = [3]int{math.MaxInt, math.MaxInt, math.MaxInt}
+	hi = [3]int{math.MinInt, math.MinInt, math.MinInt}
+	dims := [3]int{vol.Width, vol.Height, vol.Depth}
+	for i, p := range vox {
+		if !ok[i] || !p.IsFinite() {
+			continue
+		}
+		for k := range 3 {
+			if dims[k] == 1 {
+				// A plane: its one page, whatever the depth asked.
+				lo[k], hi[k] = 0, 0
+				continue
+			}
+			f := int(math.Max(math.Min(math.Floor(p[k]), 1<<40), -1<<40))
+			lo[k] = max(min(lo[k], f), 0)
+			hi[k] = min(max(hi[k], f+1), dims[k]-1)
+		}
+	}
+	return lo, hi
+}
+
+func cropVoxels(vol *imaging.Volume, vox []transform.Vec, ok []bool) int {
+	lo, hi := bounds(vol, vox, ok)
+	n := 1
+	for k := range 3 {
+		if lo[k] > hi[k] {
+			return 0
+		}
+		n *= hi[k] - lo[k] + 1
+	}
+	return n
+}
+
 // sample reads the crop of vol that the voxel positions need and
 // interpolates it trilinearly at each; inside reports the positions whose
 // eight neighbours all lie in the volume.
 func sample(vol *imaging.Volume, vox []transform.Vec, ok []bool) ([]float64, []bool, error) {
-	lo := [3]int{math.MaxInt, math.MaxInt, math.MaxInt}
-	hi := [3]int{math.MinInt, math.MinInt, math.MinInt}
 	dims := [3]int{vol.Width, vol.Height, vol.Depth}
-	any := false
-	for i, p := range vox {
-		if !ok[i] {
-			continue
-		}
-		for k := range 3 {
-			f := int(math.Floor(p[k]))
-			lo[k] = max(min(lo[k], f), 0)
-			hi[k] = min(max(hi[k], f+1), dims[k]-1)
-		}
-		any = true
-	}
+	lo, hi := bounds(vol, vox, ok)
 	values := make([]float64, len(vox))
 	inside := make([]bool, len(vox))
-	if !any || lo[0] > hi[0] || lo[1] > hi[1] || lo[2] > hi[2] {
+	if lo[0] > hi[0] || lo[1] > hi[1] || lo[2] > hi[2] {
 		return values, inside, nil
 	}
 	crop, err := vol.Crop(lo[0], lo[1], lo[2], hi[0]-lo[0]+1, hi[1]-lo[1]+1, hi[2]-lo[2]+1)
@@ -167,23 +216,24 @@ func sample(vol *imaging.Volume, vox []transform.Vec, ok []bool) ([]float64, []b
 		return nil, nil, err
 	}
 	for i, p := range vox {
-		if !ok[i] {
+		if !ok[i] || !p.IsFinite() {
 			continue
 		}
 		var base [3]int
 		var frac [3]float64
 		in := true
 		for k := range 3 {
-			f := math.Floor(p[k])
-			base[k], frac[k] = int(f)-lo[k], p[k]-f
 			// A stack one page deep is a plane: its z is taken as is.
 			if dims[k] == 1 {
 				base[k], frac[k] = 0, 0
 				continue
 			}
-			if int(f) < 0 || int(f)+1 > dims[k]-1 {
+			f := math.Floor(p[k])
+			if f < 0 || f+1 > float64(dims[k]-1) {
 				in = false
+				break
 			}
+			base[k], frac[k] = int(f)-lo[k], p[k]-f
 		}
 		if !in {
 			continue

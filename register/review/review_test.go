@@ -11,7 +11,9 @@ import (
 	"time"
 
 	"ferry/landmarks"
+	"ferry/register/imaging"
 	"ferry/register/report"
+	"ferry/transform"
 )
 
 func TestOrder(t *testing.T) {
@@ -88,4 +90,69 @@ func ExampleOrder() {
 	}
 	fmt.Println()
 	// Output: c2 c3 c1
+}
+
+// Sampling a panel: trilinear inside, nothing outside or at positions that
+// are not finite, a one-page stack taken as a plane at any depth, and the
+// same values read in one crop or row by row.
+func TestSample(t *testing.T) {
+	dir := t.TempDir()
+	st, err := imaging.NewStack(6, 5, 4, 16)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for k := range 4 {
+		for j := range 5 {
+			for i := range 6 {
+				st.Set(i, j, k, uint16(100*k+10*j+i))
+			}
+		}
+	}
+	path := filepath.Join(dir, "s.tif")
+	if err := imaging.WriteTIFF(path, st); err != nil {
+		t.Fatal(err)
+	}
+	vol, err := imaging.OpenVolume(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer vol.Close()
+	vox := []transform.Vec{{1.5, 2.25, 1.5}, {4, 3, 2}, {5.5, 1, 1}, {-0.5, 1, 1}, {math.NaN(), 1, 1}, {1e300, 1, 1}}
+	ok := []bool{true, true, true, true, true, true}
+	want := []float64{100*1.5 + 10*2.25 + 1.5, 234, 0, 0, 0, 0}
+	in := []bool{true, true, false, false, false, false}
+	values, inside, err := sample(vol, vox, ok)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range vox {
+		if inside[i] != in[i] || math.Abs(values[i]-want[i]) > 1e-9 {
+			t.Errorf("position %v: %g inside %v, want %g inside %v", vox[i], values[i], inside[i], want[i], in[i])
+		}
+	}
+	rows, rowsIn, err := sampleRows(vol, vox[:4], ok[:4], 2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range 4 {
+		if rows[i] != values[i] || rowsIn[i] != inside[i] {
+			t.Errorf("row by row, position %d: %g, want %g", i, rows[i], values[i])
+		}
+	}
+	// A plane at any depth.
+	plane, _ := imaging.NewStack(6, 5, 1, 8)
+	plane.Set(2, 3, 0, 200)
+	ppath := filepath.Join(dir, "p.tif")
+	if err := imaging.WriteTIFF(ppath, plane); err != nil {
+		t.Fatal(err)
+	}
+	pv, err := imaging.OpenVolume(ppath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer pv.Close()
+	values, inside, err = sample(pv, []transform.Vec{{2, 3, 57.5}}, []bool{true})
+	if err != nil || !inside[0] || values[0] != 200 {
+		t.Errorf("plane: %v inside %v, %v", values, inside, err)
+	}
 }

@@ -155,7 +155,7 @@ func (s *Session) Cell(k int) (*CellView, error) {
 		v.Status, v.PNone = "not in the matches", finite(r.PNone)
 	}
 	v.Position = [3]float64(mp.Pos)
-	v.HalfUM = math.Min(math.Max(windowR95*mp.R95, minHalfUM), maxHalfUM)
+	v.HalfUM = halfWidth(mp.R95)
 	v.Pixels = panelPixels
 	v.PixelUM = 2 * v.HalfUM / panelPixels
 	verdict, cand := s.decisionOf(c.ID)
@@ -228,5 +228,14 @@ func (s *Session) centre(k int) (transform.Vec, float64, error) {
 		return transform.Vec{}, 0, fmt.Errorf("no cell at place %d", k)
 	}
 	mp := s.mapped[s.order[k]]
-	return mp.Pos, math.Min(math.Max(windowR95*mp.R95, minHalfUM), maxHalfUM), nil
+	return mp.Pos, halfWidth(mp.R95), nil
+}
+
+// halfWidth is the half-width of the window around a cell of 95 % radius
+// r95 (µm); a radius that is not finite gets the widest window.
+func halfWidth(r95 float64) float64 {
+	if math.IsNaN(r95) || math.IsInf(r95, 0) {
+		return maxHalfUM
+	}
+	return math.Min(math.Max(windowR95*r95, minHalfUM), maxHalfUM)
 }
