@@ -13,6 +13,17 @@ import (
 // numbers (X,Y,Z in 3-D; X,Y in 2-D, where the Z of the result is left
 // zero), each positive and finite, in micrometres. flagName, with its dashes, starts every message.
 func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
+	return parseTriple(flagName, value, dim, true)
+}
+
+// ParsePosition reads a position flag such as "--target-offset
+// 100,-20.5,0": dim comma-separated finite numbers in micrometres, of any
+// sign. Messages start with flagName.
+func ParsePosition(flagName, value string, dim int) (transform.Vec, error) {
+	return parseTriple(flagName, value, dim, false)
+}
+
+func parseTriple(flagName, value string, dim int, positive bool) (transform.Vec, error) {
 	var v transform.Vec
 	axes := "X,Y,Z"
 	switch dim {
@@ -22,8 +33,12 @@ func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 	default:
 		return v, fmt.Errorf("%s: dimension %d: want 2 or 3", flagName, dim)
 	}
+	kind := "positive numbers"
+	if !positive {
+		kind = "numbers"
+	}
 	fail := func(why string) error {
-		return fmt.Errorf("%s: want %d positive numbers %s in micrometres, got %s (%s)", flagName, dim, axes, quote(value), why)
+		return fmt.Errorf("%s: want %d %s %s in micrometres, got %s (%s)", flagName, dim, kind, axes, quote(value), why)
 	}
 	parts := strings.Split(value, ",")
 	if len(parts) != dim {
@@ -38,7 +53,7 @@ func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 		if msg != "" {
 			return v, fail(axes[2*a:2*a+1] + ": " + msg)
 		}
-		if !(x > 0) {
+		if positive && !(x > 0) {
 			return v, fail(axes[2*a:2*a+1] + " is not positive")
 		}
 		v[a] = x

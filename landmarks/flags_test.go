@@ -1,6 +1,7 @@
 package landmarks
 
 import (
+	"strings"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -83,6 +84,18 @@ func TestParseIDList(t *testing.T) {
 			if diff := cmp.Diff(tt.want, got); diff != "" {
 				t.Errorf("ParseIDList(%q) (-want +got):\n%s", tt.value, diff)
 			}
+		}
+	}
+}
+
+func TestParsePosition(t *testing.T) {
+	v, err := ParsePosition("--target-offset", "100,-20.5,0", 3)
+	if err != nil || v != (transform.Vec{100, -20.5, 0}) {
+		t.Errorf("got %v, %v", v, err)
+	}
+	for _, bad := range []string{"1,2", "1,x,3", "1,2,inf"} {
+		if _, err := ParsePosition("--target-offset", bad, 3); err == nil || !strings.HasPrefix(err.Error(), "--target-offset: want 3 numbers") {
+			t.Errorf("%q: %v", bad, err)
 		}
 	}
 }

@@ -103,3 +103,41 @@ func FuzzParsePoints(f *testing.F) {
 		}
 	})
 }
+
+func FuzzParseDecisions(f *testing.F) {
+	addSamples(f)
+	for _, s := range []string{
+		"id,candidate,decision\nc1,n1,accepted\nc1,n2,accepted\nc2,,none\n",
+		"id,candidate,decision,decided_at,note\nc1,n1,rejected,2026-03-01T10:00:00Z,\"a, b\"\n",
+	} {
+		f.Add([]byte(s))
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		set, err := ParseDecisions("fuzz.csv", bytes.NewReader(data))
+		if err != nil {
+			checkInputError(t, err)
+			return
+		}
+		type key struct{ id, cand string }
+		seen := map[key]bool{}
+		settled := map[string]bool{}
+		for _, d := range set.Decisions {
+			if d.ID == "" {
+				t.Fatalf("empty id on line %d", d.Line)
+			}
+			if (d.Candidate == "") != (d.Verdict == NoCounterpart) {
+				t.Fatalf("line %d: candidate %q with %s", d.Line, d.Candidate, d.Verdict)
+			}
+			if seen[key{d.ID, d.Candidate}] {
+				t.Fatalf("cell %q and candidate %q twice", d.ID, d.Candidate)
+			}
+			seen[key{d.ID, d.Candidate}] = true
+			if d.Verdict == Accepted || d.Verdict == NoCounterpart {
+				if settled[d.ID] {
+					t.Fatalf("cell %q settled twice", d.ID)
+				}
+				settled[d.ID] = true
+			}
+		}
+	})
+}

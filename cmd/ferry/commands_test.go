@@ -103,6 +103,15 @@ func TestImageCommands(t *testing.T) {
 	if !strings.Contains(o.stdout, "cells marked") {
 		t.Errorf("overlay said %s", o.stdout)
 	}
+	// The matches table marks the same cells, from its cell_x_um … columns.
+	matches := filepath.Join(dir, "matches.csv")
+	mustSucceed(t, "match", sc.transform, sc.files.Cells, sc.files.Candidates, "-o", matches)
+	fromMatches := mustSucceed(t, append([]string{"overlay", sc.transform, sc.stack, sc.plane, "--mapped", matches, "-o", png}, sc.imageFlags()...)...)
+	count := regexp.MustCompile(`(\d+) cells marked`)
+	a, b := count.FindStringSubmatch(o.stdout), count.FindStringSubmatch(fromMatches.stdout)
+	if a == nil || b == nil || a[1] != b[1] || a[1] == "0" {
+		t.Errorf("overlay of mapped cells said %q, of matches %q", o.stdout, fromMatches.stdout)
+	}
 }
 
 // nonFinite matches the ways Go and other programs spell a number that is

@@ -7,23 +7,50 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/match"
 	"ferry/register/outfile"
 )
 
 func newFitCommand() *cobra.Command {
 	var flags modelFlags
-	var out string
+	var out, decisions, cellsPath, candsPath string
+	var decisionInputs []register.Input
 	cmd := &cobra.Command{
 		Use:   "fit LANDMARKS -o TRANSFORM.json",
 		Short: "Fit the transform from landmark pairs and write the transform file",
 		Long: `fit compares the models by their exact leave-one-out errors, chooses one (or
 fits the one given with --model), and writes the transform file with the
-leave-one-out summary and the uncertainty model that map and match use.`,
+leave-one-out summary and the uncertainty model that map and match use.
+With --decisions (and --cells, --candidates), the pairs accepted in review
+join the landmarks as somata of their own kind (decided_soma, with their own
+noise): the cell's source position and the candidate's target position.`,
 		Args: exactArgs("LANDMARKS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if err := requireOutput(out, args[0]); err != nil {
+			if err := requireOutput(out, args[0], decisions, cellsPath, candsPath); err != nil {
 				return err
+			}
+			if decisions != "" {
+				if cellsPath == "" || candsPath == "" {
+					return fmt.Errorf("--decisions: give the cells and candidates the decisions name with --cells and --candidates")
+				}
+				flags.addPairs = func(set *landmarks.PairSet) error {
+					cells, err := landmarks.ReadPoints(cellsPath, "cells")
+					if err != nil {
+						return err
+					}
+					cands, err := landmarks.ReadPoints(candsPath, "candidates")
+					if err != nil {
+						return err
+					}
+					d, sum, err := readDecisions(decisions, cells, cands)
+					if err != nil {
+						return err
+					}
+					decisionInputs = []register.Input{{Path: decisions, SHA256: sum}, {Path: cellsPath, SHA256: cells.SHA256}, {Path: candsPath, SHA256: cands.SHA256}}
+					return match.AddDecidedLandmarks(set, d, cells, cands)
+				}
 			}
 			job, a, err := flags.assess(args[0])
 			if err != nil {
@@ -32,7 +59,7 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 			// The hash of the bytes the reader read, not of the file read
 			// again: the same unless it changed in between, and then the
 			// reader's is the true one.
-			inputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256}}
+			inputs := append([]register.Input{{Path: args[0], SHA256: job.set.SHA256}}, decisionInputs...)
 			prov := register.Provenance{Command: "fit", Inputs: inputs, Flags: setFlags(cmd)}
 			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
 			if err != nil {
@@ -59,6 +86,9 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 	}
 	flags.register(cmd)
 	cmd.Flags().StringVarP(&out, "output", "o", "", "transform file to write (JSON)")
+	cmd.Flags().StringVar(&decisions, "decisions", "", "decisions file from review: its accepted pairs join the landmarks (needs --cells and --candidates)")
+	cmd.Flags().StringVar(&cellsPath, "cells", "", "the cells the decisions name (source, in the landmarks' units)")
+	cmd.Flags().StringVar(&candsPath, "candidates", "", "the candidates the decisions name (target, in the landmarks' units)")
 	return cmd
 }
 

@@ -21,6 +21,9 @@ type modelFlags struct {
 	sourceVoxel, targetVoxel  string
 	sourceSD, targetSD        string
 	noMirror                  bool
+	// addPairs, when set, adds pairs to the landmark set once it is read
+	// and before it is prepared (fit --decisions).
+	addPairs func(set *landmarks.PairSet) error
 }
 
 func (f *modelFlags) register(cmd *cobra.Command) {
@@ -62,6 +65,11 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 	job.settings.NoMirror = f.noMirror
 	if job.set, err = landmarks.ReadPairs(path); err != nil {
 		return nil, err
+	}
+	if f.addPairs != nil {
+		if err := f.addPairs(job.set); err != nil {
+			return nil, err
+		}
 	}
 	dim := job.set.Dim
 	for _, t := range []struct {

@@ -20,7 +20,7 @@ import (
 const maxAmbiguousListed = 20
 
 func newMatchCommand() *cobra.Command {
-	var out, cellSD, prior string
+	var out, cellSD, prior, decisions string
 	var candidateSD, minP float64
 	cmd := &cobra.Command{
 		Use:   "match TRANSFORM CELLS CANDIDATES -o MATCHES.csv",
@@ -35,7 +35,7 @@ volume. distance_um is to the assigned candidate, or for an unmatched cell to
 the nearest one. See docs/matching.md for the method.`,
 		Args: exactArgs("TRANSFORM", "CELLS", "CANDIDATES"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if err := requireOutput(out, args...); err != nil {
+			if err := requireOutput(out, append(args, decisions)...); err != nil {
 				return err
 			}
 			if !(candidateSD > 0) || math.IsInf(candidateSD, 0) {
@@ -57,9 +57,16 @@ the nearest one. See docs/matching.md for the method.`,
 			if err != nil {
 				return err
 			}
+			var decided *match.Decisions
+			var decisionsSHA string
+			if decisions != "" {
+				if decided, decisionsSHA, err = readDecisions(decisions, cells, cands); err != nil {
+					return err
+				}
+			}
 			res, err := match.Match(job.mapper, job.pos, job.cellSD, candPos, match.Options{
 				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
-				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands),
+				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands), Decisions: decided,
 				Progress: progress.Terminal(os.Stderr),
 			})
 			if err != nil {
@@ -74,8 +81,11 @@ the nearest one. See docs/matching.md for the method.`,
 				return err
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
+			if decisions != "" {
+				inputs = append(inputs, register.Input{Path: decisions, SHA256: decisionsSHA})
+			}
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := match.WriteMatchesTable(cmd.Context(), out, prov, cells, cands, res); err != nil {
+			if err := match.WriteMatchesTable(cmd.Context(), out, prov, cells, cands, res, job.file.TargetVoxel); err != nil {
 				return err
 			}
 			w := cmd.OutOrStdout()
@@ -108,6 +118,7 @@ the nearest one. See docs/matching.md for the method.`,
 	fl.Float64Var(&candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
 	fl.StringVar(&prior, "prior-counterpart", "auto", "share of cells inside the candidates' volume that have a counterpart there, in (0, 1), or auto to estimate it")
 	fl.Float64Var(&minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
+	fl.StringVar(&decisions, "decisions", "", "decisions file from review: accepted pairs fixed, rejected ones forbidden, cells with no counterpart left out")
 	return cmd
 }
 
@@ -121,6 +132,20 @@ func parsePrior(s string) (float64, error) {
 		return 0, fmt.Errorf("--prior-counterpart: want auto or a probability between 0 and 1, got %q", s)
 	}
 	return p, nil
+}
+
+// readDecisions reads a decisions file against the cells and candidates,
+// returning the decisions and the file's SHA-256 for provenance.
+func readDecisions(path string, cells, cands *landmarks.PointSet) (*match.Decisions, string, error) {
+	set, err := landmarks.ReadDecisions(path)
+	if err != nil {
+		return nil, "", err
+	}
+	d, err := match.ResolveDecisions(set, cells, cands)
+	if err != nil {
+		return nil, "", err
+	}
+	return d, set.SHA256, nil
 }
 
 func pointIDs(set *landmarks.PointSet) []string {

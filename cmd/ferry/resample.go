@@ -1,8 +1,10 @@
 package main
 
 import (
+	"encoding/csv"
 	"fmt"
 	"io"
+	"os"
 	"strconv"
 	"strings"
 
@@ -11,6 +13,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/imaging"
+	"ferry/register/report"
 	"ferry/transform"
 )
 
@@ -211,8 +214,10 @@ func newOverlayCommand() *cobra.Command {
 		Long: `overlay resamples the source stack onto the target plane as resample does and
 writes a colour composite: the target plane in sky blue, the resampled source
 in orange (Okabe & Ito's colour-blind-safe palette), each contrast-stretched.
-With --mapped, the mapped cells that lie within one page of the plane are
-marked, coloured by status. Voxel sizes, origins and --target-z as for resample.`,
+With --mapped (the output of map, or of match), the mapped cells whose 95 %
+sphere meets the plane are marked with their ids, in a shape and colour per
+status (diamond: ok or matched; square: ambiguous; plus: any other), and a
+scale bar in µm is drawn. Voxel sizes, origins and --target-z as for resample.`,
 		Args: exactArgs("TRANSFORM", "SOURCE_STACK", "TARGET_IMAGE"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
@@ -232,7 +237,7 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 					return err
 				}
 			}
-			img := imaging.Overlay(job.plane, out, marks, imaging.OverlayOptions{})
+			img := imaging.Overlay(job.plane, out, marks, imaging.OverlayOptions{PixelUM: job.grid.Voxel[0]})
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
@@ -244,7 +249,7 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 		},
 	}
 	f.register(cmd)
-	cmd.Flags().StringVar(&mapped, "mapped", "", "mapped cells (the output of map) to mark on the plane")
+	cmd.Flags().StringVar(&mapped, "mapped", "", "mapped cells to mark on the plane: the output of map, or of match (its cell_x… columns)")
 	return cmd
 }
 
@@ -253,6 +258,9 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 // without one, those map writes: target voxels when the transform records
 // them, else micrometres (a warning says so).
 func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) ([]imaging.Mark, error) {
+	if isMatchesTable(path) {
+		return readMatchMarks(path, job, f)
+	}
 	set, err := landmarks.ReadPoints(path, "mapped cells")
 	if err != nil {
 		return nil, err
@@ -283,8 +291,10 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 	pos := make([]transform.Vec, len(set.Points))
 	reach := make([]float64, len(set.Points))
 	states := make([]string, len(set.Points))
+	ids := make([]string, len(set.Points))
 	for n, p := range set.Points {
 		pos[n] = p.Pos
+		ids[n] = p.ID
 		if written != nil {
 			for k := range 3 {
 				pos[n][k] *= written[k]
@@ -299,5 +309,67 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 			}
 		}
 	}
-	return imaging.PlaneMarks(pos, reach, states, job.grid), nil
+	return imaging.PlaneMarks(pos, reach, states, ids, job.grid), nil
+}
+
+// isMatchesTable reports whether the CSV file at path has a p_match column
+// in its header, as match's output has; any fault is left to the reader.
+func isMatchesTable(path string) bool {
+	file, err := os.Open(path)
+	if err != nil {
+		return false
+	}
+	defer file.Close()
+	r := csv.NewReader(io.LimitReader(file, 1<<20))
+	r.Comment = '#'
+	r.FieldsPerRecord = -1
+	header, err := r.Read()
+	if err != nil {
+		return false
+	}
+	for _, h := range header {
+		if strings.EqualFold(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff")), "p_match") {
+			return true
+		}
+	}
+	return false
+}
+
+// readMatchMarks reads match's output and keeps the cells whose 95 % sphere
+// meets the plane, from the mapped cell coordinates it carries.
+func readMatchMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, error) {
+	if f.inverse {
+		return nil, fmt.Errorf("%s: a matches table holds target positions; with --inverse the plane is in the source", path)
+	}
+	ms, err := report.ReadMatches(path)
+	if err != nil {
+		return nil, err
+	}
+	var pos []transform.Vec
+	var reach []float64
+	var states, ids []string
+	for _, m := range ms {
+		if !m.CellPlaced {
+			continue
+		}
+		p := m.Cell
+		if m.InVoxels {
+			if job.file.TargetVoxel == nil {
+				return nil, fmt.Errorf("%s: the coordinates are in target voxels but the transform file records no target voxel size", path)
+			}
+			for k := range 3 {
+				p[k] *= job.file.TargetVoxel[k]
+			}
+		}
+		r := 0.0
+		if m.R95 > 0 {
+			r = m.R95
+		}
+		pos, reach = append(pos, p), append(reach, r)
+		states, ids = append(states, m.Status), append(ids, m.ID)
+	}
+	if len(ms) > 0 && len(pos) == 0 {
+		return nil, fmt.Errorf("%s: no row gives the mapped cell's position (no cell_x_um or cell_x_vox columns: a table from an older ferry match? run match again)", path)
+	}
+	return imaging.PlaneMarks(pos, reach, states, ids, job.grid), nil
 }

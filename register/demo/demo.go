@@ -39,8 +39,18 @@ type Options struct {
 type Files struct {
 	simulate.Files
 	Transform, Mapped, Matches string
-	Extra                      []string
+	// SourceStack and EMStack are the images review looks at;
+	// SourceVoxel the in vivo stack's voxel size (µm).
+	SourceStack, EMStack string
+	// SourceVoxel and EMVoxel are the stacks' voxel sizes (µm), CellSD
+	// the cells' localisation error (µm per axis) that map and match used.
+	SourceVoxel, EMVoxel, CellSD transform.Vec
+	Extra                        []string
 }
+
+// emStackVoxel is the voxel size of the demo's EM stack: coarse enough
+// to draw in a few seconds, fine enough to see nuclei of several µm.
+func emStackVoxel() transform.Vec { return transform.Vec{2, 2, 2} }
 
 // Outcome is what the demo found, set against the truth.
 type Outcome struct {
@@ -196,7 +206,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
 		Flags: mprov.Flags}
-	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res); err != nil {
+	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.TargetVoxel); err != nil {
 		return nil, err
 	}
 	trueCandidate := map[string]string{}
@@ -228,7 +238,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, mapped)
+	overlay, err := writeOverlay(ctx, filepath.Join(o.Dir, "overlay.png"), tf.Transform, stackPath, planePath, mapped, ids(cells))
 	if err != nil {
 		return nil, err
 	}
@@ -242,6 +252,20 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	}
 	f.Extra = append(f.Extra, warped, warped+".json")
 	out.Warped = warped
+
+	// The EM block as a stack of 2 µm voxels, for ferry review.
+	step("drawing the EM stack for review")
+	emIP := simulate.ImageParams{TargetVoxelUM: emStackVoxel()}
+	em, err := scen.EMStack(emIP)
+	if err != nil {
+		return nil, err
+	}
+	f.EMStack = filepath.Join(o.Dir, "em_stack.tif")
+	if err := imaging.WriteTIFF(f.EMStack, em); err != nil {
+		return nil, err
+	}
+	f.SourceStack, f.SourceVoxel, f.EMVoxel, f.CellSD = stackPath, ip.SourceVoxelUM, emIP.TargetVoxelUM, cellSD
+	f.Extra = append(f.Extra, f.EMStack)
 
 	step("writing the quality report")
 	reportPath := filepath.Join(o.Dir, "report.html")
@@ -303,7 +327,7 @@ type overlayResult struct {
 // fitted transform, as ferry overlay does, and marks the mapped cells near
 // the plane. The images' geometry comes from their files, as it does for
 // the command.
-func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, mapped []register.Mapped) (overlayResult, error) {
+func writeOverlay(ctx context.Context, path string, t transform.Transform, stackPath, planePath string, mapped []register.Mapped, cellIDs []string) (overlayResult, error) {
 	stack, err := imaging.ReadStack(stackPath)
 	if err != nil {
 		return overlayResult{}, err
@@ -334,8 +358,8 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	for i, m := range mapped {
 		pos[i], reach[i], status[i] = m.Pos, m.R95, m.Status
 	}
-	marks := imaging.PlaneMarks(pos, reach, status, grid)
-	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{})
+	marks := imaging.PlaneMarks(pos, reach, status, cellIDs, grid)
+	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{PixelUM: grid.Voxel[0]})
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err
 	}
@@ -496,6 +520,10 @@ func (o *Outcome) Print(w io.Writer) {
 		fmt.Fprintf(w, "   %s\n", p)
 	}
 	fmt.Fprintf(w, "   truth: %s, %s\n", o.Files.TruthCells, o.Files.TruthLandmarks)
+	if o.Files.EMStack != "" {
+		fmt.Fprintln(w, "To confirm the matches by eye in a browser, one cell at a time:")
+		fmt.Fprintf(w, "   %s\n", ReviewCommand(o.Files))
+	}
 	fmt.Fprintf(w, "Done in %.1f s. Results are for research: check them by eye before tracing.\n", o.Elapsed.Seconds())
 }
 
@@ -540,4 +568,12 @@ func (i *indenter) Write(p []byte) (int, error) {
 func IsTerminal(f *os.File) bool {
 	info, err := f.Stat()
 	return err == nil && info.Mode()&os.ModeCharDevice != 0
+}
+
+// ReviewCommand is the ferry review command line for the demo's files.
+func ReviewCommand(f Files) string {
+	v, e, c := f.SourceVoxel, f.EMVoxel, f.CellSD
+	return fmt.Sprintf("ferry review %s --transform %s --cells %s --candidates %s --cell-sd %g,%g,%g --source-stack %s --source-voxel %g,%g,%g --target-stack %s --target-voxel %g,%g,%g --decisions %s",
+		f.Matches, f.Transform, f.Cells, f.Candidates, c[0], c[1], c[2], f.SourceStack, v[0], v[1], v[2], f.EMStack, e[0], e[1], e[2],
+		filepath.Join(filepath.Dir(f.Matches), "decisions.csv"))
 }

@@ -117,3 +117,19 @@ func ExampleWarp() {
 	//   0 15 25 35
 	// voxels 2 × 2 × 3 µm (ImageJ metadata)
 }
+
+func ExampleOpenVolume() {
+	// A crop of a stack on disk: only the pages and strips it needs are
+	// read, so the stack may be larger than memory.
+	v, err := imaging.OpenVolume("../../testdata/images/stack16_tiled.tif")
+	if err != nil {
+		log.Fatal(err)
+	}
+	defer v.Close()
+	crop, err := v.Crop(2, 3, 0, 4, 4, 2)
+	if err != nil {
+		log.Fatal(err)
+	}
+	fmt.Printf("stack %d × %d × %d, crop %d × %d × %d\n", v.Width, v.Height, v.Depth, crop.Width, crop.Height, crop.Depth)
+	// Output: stack 37 × 21 × 2, crop 4 × 4 × 2
+}

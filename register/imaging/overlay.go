@@ -55,8 +55,26 @@ type Mark struct {
 	// X and Y are the cell's position in pixels of the plane: column and
 	// row, with pixel centres at whole numbers.
 	X, Y float64
-	// Status chooses the colour (see MarkColour).
+	// Status chooses the colour (see MarkColour) and the shape (see
+	// MarkShapeName).
 	Status string
+	// ID, when not empty, is written beside the mark.
+	ID string
+}
+
+// MarkShapeName names the shape of a mark of the given status, so that
+// statuses are told apart without colour: "diamond" for "ok" and "matched"
+// (four diagonal strokes), "square" for "ambiguous" (four axis-parallel
+// strokes), "plus" for any other status (four ticks pointing at the cell).
+// Every shape leaves the cell itself uncovered.
+func MarkShapeName(status string) string {
+	switch status {
+	case "", "ok", "matched":
+		return "diamond"
+	case "ambiguous":
+		return "square"
+	}
+	return "plus"
 }
 
 // MarkColour is the default colour of a mark of the given status.
@@ -88,6 +106,9 @@ type OverlayOptions struct {
 	MarkSize int
 	// Colour chooses a mark's colour from its status; nil means MarkColour.
 	Colour func(status string) Colour
+	// PixelUM, when positive, is the width of a pixel in micrometres: a
+	// scale bar is then drawn in the bottom left corner.
+	PixelUM float64
 }
 
 // Overlay composes page 0 of the target plane and page 0 of the resampled
@@ -97,10 +118,11 @@ type OverlayOptions struct {
 // planes differ in size, the resampled plane is drawn where it overlaps the
 // target's top-left corner. Either plane may be nil.
 //
-// Each mark is drawn as an open diamond whose four corners are cut away,
-// leaving four short diagonal strokes that frame the cell without covering
-// it, each stroke with a black outline; marks that fall partly outside the
-// image are clipped.
+// Each mark is drawn as four short strokes that frame the cell without
+// covering it, in a shape and colour that depend on its status
+// (MarkShapeName, MarkColour), each stroke with a black outline, and its id,
+// when it has one, to its right; marks that fall partly outside the image
+// are clipped. With OverlayOptions.PixelUM a scale bar is drawn.
 func Overlay(target *Stack, resampled *Stack, marks []Mark, opt OverlayOptions) *image.RGBA {
 	opt = opt.withDefaults()
 	w, h := 0, 0
@@ -142,12 +164,24 @@ func Overlay(target *Stack, resampled *Stack, marks []Mark, opt OverlayOptions) 
 
 	// All outlines first, then all strokes, so that no outline covers a
 	// neighbouring mark's stroke.
-	shape := markShape(opt.MarkSize)
-	for _, m := range marks {
-		drawMark(img, m, shape.outline, Black)
+	shapes := map[string]shape{}
+	for _, name := range []string{"diamond", "square", "plus"} {
+		shapes[name] = markShapeNamed(name, opt.MarkSize)
 	}
 	for _, m := range marks {
-		drawMark(img, m, shape.stroke, opt.Colour(m.Status))
+		drawMark(img, m, shapes[MarkShapeName(m.Status)].outline, Black)
+	}
+	for _, m := range marks {
+		drawMark(img, m, shapes[MarkShapeName(m.Status)].stroke, opt.Colour(m.Status))
+	}
+	face := labelFace()
+	for _, m := range marks {
+		if m.ID != "" && !math.IsNaN(m.X) && !math.IsNaN(m.Y) && math.Abs(m.X) < 1<<30 && math.Abs(m.Y) < 1<<30 {
+			drawLabelWith(face, img, int(math.Round(m.X))+opt.MarkSize+3, int(math.Round(m.Y))+4, m.ID, opt.Colour(m.Status))
+		}
+	}
+	if opt.PixelUM > 0 && !math.IsInf(opt.PixelUM, 0) {
+		drawScaleBar(img, opt.PixelUM)
 	}
 	return img
 }
@@ -221,19 +255,30 @@ type shape struct {
 	stroke, outline []image.Point
 }
 
-// markShape builds the cut-corner diamond of half-diagonal r pixels: the
-// middle half of each side of the diamond with corners (±r, 0) and (0, ±r),
-// as one-pixel diagonal lines. One side is built and turned by quarter
-// turns, so the mark is exactly symmetric; the outline is every pixel next
-// to a stroke pixel that is not one itself.
-func markShape(r int) shape {
-	in := make(map[image.Point]bool)
-	// The side from (0, −r) to (r, 0) is the pixels x − y = r; its middle
-	// half runs over x from r/4 to 3r/4.
+// markShapeNamed builds the strokes of the shape named (see MarkShapeName)
+// with half-size r pixels.
+func markShapeNamed(name string, r int) shape {
 	var side []image.Point
-	for x := (r + 3) / 4; 4*x <= 3*r; x++ {
-		side = append(side, image.Pt(x, x-r))
+	switch name {
+	case "square":
+		// The middle half of the top side of the square of half-side r.
+		for x := -r / 4; x <= r/4; x++ {
+			side = append(side, image.Pt(x, -r))
+		}
+	case "plus":
+		// A tick on the axis from r/2 to r above the centre.
+		for y := r / 2; y <= r; y++ {
+			side = append(side, image.Pt(0, -y))
+		}
+	default:
+		return markShape(r)
 	}
+	return turned(side)
+}
+
+// turned completes one side into the four sides of a mark by quarter
+// turns, with the outline around them.
+func turned(side []image.Point) shape {
 	var sh shape
 	for _, p := range side {
 		for range 4 {
@@ -241,6 +286,7 @@ func markShape(r int) shape {
 			p = image.Pt(-p.Y, p.X) // a quarter turn
 		}
 	}
+	in := make(map[image.Point]bool)
 	for _, p := range sh.stroke {
 		in[p] = true
 	}
@@ -257,6 +303,21 @@ func markShape(r int) shape {
 		}
 	}
 	return sh
+}
+
+// markShape builds the cut-corner diamond of half-diagonal r pixels: the
+// middle half of each side of the diamond with corners (±r, 0) and (0, ±r),
+// as one-pixel diagonal lines. One side is built and turned by quarter
+// turns, so the mark is exactly symmetric; the outline is every pixel next
+// to a stroke pixel that is not one itself.
+func markShape(r int) shape {
+	// The side from (0, −r) to (r, 0) is the pixels x − y = r; its middle
+	// half runs over x from r/4 to 3r/4.
+	var side []image.Point
+	for x := (r + 3) / 4; 4*x <= 3*r; x++ {
+		side = append(side, image.Pt(x, x-r))
+	}
+	return turned(side)
 }
 
 // drawMark sets the pixels of points around m's position to c, clipped to

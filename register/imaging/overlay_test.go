@@ -120,13 +120,14 @@ func TestMarks(t *testing.T) {
 	sh := markShape(7)
 	for _, m := range marks[:3] {
 		c := image.Pt(int(math.Round(m.X)), int(math.Round(m.Y)))
-		// The cell itself and the diamond's corners stay visible.
-		for _, p := range []image.Point{{0, 0}, {7, 0}, {0, 7}, {-7, 0}, {0, -7}} {
+		// The cell itself stays visible.
+		for _, p := range []image.Point{{0, 0}, {1, 0}, {0, 1}, {-1, 0}, {0, -1}} {
 			q := c.Add(p)
 			if img.RGBAAt(q.X, q.Y) != plain.RGBAAt(q.X, q.Y) {
 				t.Errorf("%s mark at %v covers (%d, %d)", m.Status, c, q.X, q.Y)
 			}
 		}
+		sh := markShapeNamed(MarkShapeName(m.Status), 7)
 		for _, p := range sh.stroke {
 			q := c.Add(p)
 			if got := img.RGBAAt(q.X, q.Y); got != rgb(MarkColour(m.Status)) {
@@ -167,6 +168,70 @@ func TestMarks(t *testing.T) {
 		// For looking at: FERRY_OVERLAY_PNG=/tmp/o.png go test -run TestMarks
 		if err := WritePNG(path, img); err != nil {
 			t.Fatal(err)
+		}
+	}
+}
+
+// Statuses are told apart by shape as well as colour, ids are written beside
+// the marks, and a scale bar is drawn when the pixel size is known.
+func TestMarkShapesLabelsAndScale(t *testing.T) {
+	seen := map[string]string{}
+	for _, status := range []string{"matched", "ambiguous", "unmatched"} {
+		name := MarkShapeName(status)
+		if other, dup := seen[name]; dup {
+			t.Errorf("statuses %s and %s share the shape %s", other, status, name)
+		}
+		seen[name] = status
+		sh := markShapeNamed(name, 7)
+		key := map[image.Point]bool{}
+		for _, p := range sh.stroke {
+			key[p] = true
+			if p == (image.Point{}) {
+				t.Errorf("%s covers the cell", name)
+			}
+		}
+		for other := range seen {
+			if other == name {
+				continue
+			}
+			same := true
+			for _, p := range markShapeNamed(other, 7).stroke {
+				same = same && key[p]
+			}
+			if same {
+				t.Errorf("%s and %s have the same strokes", name, other)
+			}
+		}
+	}
+	grey := plane(t, 200, 100, 8, func(i, j int) uint16 { return 60 })
+	plain := Overlay(grey, nil, nil, OverlayOptions{})
+	unlabelled := Overlay(grey, nil, []Mark{{X: 50, Y: 50, Status: "matched"}}, OverlayOptions{})
+	labelled := Overlay(grey, nil, []Mark{{X: 50, Y: 50, Status: "matched", ID: "c12"}}, OverlayOptions{})
+	changed := 0
+	for y := 40; y < 60; y++ {
+		for x := 60; x < 100; x++ {
+			if labelled.RGBAAt(x, y) != unlabelled.RGBAAt(x, y) {
+				changed++
+			}
+		}
+	}
+	if changed < 20 {
+		t.Errorf("the id changed %d pixels right of the mark", changed)
+	}
+	scaled := Overlay(grey, nil, nil, OverlayOptions{PixelUM: 0.5})
+	// 200 pixels of 0.5 µm are 100 µm wide: a 20 µm bar, 40 pixels long.
+	y := 100 - 12 + 1
+	for x := 10; x < 50; x++ {
+		if got := scaled.RGBAAt(x, y); got != rgb(White) {
+			t.Fatalf("scale bar pixel (%d, %d) is %v", x, y, got)
+		}
+	}
+	if scaled.RGBAAt(51, y) != plain.RGBAAt(51, y) {
+		t.Errorf("the scale bar runs past 40 pixels")
+	}
+	for _, tt := range []struct{ width, want float64 }{{100, 20}, {49, 5}, {1000, 200}, {7, 1}, {0.3, 0.05}, {0, 0}} {
+		if got := ScaleBarUM(tt.width); math.Abs(got-tt.want) > 1e-12 {
+			t.Errorf("ScaleBarUM(%g) = %g, want %g", tt.width, got, tt.want)
 		}
 	}
 }

@@ -6,6 +6,7 @@ import (
 	"encoding/binary"
 	"errors"
 	"fmt"
+	"image"
 	"io"
 	"strings"
 
@@ -589,6 +590,14 @@ func grow[T any](b []T, n int) []T {
 // decode decodes page p into dst (width·height grey samples) and reports
 // whether any pixel was in colour.
 func (d *pageDecoder) decode(f *tiffFile, p *tiffPage, dst []uint16) (colour bool, err error) {
+	return d.decodeWindow(f, p, dst, image.Rect(0, 0, p.width, p.height))
+}
+
+// decodeWindow decodes the pixels of page p inside win (clipped to the
+// page) into dst, win.Dx()·win.Dy() samples row by row, reading only the
+// strips or tiles that meet win, and reports whether any pixel read was in
+// colour.
+func (d *pageDecoder) decodeWindow(f *tiffFile, p *tiffPage, dst []uint16, win image.Rectangle) (colour bool, err error) {
 	what := "strip"
 	if p.tiled {
 		what = "tile"
@@ -605,6 +614,9 @@ func (d *pageDecoder) decode(f *tiffFile, p *tiffPage, dst []uint16) (colour boo
 		if !p.tiled {
 			rows = min(p.blockH, p.height-by)
 		}
+		if !image.Rect(bx, by, bx+p.blockW, by+rows).Overlaps(win) {
+			continue
+		}
 		want := rows * rowBytes
 		n := int(p.counts[b])
 		if p.compression == compNone {
@@ -618,8 +630,13 @@ func (d *pageDecoder) decode(f *tiffFile, p *tiffPage, dst []uint16) (colour boo
 		if err != nil {
 			return false, f.pageError(p.index, "%s %d: %v", what, b, err)
 		}
-		cols := min(p.blockW, p.width-bx)
+		// The block's columns inside the window: x0 ≤ x < x1, from the
+		// block's left edge.
+		x0, x1 := max(0, win.Min.X-bx), min(p.blockW, p.width-bx, win.Max.X-bx)
 		for y := range min(rows, p.height-by) {
+			if by+y < win.Min.Y || by+y >= win.Max.Y {
+				continue
+			}
 			row := block[y*rowBytes : (y+1)*rowBytes]
 			s := d.samples
 			if bytesPer == 1 {
@@ -639,26 +656,28 @@ func (d *pageDecoder) decode(f *tiffFile, p *tiffPage, dst []uint16) (colour boo
 					s[x] = (s[x] + s[x-p.samples]) & maxValue
 				}
 			}
-			out := dst[(by+y)*p.width+bx:]
+			// dst[base+x] is the pixel of column bx + x; base may be
+			// negative when the block starts left of the window.
+			base := (by+y-win.Min.Y)*win.Dx() + bx - win.Min.X
 			switch p.photometric {
 			case photoBlackIsZero:
-				for x := range cols {
-					out[x] = s[x*p.samples]
+				for x := x0; x < x1; x++ {
+					dst[base+x] = s[x*p.samples]
 				}
 			case photoWhiteIsZero:
-				for x := range cols {
-					out[x] = maxValue - s[x*p.samples]
+				for x := x0; x < x1; x++ {
+					dst[base+x] = maxValue - s[x*p.samples]
 				}
 			case photoRGB:
-				for x := range cols {
+				for x := x0; x < x1; x++ {
 					r, g, bl := s[x*p.samples], s[x*p.samples+1], s[x*p.samples+2]
 					if r != g || g != bl {
 						colour = true
 					}
 					if p.bits == 8 {
-						out[x] = luma(uint32(r)*0x101, uint32(g)*0x101, uint32(bl)*0x101, 8)
+						dst[base+x] = luma(uint32(r)*0x101, uint32(g)*0x101, uint32(bl)*0x101, 8)
 					} else {
-						out[x] = luma(uint32(r), uint32(g), uint32(bl), 16)
+						dst[base+x] = luma(uint32(r), uint32(g), uint32(bl), 16)
 					}
 				}
 			}

@@ -94,3 +94,24 @@ func ExampleMatch() {
 	// cell 2: ambiguous n513 p 0.50, runner-up n512 p 0.50, 2.5 µm away
 	// cell 3: unmatched - p 1.00, runner-up - p 0.00, 250.4 µm away
 }
+
+func ExampleResolveDecisions() {
+	cells, _ := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,10,10,10\nc2,40,10,10\nc3,70,10,10\n"))
+	cands, _ := landmarks.ParsePoints("nuclei.csv", "candidates", strings.NewReader("id,x,y,z\nn1,1010,2010,310\nn2,1040,2010,310\n"))
+	set, err := landmarks.ParseDecisions("decisions.csv", strings.NewReader(
+		"id,candidate,decision\nc1,n1,accepted\nc2,n1,rejected\nc3,,none\n"))
+	if err != nil {
+		log.Fatal(err)
+	}
+	d, err := match.ResolveDecisions(set, cells, cands)
+	if err != nil {
+		log.Fatal(err)
+	}
+	fmt.Println("fixed:", d.FixedPairs(), "forbidden:", d.ForbiddenPairs(), "c3 has none:", d.None[2])
+	for _, p := range d.LandmarkPairs(cells, cands) {
+		fmt.Println(p.ID, p.Kind, p.Source, p.Target)
+	}
+	// Output:
+	// fixed: [[0 0]] forbidden: [[1 0]] c3 has none: true
+	// decided:c1 decided_soma [10 10 10] [1010 2010 310]
+}

@@ -96,6 +96,12 @@ type Options struct {
 	// MinPMatch is the posterior probability from which an assignment is
 	// StatusMatched, in (0.5, 1). Zero means DefaultMinPMatch.
 	MinPMatch float64
+	// Decisions, when not nil, are a person's verdicts by index into the
+	// cells and candidates: an accepted cell is given its candidate (with
+	// p_match 1), a cell with no counterpart none (p_none 1), and both are
+	// taken out of the assignment; a rejected pair and a candidate accepted
+	// for another cell are never chosen.
+	Decisions *Decisions
 	// CellIDs and CandidateIDs, when set, name the points; exact ties are
 	// then broken by id, so the result does not depend on the order of the
 	// rows. Without them ties go to the lower index.
@@ -140,6 +146,19 @@ type Result struct {
 	PriorCounterpart float64
 	// Mapped is the cell's mapped position and uncertainty.
 	Mapped register.Mapped
+	// Decision is "accepted" or "none" when Options.Decisions settled the
+	// cell, empty otherwise.
+	Decision string
+	// Options are the candidates weighed for the cell with their marginal
+	// posterior probabilities under the one-to-one constraint, by
+	// candidate index; those of negligible probability may be missing.
+	Options []Option
+}
+
+// Option is one candidate of a cell and its posterior probability.
+type Option struct {
+	Candidate int
+	P         float64
 }
 
 // Match maps each cell (source µm) with m and assigns it at most one of the
@@ -226,6 +245,10 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 	}
 	wg.Wait()
 
+	if opt.Decisions.Len() > 0 {
+		applyDecisions(opts, opt.Decisions, cellOrder, candOrder)
+	}
+
 	prior := opt.PriorCounterpart
 	if prior == 0 {
 		prior = estimatePrior(opts)
@@ -248,6 +271,7 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 		best, bestP := -1, 0.0
 		for k := assoc.start[r]; k < assoc.start[r+1]; k++ {
 			rank, p := assoc.rank[k], marg.edge[k]
+			out.Options = append(out.Options, Option{Candidate: candOrder[rank], P: p})
 			if rank == chosen[r] {
 				out.Candidate = candOrder[rank]
 				out.PMatch = p
@@ -278,9 +302,57 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 				out.Status = StatusAmbiguous
 			}
 		}
+		if j, ok := opt.Decisions.accepted(i); ok {
+			out = Result{Candidate: j, PMatch: 1, RunnerUp: -1, Status: StatusMatched, Decision: "accepted",
+				DistanceUM: flatten(cands[j], opt.Dim).Sub(pos).Norm(), Outside: o.outside, InReach: o.inReach,
+				Mapped: mapped[i], Prior: out.Prior, PriorCounterpart: prior}
+		} else if opt.Decisions != nil && opt.Decisions.None[i] {
+			out.Decision = "none"
+		}
 		res[i] = out
 	}
 	return res, nil
+}
+
+// accepted is the candidate accepted for cell, if any.
+func (d *Decisions) accepted(cell int) (int, bool) {
+	if d == nil {
+		return -1, false
+	}
+	j, ok := d.Accepted[cell]
+	return j, ok
+}
+
+// applyDecisions takes the settled cells out of the assignment (no options:
+// their no-match option then holds all their probability, and they weigh
+// nothing in the prior) and strikes the forbidden candidates from the
+// others' options, which is the posterior given that those pairs are not
+// matches.
+func applyDecisions(opts []cellOptions, d *Decisions, cellOrder, candOrder []int) {
+	taken := map[int]bool{} // candidate indices accepted for some cell
+	for _, j := range d.Accepted {
+		taken[j] = true
+	}
+	for r, i := range cellOrder {
+		o := &opts[r]
+		if _, ok := d.Accepted[i]; ok || d.None[i] {
+			*o = cellOptions{outside: o.outside, inReach: o.inReach}
+			continue
+		}
+		rejected := d.Rejected[i]
+		if len(taken) == 0 && len(rejected) == 0 {
+			continue
+		}
+		ranks, ratios := o.ranks[:0], o.ratios[:0]
+		for k, rank := range o.ranks {
+			j := candOrder[rank]
+			if _, no := slices.BinarySearch(rejected, j); no || taken[j] {
+				continue
+			}
+			ranks, ratios = append(ranks, rank), append(ratios, o.ratios[k])
+		}
+		o.ranks, o.ratios = ranks, ratios
+	}
 }
 
 func (o Options) withDefaults(nCells, nCands int) (Options, error) {

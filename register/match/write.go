@@ -11,35 +11,70 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/transform"
 )
 
-// Columns are the columns WriteMatches writes before the cells' own extra
-// columns.
+// Columns are the columns WriteMatches writes first, before the target
+// coordinates (see CoordinateColumns) and the cells' own extra columns.
 var Columns = []string{"id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status", "p_none"}
 
 // WriteMatchesTable writes the matches to path with their sidecar (see
 // register.Sidecar) whole or not at all: the table of WriteMatches, with
-// prov beside it. The table holds no positions: distances are in µm.
-func WriteMatchesTable(ctx context.Context, path string, prov register.Provenance, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result) error {
-	return register.WriteTable(ctx, path, prov, nil, func(w io.Writer) error {
-		return WriteMatches(w, cells, cands, res)
+// prov beside it and the frame and units of its coordinate columns (target
+// µm, or target voxels of voxel when it is not nil).
+func WriteMatchesTable(ctx context.Context, path string, prov register.Provenance, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result, voxel *transform.Vec) error {
+	cols := CoordinateColumns(cells.Dim, voxel)
+	coords := []register.Coordinates{
+		register.CoordinatesIn(cols[:cells.Dim], register.FrameTarget, voxel),
+		register.CoordinatesIn(cols[cells.Dim:2*cells.Dim], register.FrameTarget, voxel),
+	}
+	return register.WriteTable(ctx, path, prov, coords, func(w io.Writer) error {
+		return WriteMatches(w, cells, cands, res, voxel)
 	})
+}
+
+// CoordinateColumns are the columns WriteMatches writes after Columns: the
+// mapped cell's and the candidate's target coordinates, then the cell's
+// 95 % radius. The coordinates are micrometres (suffix _um) or, when the
+// transform records target voxel sizes, target voxel indices (suffix _vox);
+// a 2-D table has no z columns.
+func CoordinateColumns(dim int, voxel *transform.Vec) []string {
+	unit := "_um"
+	if voxel != nil {
+		unit = "_vox"
+	}
+	var cols []string
+	for _, who := range []string{"cell_", "candidate_"} {
+		for _, a := range []string{"x", "y", "z"}[:dim] {
+			cols = append(cols, who+a+unit)
+		}
+	}
+	return append(cols, "r95_um")
 }
 
 // WriteMatches writes the matches in the contract's columns, header row
 // first: id, candidate (empty when none),
-// p_match, distance_um, runner_up (empty when none), p_runner_up (0 when
-// none), status,
-// then p_none (the posterior probability that the cell has no counterpart
-// among the candidates) and the cells' own extra columns. Probabilities have
-// four decimals; distances are micrometres to the nanometre. res is Match's
-// result for cells and cands, in their order.
-func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result) error {
+// p_match (the posterior probability that the cell is the candidate named;
+// empty when none is named, where p_none says how likely no counterpart
+// is), distance_um, runner_up (empty when none), p_runner_up (0 when none),
+// status, then p_none (the posterior probability that the cell has no
+// counterpart among the candidates), the target coordinates of the mapped
+// cell and of the candidate with the cell's r95_um (CoordinateColumns;
+// empty where there is no candidate or no mapped position), decision
+// ("accepted" or "none" where a person's decision settled the cell, see
+// Options.Decisions) and the cells' own extra columns. Probabilities have four decimals; distances and
+// coordinates are written to the tenth of a nanometre. res is Match's
+// result for cells and cands, in their order; cands holds the candidates as
+// read, so their coordinates are written as they were given. voxel, when
+// not nil, is the target voxel size (µm) of the transform: the mapped
+// positions are then written in target voxels, as the candidates are.
+func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.PointSet, res []Result, voxel *transform.Vec) error {
 	if len(res) != len(cells.Points) {
 		return fmt.Errorf("match: %d results for %d cells", len(res), len(cells.Points))
 	}
 	cw := csv.NewWriter(w)
-	header := append(append([]string(nil), Columns...), cells.ExtraColumns...)
+	dim := cells.Dim
+	header := append(append(append(append([]string(nil), Columns...), CoordinateColumns(dim, voxel)...), "decision"), cells.ExtraColumns...)
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -50,7 +85,35 @@ func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.Point
 		if err != nil {
 			return fmt.Errorf("match: cell %q: %v", c.ID, err)
 		}
-		row = append(row[:0], c.ID, cand, formatP(r.PMatch), formatDistance(r.DistanceUM), runner, formatP(r.PRunnerUp), r.Status, formatP(r.PNone))
+		pMatch := ""
+		if r.Candidate >= 0 {
+			pMatch = formatP(r.PMatch)
+		}
+		row = append(row[:0], c.ID, cand, pMatch, formatDistance(r.DistanceUM), runner, formatP(r.PRunnerUp), r.Status, formatP(r.PNone))
+		mapped := r.Mapped.Status != register.StatusNoInverse && r.Mapped.Pos.IsFinite()
+		for k := range dim {
+			v := ""
+			if mapped {
+				x := r.Mapped.Pos[k]
+				if voxel != nil {
+					x /= voxel[k]
+				}
+				v = formatCoord(x)
+			}
+			row = append(row, v)
+		}
+		for k := range dim {
+			v := ""
+			if r.Candidate >= 0 {
+				v = formatCoord(cands.Points[r.Candidate].Pos[k])
+			}
+			row = append(row, v)
+		}
+		r95 := ""
+		if mapped && r.Mapped.R95 > 0 && !math.IsInf(r.Mapped.R95, 0) {
+			r95 = formatCoord(r.Mapped.R95)
+		}
+		row = append(row, r95, r.Decision)
 		row = append(row, c.Extra...)
 		if err := cw.Write(row); err != nil {
 			return err
@@ -58,6 +121,16 @@ func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.Point
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// formatCoord writes a coordinate to the tenth of a nanometre (or of a
+// voxel), never "-0.0000".
+func formatCoord(x float64) string {
+	s := strconv.FormatFloat(x, 'f', 4, 64)
+	if s == "-0.0000" {
+		return "0.0000"
+	}
+	return s
 }
 
 func candidateIDs(cands *landmarks.PointSet, r Result) (cand, runner string, err error) {

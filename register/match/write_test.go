@@ -7,6 +7,8 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/register"
+	"ferry/transform"
 )
 
 func TestWriteMatches(t *testing.T) {
@@ -21,20 +23,44 @@ func TestWriteMatches(t *testing.T) {
 		t.Fatal(err)
 	}
 	res := []Result{
-		{Candidate: 1, PMatch: 0.98765, PNone: 0.01, DistanceUM: 1.23456789, RunnerUp: 0, PRunnerUp: 0.00235, Status: StatusMatched},
-		{Candidate: 0, PMatch: 0.6, PNone: 0.4, DistanceUM: 3, RunnerUp: -1, Status: StatusAmbiguous},
-		{Candidate: -1, PMatch: 1, PNone: 1, DistanceUM: math.NaN(), RunnerUp: -1, Status: StatusUnmatched, Outside: true},
+		{Candidate: 1, PMatch: 0.98765, PNone: 0.01, DistanceUM: 1.23456789, RunnerUp: 0, PRunnerUp: 0.00235, Status: StatusMatched,
+			Mapped: register.Mapped{Pos: transform.Vec{2, 4, 6}, R95: 2.5, Status: register.StatusOK}},
+		{Candidate: 0, PMatch: 0.6, PNone: 0.4, DistanceUM: 3, RunnerUp: -1, Status: StatusAmbiguous,
+			Mapped: register.Mapped{Pos: transform.Vec{-0.00001, 1, 2}, R95: 3, Status: register.StatusExtrapolated}},
+		{Candidate: -1, PMatch: 1, PNone: 1, DistanceUM: math.NaN(), RunnerUp: -1, Status: StatusUnmatched, Outside: true,
+			Mapped: register.Mapped{Status: register.StatusNoInverse}},
 	}
 	var b bytes.Buffer
-	if err := WriteMatches(&b, cells, cands, res); err != nil {
+	if err := WriteMatches(&b, cells, cands, res, nil); err != nil {
 		t.Fatal(err)
 	}
-	want := "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,osi,note\n" +
-		"c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,0.5,\"a, b\"\n" +
-		"c2,n1,0.6000,3.0000,,0.0000,ambiguous,0.4000,0.25,\n" +
-		"c3,,1.0000,,,0.0000,unmatched,1.0000,0.75,x\n"
+	// An unmatched row names no candidate, so it has no p_match: p_none
+	// says how likely no counterpart is.
+	want := "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_um,cell_y_um,cell_z_um,candidate_x_um,candidate_y_um,candidate_z_um,r95_um,decision,osi,note\n" +
+		"c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,2.0000,4.0000,6.0000,1.0000,1.0000,1.0000,2.5000,,0.5,\"a, b\"\n" +
+		"c2,n1,0.6000,3.0000,,0.0000,ambiguous,0.4000,0.0000,1.0000,2.0000,0.0000,0.0000,0.0000,3.0000,,0.25,\n" +
+		"c3,,,,,0.0000,unmatched,1.0000,,,,,,,,,0.75,x\n"
 	if b.String() != want {
 		t.Errorf("got\n%s\nwant\n%s", b.String(), want)
+	}
+
+	// With target voxels the mapped cell is written in voxels, the
+	// candidate as read.
+	b.Reset()
+	vox := transform.Vec{2, 4, 0.5}
+	if err := WriteMatches(&b, cells, cands, res[:1:1], &vox); err == nil {
+		t.Error("one result for three cells was written")
+	}
+	b.Reset()
+	if err := WriteMatches(&b, cells, cands, res, &vox); err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(b.String(), "\n")
+	if got, want := lines[0], "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_vox,cell_y_vox,cell_z_vox,candidate_x_vox,candidate_y_vox,candidate_z_vox,r95_um,decision,osi,note"; got != want {
+		t.Errorf("voxel header %q, want %q", got, want)
+	}
+	if got, want := lines[1], "c1,n2,0.9877,1.2346,n1,0.0024,matched,0.0100,1.0000,1.0000,12.0000,1.0000,1.0000,1.0000,2.5000,,0.5,\"a, b\""; got != want {
+		t.Errorf("voxel row %q, want %q", got, want)
 	}
 
 	s, err := Summarise(cells, cands, res)
@@ -63,7 +89,7 @@ func TestWriteMatchesRefusesMismatch(t *testing.T) {
 		nil,
 		{{Candidate: 3, RunnerUp: -1}},
 	} {
-		if err := WriteMatches(&bytes.Buffer{}, cells, cands, res); err == nil {
+		if err := WriteMatches(&bytes.Buffer{}, cells, cands, res, nil); err == nil {
 			t.Errorf("%+v: written", res)
 		}
 	}

@@ -219,6 +219,9 @@ type matchSummary struct {
 
 type matchRow struct {
 	ID, Candidate, PMatch, Distance, RunnerUp, PRunnerUp string
+	// PNone is the probability that the cell has no counterpart, "—"
+	// when the table has no p_none column.
+	PNone string
 	// NoCounterpart says the runner-up is that the cell has none.
 	NoCounterpart bool
 }
@@ -495,7 +498,7 @@ func (d *pageData) summariseMatches(ms []Match, file string) {
 		if m.Status == MatchAmbiguous {
 			row := matchRow{
 				ID: m.ID, Candidate: m.Candidate, PMatch: probability(m.PMatch), Distance: um(m.DistanceUM),
-				RunnerUp: m.RunnerUp, PRunnerUp: probability(m.PRunnerUp),
+				RunnerUp: m.RunnerUp, PRunnerUp: probability(m.PRunnerUp), PNone: probability(m.PNone),
 			}
 			if m.RunnerUp == "" && !math.IsNaN(m.PNone) {
 				// The other choice is that the cell has no counterpart.

@@ -175,3 +175,16 @@ func BenchmarkNew(b *testing.B) {
 		})
 	}
 }
+
+// The ambiguous table shows how likely "no counterpart" is beside the
+// runner-up: it is often the real competitor of the chosen candidate.
+func TestAmbiguousShowsNoCounterpart(t *testing.T) {
+	in := scenarioInput(t, 3, nil)
+	in.Matches = []Match{{ID: "c07", Candidate: "n1", PMatch: 0.61, DistanceUM: 2, RunnerUp: "n2", PRunnerUp: 0.001, PNone: 0.389, Status: MatchAmbiguous}}
+	html, _ := render(t, in)
+	for _, want := range []string{"<th class=\"num\">p no counterpart</th>", "<td class=\"num\">0.389</td>"} {
+		if !strings.Contains(html, want) {
+			t.Errorf("the report lacks %q", want)
+		}
+	}
+}

@@ -40,6 +40,16 @@ type Match struct {
 	// optional p_none column (NaN without it).
 	PNone  float64
 	Status string
+	// Cell and CandidatePos are the target coordinates of the mapped cell
+	// and of its candidate from the optional columns cell_x_um … and
+	// candidate_x_um … (or cell_x_vox …, in target voxels: see InVoxels);
+	// CellPlaced and CandidatePlaced say whether the row gives them.
+	Cell, CandidatePos          transform.Vec
+	CellPlaced, CandidatePlaced bool
+	// InVoxels says the coordinates are target voxel indices.
+	InVoxels bool
+	// R95 is the optional r95_um (NaN when absent or empty).
+	R95 float64
 }
 
 // The statuses of a match, as the contract names them.
@@ -221,7 +231,8 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 
 // ReadMatches reads the table of `ferry match` by column name: id,
 // candidate, p_match, distance_um, runner_up, p_runner_up and status, and
-// p_none when present; any other column is ignored.
+// when present p_none, r95_um and the target coordinates cell_x_um …
+// candidate_z_um (or cell_x_vox …); any other column is ignored.
 func ReadMatches(path string) ([]Match, error) {
 	t, err := readTable(path)
 	if err != nil {
@@ -232,9 +243,23 @@ func ReadMatches(path string) ([]Match, error) {
 		return nil, err
 	}
 	none := t.column("p_none")
+	r95 := t.column("r95_um")
+	unit, inVoxels := "_um", false
+	if t.column("cell_x_um") < 0 && t.column("cell_x_vox") >= 0 {
+		unit, inVoxels = "_vox", true
+	}
+	var cellCols, candCols []int
+	for _, a := range []string{"x", "y", "z"} {
+		if c := t.column("cell_" + a + unit); c >= 0 {
+			cellCols = append(cellCols, c)
+		}
+		if c := t.column("candidate_" + a + unit); c >= 0 {
+			candCols = append(candCols, c)
+		}
+	}
 	out := make([]Match, len(t.rows))
 	for r, row := range t.rows {
-		m := Match{PNone: math.NaN(),
+		m := Match{PNone: math.NaN(), R95: math.NaN(), InVoxels: inVoxels,
 			ID:        strings.TrimSpace(row[cols[0]]),
 			Candidate: strings.TrimSpace(row[cols[1]]),
 			RunnerUp:  strings.TrimSpace(row[cols[4]]),
@@ -260,6 +285,30 @@ func ReadMatches(path string) ([]Match, error) {
 			if m.PNone, _, err = t.number(r, none); err != nil {
 				return nil, err
 			}
+		}
+		if r95 >= 0 {
+			if m.R95, _, err = t.number(r, r95); err != nil {
+				return nil, err
+			}
+		}
+		for _, f := range []struct {
+			cols   []int
+			dst    *transform.Vec
+			placed *bool
+		}{{cellCols, &m.Cell, &m.CellPlaced}, {candCols, &m.CandidatePos, &m.CandidatePlaced}} {
+			if len(f.cols) < 2 {
+				continue
+			}
+			all := true
+			for k, c := range f.cols {
+				v, ok, err := t.number(r, c)
+				if err != nil {
+					return nil, err
+				}
+				all = all && ok
+				f.dst[k] = v
+			}
+			*f.placed = all
 		}
 		out[r] = m
 	}

@@ -230,9 +230,9 @@ func TestReadMatches(t *testing.T) {
 			text: "# ferry match\nid,candidate,p_match,distance_um,runner_up,p_runner_up,status,osi\n" +
 				"c1,n7,0.97,1.5,n8,0.02,matched,0.3\nc2,n9,0.52,3.25,n4,0.44,Ambiguous,0.1\nc3,,,,,,unmatched,\n",
 			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, PNone: nan, Status: "matched"},
-				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, PNone: nan, Status: "ambiguous"},
-				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, PNone: nan, Status: "unmatched"},
+				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, PNone: nan, R95: nan, Status: "matched"},
+				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, PNone: nan, R95: nan, Status: "ambiguous"},
+				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, PNone: nan, R95: nan, Status: "unmatched"},
 			},
 		},
 		{
@@ -240,7 +240,18 @@ func TestReadMatches(t *testing.T) {
 			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none\n" +
 				"c1,n7,0.74,9.7,,0,ambiguous,0.26\n",
 			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, Status: "ambiguous"},
+				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, R95: nan, Status: "ambiguous"},
+			},
+		},
+		{
+			name: "with target coordinates in voxels",
+			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_vox,cell_y_vox,cell_z_vox,candidate_x_vox,candidate_y_vox,candidate_z_vox,r95_um\n" +
+				"c1,n7,0.74,9.7,,0,ambiguous,0.26,1,2,3,4,5,6,2.5\nc2,,,,,0,unmatched,0.99,7,8,9,,,,3\n",
+			want: []Match{
+				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, R95: 2.5, Status: "ambiguous",
+					Cell: transform.Vec{1, 2, 3}, CandidatePos: transform.Vec{4, 5, 6}, CellPlaced: true, CandidatePlaced: true, InVoxels: true},
+				{ID: "c2", PMatch: nan, DistanceUM: nan, PRunnerUp: 0, PNone: 0.99, R95: 3, Status: "unmatched",
+					Cell: transform.Vec{7, 8, 9}, CandidatePos: transform.Vec{nan, nan, nan}, CellPlaced: true, InVoxels: true},
 			},
 		},
 		{name: "unknown status", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,1,1,,0,maybe\n", err: `matches.csv:2: column "status": "maybe" is not a match status`},

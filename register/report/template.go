@@ -133,10 +133,10 @@ footer ul { padding-left: 18px; margin: 4px 0; }
 {{range .Counts}}<tr><td>{{.Status}}</td><td class="num">{{.N}}</td><td class="num">{{.Share}}</td></tr>
 {{end}}</table>
 {{if .Ambiguous}}<h3>Ambiguous cells</h3>
-<p>Two candidates fit these cells nearly as well: look at both before tracing.</p>
+<p>No choice is clear for these cells: another candidate, or no counterpart at all, fits nearly as well. Look at them before tracing (<code>ferry review</code>).</p>
 <table>
-<tr><th>cell</th><th>candidate</th><th class="num">p match</th><th class="num">distance µm</th><th>runner-up</th><th class="num">p runner-up</th></tr>
-{{range .Ambiguous}}<tr><td><code>{{.ID}}</code></td><td><code>{{.Candidate}}</code></td><td class="num">{{.PMatch}}</td><td class="num">{{.Distance}}</td><td>{{if .NoCounterpart}}no counterpart{{else}}<code>{{.RunnerUp}}</code>{{end}}</td><td class="num">{{.PRunnerUp}}</td></tr>
+<tr><th>cell</th><th>candidate</th><th class="num">p match</th><th class="num">distance µm</th><th>runner-up</th><th class="num">p runner-up</th><th class="num">p no counterpart</th></tr>
+{{range .Ambiguous}}<tr><td><code>{{.ID}}</code></td><td><code>{{.Candidate}}</code></td><td class="num">{{.PMatch}}</td><td class="num">{{.Distance}}</td><td>{{if .NoCounterpart}}no counterpart{{else}}<code>{{.RunnerUp}}</code>{{end}}</td><td class="num">{{.PRunnerUp}}</td><td class="num">{{.PNone}}</td></tr>
 {{end}}</table>{{else}}<p>No cell is ambiguous.</p>{{end}}
 </section>{{end}}
 </main>

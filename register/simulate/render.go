@@ -118,6 +118,11 @@ func (s *Scenario) InVivoStack(ip ImageParams) (*imaging.Stack, error) {
 // neuropil, dark nuclei, and pale vessel lumens with a dark wall, outside
 // the EM block nothing (black).
 func (s *Scenario) EMPlane(ip ImageParams) (*imaging.Stack, error) {
+	return s.emPlane(ip, 102)
+}
+
+// emPlane is EMPlane with the neuropil's noise drawn from stream noise.
+func (s *Scenario) emPlane(ip ImageParams, noise uint64) (*imaging.Stack, error) {
 	v := ip.TargetVoxelUM
 	zt := float64(ip.TargetZ) * v[2]
 	w, h := int(s.EMBlock.Max[0]/v[0])+1, int(s.EMBlock.Max[1]/v[1])+1
@@ -127,7 +132,7 @@ func (s *Scenario) EMPlane(ip ImageParams) (*imaging.Stack, error) {
 	}
 	st.Geometry = imaging.Geometry{VoxelUM: v, OriginUM: transform.Vec{0, 0, zt}, HasOrigin: [3]bool{true, true, true}}
 	val := make([]float64, w*h)
-	rng := stream(s.Seed, 102)
+	rng := stream(s.Seed, noise)
 	for i := range val {
 		val[i] = 0.55 + 0.06*rng.NormFloat64()
 	}
@@ -226,3 +231,27 @@ func tube(a, b transform.Vec, r float64, blur, vox transform.Vec, dims [3]int, p
 
 // edge is a smooth step from 1 inside (d < 0) to 0 outside over width w.
 func edge(d, w float64) float64 { return 0.5 * math.Erfc(d/(w*math.Sqrt2)) }
+
+// EMStack draws the EM block as a stack of sections, page k at target
+// depth k·ip.TargetVoxelUM[2], each as EMPlane draws it but with noise of
+// its own (the same noise on every page would draw stripes across the
+// sections): the EM export a user would review matches against.
+func (s *Scenario) EMStack(ip ImageParams) (*imaging.Stack, error) {
+	v := ip.TargetVoxelUM
+	depth := int(s.EMBlock.Max[2]/v[2]) + 1
+	var st *imaging.Stack
+	for k := range depth {
+		ip.TargetZ = k
+		pl, err := s.emPlane(ip, 1000+uint64(k))
+		if err != nil {
+			return nil, err
+		}
+		if st == nil {
+			if st, err = imaging.NewStack(pl.Width, pl.Height, depth, 8); err != nil {
+				return nil, fmt.Errorf("simulate: EM stack: %w", err)
+			}
+		}
+		copy(st.PageData(k), pl.Data)
+	}
+	return st, nil
+}
