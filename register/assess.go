@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -140,6 +141,13 @@ func (a *Assessment) MaxLOO() float64 {
 // its neighbours'. Result is the chosen model fitted to every landmark of
 // the problem, flagged ones included: what the user asked to be fitted.
 func Assess(p *Problem, s Settings) (*Assessment, error) {
+	return AssessContext(context.Background(), p, s)
+}
+
+// AssessContext is Assess that stops, with ctx's error, between one fit and
+// the next once ctx is cancelled.
+func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, error) {
+	s.ctx = ctx
 	if p.Len() == 0 {
 		return nil, errors.New("no landmark pairs")
 	}
@@ -353,10 +361,13 @@ type fitted struct {
 // fitModel fits kind to every pair of p with leave-one-out, the spline's
 // smoothing, when automatic, chosen on the same pairs.
 func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*fitted, error) {
+	if err := s.cancelled(); err != nil {
+		return nil, err
+	}
 	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
-			sm, err := chooseSmoothing(p, weights)
+			sm, err := chooseSmoothing(p, weights, s)
 			if err != nil {
 				return nil, err
 			}
@@ -378,9 +389,12 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 // interpolation to nearly affine, refined around the best. The scale of the
 // grid follows the kernel: a typical landmark distance in 3-D, its square
 // times its logarithm in 2-D.
-func chooseSmoothing(q *Problem, w []float64) (float64, error) {
+func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 	unit := kernelScale(q)
 	cost := func(sm float64) float64 {
+		if s.cancelled() != nil {
+			return math.Inf(1)
+		}
 		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
 			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true})
 		if err != nil {
@@ -407,6 +421,9 @@ func chooseSmoothing(q *Problem, w []float64) (float64, error) {
 				best, bestCost = sm, c
 			}
 		}
+	}
+	if err := s.cancelled(); err != nil {
+		return 0, err
 	}
 	if math.IsInf(bestCost, 1) {
 		_, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,

@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"strconv"
@@ -101,4 +102,15 @@ type Settings struct {
 	// SourceSD and TargetSD, when set, are the localisation standard
 	// deviations per axis (µm) of the landmark picks on each side.
 	SourceSD, TargetSD *transform.Vec
+
+	// ctx, when set by AssessContext, is checked between fits.
+	ctx context.Context
+}
+
+// cancelled returns the context's error, if any.
+func (s Settings) cancelled() error {
+	if s.ctx == nil {
+		return nil
+	}
+	return s.ctx.Err()
 }

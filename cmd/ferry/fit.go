@@ -8,7 +8,6 @@ import (
 	"github.com/spf13/cobra"
 
 	"ferry/register"
-	"ferry/register/outfile"
 )
 
 func newFitCommand() *cobra.Command {
@@ -25,8 +24,11 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 			if err := requireOutput(out, args[0]); err != nil {
 				return err
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
+				if cmd.Context().Err() != nil {
+					return fmt.Errorf("%s not written: %w", out, cmd.Context().Err())
+				}
 				return err
 			}
 			// The hash of the bytes the reader read, not of the file read
@@ -42,10 +44,10 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 			if err != nil {
 				return err
 			}
-			if err := outfile.WriteBytes(cmd.Context(), out, data); err != nil {
+			if err := writeOutputBytes(cmd, out, data); err != nil {
 				return err
 			}
-			w := cmd.OutOrStdout()
+			w := summaryWriter(cmd, out)
 			register.WriteComparison(w, a)
 			fmt.Fprintf(w, "Leave-one-out error of the %s model: RMS %.2f µm, max %.2f µm over %d landmarks.\n",
 				a.Chosen, a.JSON().RMSUM, a.JSON().MaxUM, len(a.Landmarks))
@@ -53,7 +55,7 @@ leave-one-out summary and the uncertainty model that map and match use.`,
 				fmt.Fprintf(w, "Warning: %d landmark(s) look wrong and are still in the fit: %s. Run ferry check, then correct them or refit with --exclude %s\n",
 					len(ids), strings.Join(ids, ", "), strings.Join(ids, ","))
 			}
-			fmt.Fprintf(w, "Wrote %s\n", out)
+			fmt.Fprintf(w, "Wrote %s\n", outputName(out))
 			return nil
 		},
 	}
@@ -78,7 +80,7 @@ leave-one-out error exceeds --max-error.`,
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
 				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
 				return err
 			}

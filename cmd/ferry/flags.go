@@ -93,12 +93,22 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 }
 
 // assess loads the landmark file with the flags and runs the check on it.
-func (f *modelFlags) assess(path string) (*landmarkJob, *register.Assessment, error) {
+// A job that needs more memory than the machine has is refused before it
+// starts, and one that takes long is announced on stderr, with the way to
+// make it smaller.
+func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *register.Assessment, error) {
 	job, err := f.load(path)
 	if err != nil {
 		return nil, nil, err
 	}
-	a, err := register.Assess(job.problem, job.settings)
+	est := register.EstimateJob(job.problem, job.settings)
+	if err := est.CheckMemory(register.AvailableMemory()); err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if est.Announce() {
+		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: %s: %s; Ctrl-C stops it. To make it smaller: %s.\n", path, est, est.WayOut())
+	}
+	a, err := register.AssessContext(cmd.Context(), job.problem, job.settings)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", path, err)
 	}
@@ -160,6 +170,9 @@ func inputsOf(paths ...string) ([]register.Input, error) {
 func requireOutput(out string, inputs ...string) error {
 	if strings.TrimSpace(out) == "" {
 		return fmt.Errorf("-o: an output file is required")
+	}
+	if out == stdoutName {
+		return nil
 	}
 	if info, err := os.Stat(out); err == nil && info.IsDir() {
 		return fmt.Errorf("-o %s: is a folder, want a file name", out)

@@ -9,7 +9,6 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/transform"
 )
 
@@ -44,7 +43,7 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256})
 			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+			if err := writeOutput(cmd, out, func(w io.Writer) error {
 				return register.WriteMapped(w, prov, cells, mapped, voxel)
 			}); err != nil {
 				return err
@@ -53,7 +52,7 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			for _, m := range mapped {
 				counts[m.Status]++
 			}
-			fmt.Fprintf(cmd.OutOrStdout(), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), out)
+			fmt.Fprintf(summaryWriter(cmd, out), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), outputName(out))
 			return nil
 		},
 	}

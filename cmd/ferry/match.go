@@ -12,7 +12,6 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/match"
-	"ferry/register/outfile"
 )
 
 // maxAmbiguousListed bounds the ambiguous cells printed; the output file
@@ -74,12 +73,12 @@ the nearest one. See docs/matching.md for the method.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+			if err := writeOutput(cmd, out, func(w io.Writer) error {
 				return match.WriteMatches(w, prov, cells, cands, res)
 			}); err != nil {
 				return err
 			}
-			w := cmd.OutOrStdout()
+			w := summaryWriter(cmd, out)
 			how := "estimated from the cells"
 			if share != 0 {
 				how = "as given"
@@ -96,10 +95,10 @@ the nearest one. See docs/matching.md for the method.`,
 					return err
 				}
 				if n > maxAmbiguousListed {
-					fmt.Fprintf(w, "  and %d more (status ambiguous in %s)\n", n-maxAmbiguousListed, out)
+					fmt.Fprintf(w, "  and %d more (status ambiguous in %s)\n", n-maxAmbiguousListed, outputName(out))
 				}
 			}
-			fmt.Fprintf(w, "Wrote %s\n", out)
+			fmt.Fprintf(w, "Wrote %s\n", outputName(out))
 			return nil
 		},
 	}

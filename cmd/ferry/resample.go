@@ -108,6 +108,9 @@ stack is in the target and the plane in the source.`,
 			if like == "" {
 				return fmt.Errorf("--like: a target image whose pixel grid to fill is required")
 			}
+			if err := refuseStdout(f.out, "an image"); err != nil {
+				return err
+			}
 			if err := requireOutput(f.out, args[0], args[1], like); err != nil {
 				return err
 			}
@@ -149,6 +152,9 @@ With --mapped, the mapped cells that lie within one page of the plane are
 marked, coloured by status.`,
 		Args: cobra.ExactArgs(3),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := refuseStdout(f.out, "an image"); err != nil {
+				return err
+			}
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
 				return err
 			}

@@ -9,7 +9,6 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/register/suggest"
 	"ferry/transform"
 )
@@ -46,7 +45,7 @@ See docs/suggest.md.`,
 			if n < 1 {
 				return fmt.Errorf("--n: want a positive number of landmarks, got %d", n)
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
 				return err
 			}
@@ -79,7 +78,10 @@ See docs/suggest.md.`,
 				return err
 			}
 			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
+			if out == stdoutName && asJSON {
+				return fmt.Errorf("-o - with --json: both would go to standard output; give -o a file name")
+			}
+			if err := writeOutput(cmd, out, func(w io.Writer) error {
 				return res.WriteCSV(w, output)
 			}); err != nil {
 				return err
@@ -95,7 +97,7 @@ See docs/suggest.md.`,
 			if asJSON {
 				return writeJSON(cmd.OutOrStdout(), res.JSON(output))
 			}
-			writeSuggestions(cmd.OutOrStdout(), res, output, out)
+			writeSuggestions(summaryWriter(cmd, out), res, output, outputName(out))
 			return nil
 		},
 	}

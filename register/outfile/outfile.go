@@ -2,36 +2,50 @@ package outfile
 
 import (
 	"bufio"
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
+	"strings"
 )
-
-// tempPattern marks ferry's temporary files, so that a user who finds one
-// after a power cut knows where it came from.
-const tempPattern = ".ferry-partial-*"
 
 // Write creates the file at path from what fill writes, whole or not at all.
 // fill writes into a buffered temporary file in the same folder; only when
 // fill returns nil, the data are synced and ctx is still live is the file
 // renamed onto path. On any error, or when ctx is cancelled (an interrupt),
 // the temporary file is removed and path is left as it was.
+//
+// A path that names something other than a regular file or a folder (a
+// device such as /dev/null or /dev/full, a named pipe, a terminal, or
+// /dev/stdout) is never replaced: the output is made in memory and, once
+// whole, written into it as a stream (see IsStream). A link to a regular file
+// is followed, and the file it names is replaced; the link stays a link.
+//
+// When ctx carries a Tracker (WithTracker), the temporary file is known to
+// it until it is renamed or removed, so that a signal handler can remove it.
 func Write(ctx context.Context, path string, fill func(w io.Writer) error) (err error) {
-	if info, err := os.Stat(path); err == nil && info.IsDir() {
-		return fmt.Errorf("cannot write %s: is a folder", path)
+	target, stream, err := resolve(path)
+	if err != nil {
+		return err
 	}
-	dir := filepath.Dir(path)
-	tmp, err := os.CreateTemp(dir, tempPattern)
+	if stream {
+		return writeStream(ctx, path, fill)
+	}
+	dir := filepath.Dir(target)
+	removeStale(dir)
+	t := trackerFrom(ctx)
+	tmp, err := t.create(dir)
 	if err != nil {
 		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
 	}
 	defer func() {
 		if err != nil {
 			tmp.Close()
-			os.Remove(tmp.Name())
+			t.remove(tmp.Name())
 		}
 	}()
 	buf := bufio.NewWriterSize(tmp, 1<<16)
@@ -47,15 +61,15 @@ func Write(ctx context.Context, path string, fill func(w io.Writer) error) (err 
 	if err := tmp.Close(); err != nil {
 		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
 	}
-	if err := ctx.Err(); err != nil {
-		return fmt.Errorf("%s not written: %w", path, err)
-	}
 	// A temporary file is created 0600; an output should read like any
 	// other file the user makes.
 	if err := os.Chmod(tmp.Name(), 0o644); err != nil {
 		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
 	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
+	if err := t.rename(ctx, tmp.Name(), target); err != nil {
+		if ctx.Err() != nil {
+			return fmt.Errorf("%s not written: %w", path, err)
+		}
 		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
 	}
 	return nil
@@ -69,9 +83,137 @@ func WriteBytes(ctx context.Context, path string, data []byte) error {
 	})
 }
 
+// WriteTo writes fill's output to w (standard output, say) whole or not at
+// all: it is made in memory first, and w sees nothing when fill fails or ctx
+// is cancelled. name is what messages call the output.
+func WriteTo(ctx context.Context, w io.Writer, name string, fill func(w io.Writer) error) error {
+	var buf bytes.Buffer
+	if err := fill(&buf); err != nil {
+		return fmt.Errorf("%s not written: %w", name, err)
+	}
+	if err := ctx.Err(); err != nil {
+		return fmt.Errorf("%s not written: %w", name, err)
+	}
+	if _, err := w.Write(buf.Bytes()); err != nil {
+		return fmt.Errorf("cannot write %s: %w", name, unwrapPathError(err))
+	}
+	return nil
+}
+
+// IsStream reports whether Write would write path as a stream: path exists
+// and, links followed, is neither a regular file nor a folder.
+func IsStream(path string) bool {
+	_, stream, err := resolve(path)
+	return err == nil && stream
+}
+
+// resolve says where Write puts path's data: the regular file to replace
+// (a link's target, so that the link survives) or, when stream is true,
+// path itself, to be opened and written into.
+func resolve(path string) (target string, stream bool, err error) {
+	info, err := os.Lstat(path)
+	if errors.Is(err, fs.ErrNotExist) {
+		return path, false, nil
+	}
+	if err != nil {
+		return "", false, fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if info.Mode()&fs.ModeSymlink != 0 {
+		followed, err := os.Stat(path)
+		switch {
+		case errors.Is(err, fs.ErrNotExist):
+			// A dangling link: nothing there to keep.
+			return path, false, nil
+		case err != nil:
+			return "", false, fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+		}
+		info = followed
+		if info.Mode().IsRegular() {
+			// /dev/stdout redirected to a file is a link through /proc:
+			// renaming onto what it names would cut the file from the
+			// shell's redirection (and lose what >> kept). Write it as a
+			// stream.
+			if throughProc(path) {
+				return path, true, nil
+			}
+			real, err := filepath.EvalSymlinks(path)
+			if err != nil {
+				return path, true, nil
+			}
+			return real, false, nil
+		}
+	}
+	switch {
+	case info.IsDir():
+		return "", false, fmt.Errorf("cannot write %s: is a folder", path)
+	case info.Mode().IsRegular():
+		return path, false, nil
+	case info.Mode()&fs.ModeSocket != 0:
+		return "", false, fmt.Errorf("cannot write %s: is a socket, not a file, device or pipe", path)
+	default:
+		return path, true, nil
+	}
+}
+
+// throughProc reports whether path or a link on the way from it to a file
+// goes through /proc or /dev/fd, whose links name open files, not paths.
+func throughProc(path string) bool {
+	p := path
+	for range 40 {
+		abs, err := filepath.Abs(p)
+		if err != nil {
+			return true
+		}
+		if abs == "/proc" || strings.HasPrefix(abs, "/proc/") || strings.HasPrefix(abs, "/dev/fd/") {
+			return true
+		}
+		info, err := os.Lstat(abs)
+		if err != nil || info.Mode()&fs.ModeSymlink == 0 {
+			return false
+		}
+		next, err := os.Readlink(abs)
+		if err != nil {
+			return true
+		}
+		if !filepath.IsAbs(next) {
+			next = filepath.Join(filepath.Dir(abs), next)
+		}
+		p = next
+	}
+	return true
+}
+
+// writeStream writes fill's output into the device, pipe or terminal at
+// path, once it is whole. The output goes at the end of what is there
+// (O_APPEND), so that /dev/stdout redirected with >> to a file keeps what the
+// file held.
+func writeStream(ctx context.Context, path string, fill func(w io.Writer) error) error {
+	var buf bytes.Buffer
+	if err := fill(&buf); err != nil {
+		return fmt.Errorf("%s not written: %w", path, err)
+	}
+	if err := ctx.Err(); err != nil {
+		return fmt.Errorf("%s not written: %w", path, err)
+	}
+	f, err := os.OpenFile(path, os.O_WRONLY|os.O_APPEND, 0)
+	if err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if _, err := f.Write(buf.Bytes()); err != nil {
+		f.Close()
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	if err := f.Close(); err != nil {
+		return fmt.Errorf("cannot write %s: %w", path, unwrapPathError(err))
+	}
+	return nil
+}
+
 // NotAnInput returns an error when out names the same file as one of the
 // inputs, by path or, where both exist, by identity (a link or another
-// spelling of the same path). ferry never writes over its own input.
+// spelling of the same path). ferry never writes over its own input. A
+// device or pipe (a terminal, /dev/null) may be read and written in the
+// same run, so only regular files are compared by identity.
 func NotAnInput(out string, inputs ...string) error {
 	absOut, err := filepath.Abs(out)
 	if err != nil {
@@ -86,7 +228,7 @@ func NotAnInput(out string, inputs ...string) error {
 		if err == nil && absIn == absOut {
 			return fmt.Errorf("output %s is also an input: refusing to write over it", out)
 		}
-		if outErr != nil {
+		if outErr != nil || !outInfo.Mode().IsRegular() {
 			continue
 		}
 		if inInfo, err := os.Stat(in); err == nil && os.SameFile(inInfo, outInfo) {

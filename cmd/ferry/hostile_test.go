@@ -1,0 +1,236 @@
+package main
+
+// Regression tests of the second round of hostile input (issue 16). Each
+// reproduces a probe's finding, which failed before its fix.
+
+import (
+	"errors"
+
+	"io"
+	"io/fs"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+
+	"ferry/register"
+)
+
+// TestOutputOntoDevices: -o onto a device, a pipe or standard output writes
+// into it as a stream; the device stays a device, /dev/full says the disk is
+// full, and "-o -" is standard output for tables and JSON, with the summary
+// moved to stderr. Before, the device was renamed over (as root it became a
+// regular file) and /dev/full gave no error.
+func TestOutputOntoDevices(t *testing.T) {
+	if runtime.GOOS != "linux" {
+		t.Skip("needs /dev/null and /dev/full")
+	}
+	fx := newFixture(t)
+	for _, tc := range []struct {
+		name    string
+		args    []string
+		wantErr string
+	}{
+		{"fit onto /dev/null", []string{"fit", fx.landmarks, "-o", "/dev/null"}, ""},
+		{"map onto /dev/null", []string{"map", fx.transform, fx.cells, "-o", "/dev/null"}, ""},
+		{"fit onto /dev/full", []string{"fit", fx.landmarks, "-o", "/dev/full"}, "no space left on device"},
+		{"map onto /dev/full", []string{"map", fx.transform, fx.cells, "-o", "/dev/full"}, "no space left on device"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			before, err := os.Lstat(tc.args[len(tc.args)-1])
+			if err != nil {
+				t.Fatal(err)
+			}
+			o := ferry(t, tc.args...)
+			if tc.wantErr == "" && o.code != exitOK {
+				t.Errorf("%v", o)
+			}
+			if tc.wantErr != "" {
+				oneLine(t, o, tc.wantErr)
+			}
+			after, err := os.Lstat(tc.args[len(tc.args)-1])
+			if err != nil || after.Mode().Type() != before.Mode().Type() || after.Mode()&fs.ModeCharDevice == 0 {
+				t.Fatalf("%s is no longer a character device: %v %v", tc.args[len(tc.args)-1], after.Mode(), err)
+			}
+		})
+	}
+	t.Run("-o - for a table", func(t *testing.T) {
+		o := mustSucceed(t, "map", fx.transform, fx.cells, "-o", "-")
+		if !strings.Contains(o.stdout, "r95_um") || strings.Contains(o.stdout, "Mapped") {
+			t.Errorf("stdout is not the table alone:\n%s", o.stdout)
+		}
+		if !strings.Contains(o.stderr, "Wrote standard output") {
+			t.Errorf("stderr lacks the summary:\n%s", o.stderr)
+		}
+		if _, err := os.Stat("-"); err == nil {
+			t.Errorf("a file named - was written")
+		}
+	})
+	t.Run("-o - for the transform file", func(t *testing.T) {
+		o := mustSucceed(t, "fit", fx.landmarks, "-o", "-")
+		if !strings.HasPrefix(strings.TrimSpace(o.stdout), "{") {
+			t.Errorf("stdout is not the JSON alone:\n%s", o.stdout)
+		}
+	})
+	t.Run("-o - refused for an image", func(t *testing.T) {
+		sc := newScenarioFixture(t)
+		o := ferry(t, append([]string{"overlay", sc.transform, sc.stack, sc.plane, "-o", "-"}, sc.imageFlags()...)...)
+		oneLine(t, o, "-o -", "file name")
+	})
+	t.Run("a named pipe", func(t *testing.T) {
+		p := filepath.Join(t.TempDir(), "fifo")
+		if err := syscall.Mkfifo(p, 0o600); err != nil {
+			t.Skip(err)
+		}
+		got := make(chan string, 1)
+		go func() {
+			f, err := os.Open(p)
+			if err != nil {
+				got <- err.Error()
+				return
+			}
+			b, _ := io.ReadAll(f)
+			f.Close()
+			got <- string(b)
+		}()
+		mustSucceed(t, "map", fx.transform, fx.cells, "-o", p)
+		select {
+		case s := <-got:
+			if !strings.Contains(s, "r95_um") {
+				t.Errorf("the pipe got %q", s)
+			}
+		case <-time.After(10 * time.Second):
+			t.Fatal("nothing came through the pipe")
+		}
+		if info, err := os.Lstat(p); err != nil || info.Mode()&fs.ModeNamedPipe == 0 {
+			t.Errorf("the pipe was replaced")
+		}
+	})
+}
+
+// TestOutputOntoStdoutLink runs the program with -o /dev/stdout as a shell
+// user would, stdout a pipe: the data come out on the pipe, the summary on
+// stderr, and /dev/stdout is not touched. A link to /proc/self/fd/1 in a
+// folder of the test's stands in for /dev/stdout, so that the test cannot
+// harm the machine if it fails.
+func TestOutputOntoStdoutLink(t *testing.T) {
+	if runtime.GOOS != "linux" {
+		t.Skip("needs /proc")
+	}
+	fx := newFixture(t)
+	dir := t.TempDir()
+	link := filepath.Join(dir, "stdout")
+	if err := os.Symlink("/proc/self/fd/1", link); err != nil {
+		t.Fatal(err)
+	}
+	r := runChild(t, dir, nil, 0, "map", fx.transform, fx.cells, "-o", link)
+	if r.code != 0 {
+		t.Fatalf("%v", r.outcome)
+	}
+	if !strings.Contains(r.stdout, "r95_um") || !strings.Contains(r.stderr, "Wrote") {
+		t.Errorf("stdout %q, stderr %q", r.stdout, r.stderr)
+	}
+	if info, err := os.Lstat(link); err != nil || info.Mode()&fs.ModeSymlink == 0 {
+		t.Errorf("the link was replaced")
+	}
+}
+
+// TestHugeJobRefused: a spline on 100 000 landmarks, the default model's
+// choice, needs hundreds of gigabytes. It is refused in one line before
+// starting, with the estimate and the way out. Before, the program died
+// with "fatal error: runtime: out of memory" and a long stack trace.
+func TestHugeJobRefused(t *testing.T) {
+	const n = 100000
+	dir := t.TempDir()
+	lm := writeFile(t, filepath.Join(dir, "landmarks.csv"), landmarkCSV(n))
+	p := &register.Problem{Dim: 3, IDs: make([]string, n)}
+	est := register.EstimateJob(p, register.Settings{Smoothing: register.Smoothing{Auto: true}})
+	if avail := register.AvailableMemory(); avail == 0 || est.Bytes <= float64(avail) {
+		t.Skipf("this machine has %d bytes available: the job of %g bytes would run", avail, est.Bytes)
+	}
+	for _, cmd := range []string{"check", "fit"} {
+		args := []string{cmd, lm}
+		if cmd == "fit" {
+			args = append(args, "-o", filepath.Join(dir, "t.json"))
+		}
+		start := time.Now()
+		o := ferry(t, args...)
+		oneLine(t, o, "landmarks.csv", "100000 landmarks", "GB of memory", "available", "--model affine")
+		if d := time.Since(start); d > 20*time.Second {
+			t.Errorf("%s took %v to refuse", cmd, d)
+		}
+	}
+	// The way out works: the affine model on the same landmarks.
+	mustSucceed(t, "fit", lm, "--model", "affine", "-o", filepath.Join(dir, "affine.json"))
+}
+
+// TestSignalsEndALongFit sends SIGINT, SIGTERM and SIGHUP to a spline check
+// and fit that would take many seconds, and wants the program to end within
+// a couple of seconds, with exit 1, a message saying so and nothing left in
+// the folder. Before, a 3 000-landmark fit ignored SIGINT for 164 s and
+// SIGHUP left a temporary file behind.
+func TestSignalsEndALongFit(t *testing.T) {
+	if runtime.GOOS == "windows" {
+		t.Skip("no signals on Windows")
+	}
+	dir := t.TempDir()
+	lm := writeFile(t, filepath.Join(dir, "landmarks.csv"), landmarkCSV(1200))
+	// One fit of a 2 500-landmark spline is a factorisation that takes
+	// seconds and checks nothing: the signal handler ends the program.
+	big := writeFile(t, filepath.Join(dir, "big.csv"), landmarkCSV(2500))
+	for _, tc := range []struct {
+		sig  syscall.Signal
+		args []string
+	}{
+		{syscall.SIGINT, []string{"check", lm}},
+		{syscall.SIGINT, []string{"check", big, "--model", "tps", "--smoothing", "0"}},
+		{syscall.SIGTERM, []string{"fit", lm, "-o", filepath.Join(dir, "t.json")}},
+		{syscall.SIGHUP, []string{"fit", lm, "-o", filepath.Join(dir, "t.json")}},
+	} {
+		t.Run(tc.sig.String()+" "+tc.args[0], func(t *testing.T) {
+			cmd := exec.Command(ferryBinary(t), tc.args...)
+			cmd.Dir = dir
+			var stderr strings.Builder
+			cmd.Stderr = &stderr
+			if err := cmd.Start(); err != nil {
+				t.Fatal(err)
+			}
+			time.Sleep(1500 * time.Millisecond)
+			sent := time.Now()
+			if err := cmd.Process.Signal(tc.sig); err != nil {
+				t.Fatal(err)
+			}
+			done := make(chan error, 1)
+			go func() { done <- cmd.Wait() }()
+			var err error
+			select {
+			case err = <-done:
+			case <-time.After(15 * time.Second):
+				cmd.Process.Kill()
+				<-done
+				t.Fatalf("still running 15 s after %v", tc.sig)
+			}
+			took := time.Since(sent)
+			if took > 3*time.Second {
+				t.Errorf("ended %v after %v, want within a couple of seconds", took.Round(time.Millisecond), tc.sig)
+			}
+			var exit *exec.ExitError
+			if !errors.As(err, &exit) || exit.ExitCode() != exitError {
+				t.Errorf("ended with %v, want exit status 1; stderr %q", err, stderr.String())
+			}
+			if !strings.Contains(stderr.String(), "interrupted") {
+				t.Errorf("stderr %q does not say interrupted", stderr.String())
+			}
+			entries, _ := os.ReadDir(dir)
+			if len(entries) != 2 {
+				t.Errorf("folder holds %v, want only the landmarks", entries)
+			}
+			t.Logf("%v: ended after %v: %s", tc.sig, took.Round(time.Millisecond), strings.TrimSpace(stderr.String()))
+		})
+	}
+
+}
