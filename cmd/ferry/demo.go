@@ -50,6 +50,9 @@ EM candidate nuclei, and the truth (true positions, true matches, which
 landmarks were spoiled). See docs/simulation.md.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := simulate.CheckFolder(args[0], simulate.FileNames()...); err != nil {
+				return err
+			}
 			s, err := simulate.Generate(simulate.DefaultParams(), seed)
 			if err != nil {
 				return err

@@ -234,3 +234,34 @@ func TestSignalsEndALongFit(t *testing.T) {
 	}
 
 }
+
+// TestScenarioFolderKeepsUsersFiles: simulate and demo refuse a folder that
+// holds a file of one of their names that they did not write, and leave it
+// as it was; a folder of an earlier scenario is written over. Before, both
+// replaced a user's landmarks.csv without a word.
+func TestScenarioFolderKeepsUsersFiles(t *testing.T) {
+	for _, tc := range []struct {
+		cmd, file string
+	}{
+		{"simulate", "landmarks.csv"},
+		{"simulate", "em_plane.png"},
+		{"demo", "cells.csv"},
+		{"demo", "report.html"},
+	} {
+		t.Run(tc.cmd+" "+tc.file, func(t *testing.T) {
+			dir := t.TempDir()
+			writeFile(t, filepath.Join(dir, tc.file), "the user's own\n")
+			before := snapshot(t, dir)
+			o := ferry(t, tc.cmd, dir)
+			oneLine(t, o, dir, tc.file, "refusing to write over")
+			if diff := sameFolder(before, snapshot(t, dir)); diff != "" {
+				t.Error(diff)
+			}
+		})
+	}
+	t.Run("an earlier scenario", func(t *testing.T) {
+		dir := t.TempDir()
+		mustSucceed(t, "simulate", dir)
+		mustSucceed(t, "simulate", dir, "--seed", "2")
+	})
+}

@@ -72,6 +72,12 @@ type Outcome struct {
 	flaggedVerdicts []register.LandmarkCheck
 }
 
+// FileNames are the names of the files Run writes into its folder, the
+// simulator's included.
+func FileNames() []string {
+	return append(simulate.FileNames(), "transform.json", "mapped.csv", "matches.csv", "overlay.png", "report.html")
+}
+
 // Run simulates the scenario into o.Dir and does the job on its files.
 func Run(ctx context.Context, o Options) (*Outcome, error) {
 	start := time.Now()
@@ -83,6 +89,9 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	params := simulate.DefaultParams()
 	if o.Params != nil {
 		params = *o.Params
+	}
+	if err := simulate.CheckFolder(o.Dir, FileNames()...); err != nil {
+		return nil, err
 	}
 	step("simulating the scenario (seed %d)", o.Seed)
 	scen, err := simulate.Generate(params, o.Seed)

@@ -41,8 +41,13 @@ type Files struct {
 }
 
 // Write writes the scenario's files into dir, creating it if need be. Each
-// file is written whole or not at all (see register/outfile).
+// file is written whole or not at all (see register/outfile). A folder
+// that holds a file of the same name as one the simulator writes, and is not
+// a scenario folder written before, is refused (CheckFolder).
 func (s *Scenario) Write(dir string) (Files, error) {
+	if err := CheckFolder(dir, FileNames()...); err != nil {
+		return Files{}, fmt.Errorf("simulate: %w", err)
+	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return Files{}, fmt.Errorf("simulate: %w", err)
 	}
