@@ -31,16 +31,33 @@ type Input struct {
 }
 
 // Line is the provenance as one line of text, without a comment mark.
+// A path or flag that holds a control character (a line break in a file
+// name, say) is written quoted with Go's escapes (strconv.Quote), so that
+// the line stays one line and the output can be read back.
 func (p Provenance) Line() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "ferry %s %s", Version, p.Command)
 	for _, in := range p.Inputs {
-		fmt.Fprintf(&b, "; %s sha256:%s", in.Path, in.SHA256)
+		fmt.Fprintf(&b, "; %s sha256:%s", OneLine(in.Path), in.SHA256)
 	}
 	if len(p.Flags) > 0 {
-		fmt.Fprintf(&b, "; flags: %s", strings.Join(p.Flags, " "))
+		flags := make([]string, len(p.Flags))
+		for i, f := range p.Flags {
+			flags[i] = OneLine(f)
+		}
+		fmt.Fprintf(&b, "; flags: %s", strings.Join(flags, " "))
 	}
 	return b.String()
+}
+
+// OneLine returns s as it is when it holds no control character and is
+// valid UTF-8, else quoted with Go's escapes (strconv.Quote): a name with a
+// line break in it then takes one line of a file or a message.
+func OneLine(s string) string {
+	if !utf8.ValidString(s) || strings.IndexFunc(s, unicode.IsControl) >= 0 {
+		return strconv.Quote(s)
+	}
+	return s
 }
 
 // formatCoord writes a coordinate or an error in micrometres (or voxels) to
@@ -107,7 +124,7 @@ func WriteMapped(w io.Writer, prov Provenance, cells *landmarks.PointSet, mapped
 		header = append(header, "sd_"+a+"_um")
 	}
 	header = append(header, "r95_um", "status")
-	header = append(header, cells.ExtraColumns...)
+	header = append(header, landmarks.KeptColumnNames(header, cells.ExtraColumns)...)
 	if err := cw.Write(header); err != nil {
 		return err
 	}

@@ -265,3 +265,47 @@ func TestScenarioFolderKeepsUsersFiles(t *testing.T) {
 		mustSucceed(t, "simulate", dir, "--seed", "2")
 	})
 }
+
+// TestOutputsReadBack: what ferry writes, it reads. map of a map output
+// passed the kept columns through under the names of its own (sd_x_um,
+// r95_um, status twice) and the next reader refused the file; a line break
+// in an input's name broke the provenance line in two. Each output here is
+// read again by the command that takes it.
+func TestOutputsReadBack(t *testing.T) {
+	fx := newFixture(t)
+	dir := t.TempDir()
+	odd := writeFile(t, filepath.Join(dir, "ce\nlls;\x1b.csv"), cellsCSV(30))
+	once := filepath.Join(dir, "once.csv")
+	twice := filepath.Join(dir, "twice.csv")
+	thrice := filepath.Join(dir, "thrice.csv")
+	mustSucceed(t, "map", fx.transform, odd, "-o", once)
+	mustSucceed(t, "map", fx.transform, once, "-o", twice)
+	mustSucceed(t, "map", fx.transform, twice, "-o", thrice)
+	mustSucceed(t, "match", fx.transform, twice, fx.cells, "-o", filepath.Join(dir, "matches.csv"))
+	data, err := os.ReadFile(thrice)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var header string
+	for _, line := range strings.Split(string(data), "\n") {
+		if !strings.HasPrefix(line, "#") {
+			header = line
+			break
+		}
+	}
+	seen := map[string]bool{}
+	for _, c := range strings.Split(header, ",") {
+		if seen[strings.ToLower(c)] {
+			t.Errorf("column %q twice in %s", c, header)
+		}
+		seen[strings.ToLower(c)] = true
+	}
+	for _, c := range []string{"r95_um", "input_r95_um", "input_input_r95_um", "input_input_status"} {
+		if !seen[c] {
+			t.Errorf("no column %s in %s", c, header)
+		}
+	}
+	// An error naming the odd file stays on one line.
+	bad := writeFile(t, filepath.Join(dir, "ba\nd.csv"), "id,x,y,z\nc1,1,2,oops\n")
+	oneLine(t, ferry(t, "map", fx.transform, bad, "-o", filepath.Join(dir, "x.csv")), `ba\nd.csv:2`)
+}

@@ -13,8 +13,11 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"strconv"
+	"strings"
 	"syscall"
 	"time"
+	"unicode"
 
 	"ferry/register/outfile"
 )
@@ -76,10 +79,29 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return exitQuality
 	case ctx.Err() != nil:
 		// The error itself may only say "context canceled".
-		fmt.Fprintf(stderr, "ferry: interrupted: %v\n", err)
+		fmt.Fprintf(stderr, "ferry: interrupted: %s\n", oneLineMessage(err))
 		return exitError
 	default:
-		fmt.Fprintf(stderr, "ferry: %v\n", err)
+		fmt.Fprintf(stderr, "ferry: %s\n", oneLineMessage(err))
 		return exitError
 	}
+}
+
+// oneLineMessage is err's message on one line: a control character (a line
+// break in a file name, say) is written with Go's escape, \n.
+func oneLineMessage(err error) string {
+	msg := err.Error()
+	if strings.IndexFunc(msg, unicode.IsControl) < 0 {
+		return msg
+	}
+	var b strings.Builder
+	for _, r := range msg {
+		if unicode.IsControl(r) {
+			q := strconv.QuoteRune(r)
+			b.WriteString(q[1 : len(q)-1])
+			continue
+		}
+		b.WriteRune(r)
+	}
+	return b.String()
 }

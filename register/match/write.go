@@ -32,7 +32,7 @@ func WriteMatches(w io.Writer, prov register.Provenance, cells *landmarks.PointS
 		return err
 	}
 	cw := csv.NewWriter(w)
-	header := append(append([]string(nil), Columns...), cells.ExtraColumns...)
+	header := append(append([]string(nil), Columns...), landmarks.KeptColumnNames(Columns, cells.ExtraColumns)...)
 	if err := cw.Write(header); err != nil {
 		return err
 	}
