@@ -54,6 +54,9 @@ type Mapper struct {
 // NewMapper prepares the mapping of points through the transform of a
 // transform file, with the file's uncertainty model.
 func NewMapper(f *transform.File) (*Mapper, error) {
+	if err := plausible(f.Transform); err != nil {
+		return nil, err
+	}
 	dim := f.Transform.Dim()
 	u, err := ParseUncertaintyModel(f.Uncertainty, dim)
 	if err != nil {

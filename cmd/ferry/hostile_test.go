@@ -18,6 +18,7 @@ import (
 	"time"
 
 	"ferry/register"
+	"ferry/transform"
 )
 
 // TestOutputOntoDevices: -o onto a device, a pipe or standard output writes
@@ -308,4 +309,47 @@ func TestOutputsReadBack(t *testing.T) {
 	// An error naming the odd file stays on one line.
 	bad := writeFile(t, filepath.Join(dir, "ba\nd.csv"), "id,x,y,z\nc1,1,2,oops\n")
 	oneLine(t, ferry(t, "map", fx.transform, bad, "-o", filepath.Join(dir, "x.csv")), `ba\nd.csv:2`)
+}
+
+// TestImplausibleTransformRefused: a transform file edited by hand and
+// resealed (its checksum recomputed) with an offset of 1e200 µm made match
+// write +Inf in distance_um. map and match now refuse such a transform,
+// naming the file, and the match writer refuses any non-finite value.
+func TestImplausibleTransformRefused(t *testing.T) {
+	fx := newFixture(t)
+	dir := t.TempDir()
+	affine := filepath.Join(dir, "affine.json")
+	mustSucceed(t, "fit", fx.landmarks, "--model", "affine", "-o", affine)
+	for _, tc := range []struct {
+		name, from, want string
+		edit             func(f *transform.File)
+	}{
+		{"affine offset 1e200", affine, "beyond", func(f *transform.File) { f.Transform.(*transform.Linear).T[0] = 1e200 }},
+		{"affine matrix 1e200", affine, "singular", func(f *transform.File) { f.Transform.(*transform.Linear).A[1][1] = 1e200 }},
+		{"spline offset 1e200", fx.transform, "beyond", func(f *transform.File) { f.Transform.(*transform.Spline).Offset[2] = -1e200 }},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			f, err := transform.ReadFile(tc.from)
+			if err != nil {
+				t.Fatal(err)
+			}
+			tc.edit(f)
+			data, err := f.Marshal()
+			if err != nil {
+				t.Fatal(err)
+			}
+			bad := writeFile(t, filepath.Join(dir, "resealed.json"), string(data))
+			for _, args := range [][]string{
+				{"map", bad, fx.cells, "-o", filepath.Join(dir, "mapped.csv")},
+				{"match", bad, fx.cells, fx.cells, "-o", filepath.Join(dir, "matches.csv")},
+			} {
+				oneLine(t, ferry(t, args...), "resealed.json", tc.want)
+				for _, out := range []string{"mapped.csv", "matches.csv"} {
+					if _, err := os.Stat(filepath.Join(dir, out)); err == nil {
+						t.Errorf("%s: %s written", args[0], out)
+					}
+				}
+			}
+		})
+	}
 }

@@ -43,6 +43,11 @@ func WriteMatches(w io.Writer, prov register.Provenance, cells *landmarks.PointS
 		if err != nil {
 			return fmt.Errorf("match: cell %q: %v", c.ID, err)
 		}
+		for _, v := range []float64{r.PMatch, r.DistanceUM, r.PRunnerUp, r.PNone} {
+			if math.IsInf(v, 0) {
+				return &landmarks.InputError{File: cells.Path, Line: c.Line, Msg: fmt.Sprintf("cell %q: a distance or probability of %v, not a finite number: nothing written", c.ID, v)}
+			}
+		}
 		row = append(row[:0], c.ID, cand, formatP(r.PMatch), formatDistance(r.DistanceUM), runner, formatP(r.PRunnerUp), r.Status, formatP(r.PNone))
 		row = append(row, c.Extra...)
 		if err := cw.Write(row); err != nil {
