@@ -353,3 +353,45 @@ func TestImplausibleTransformRefused(t *testing.T) {
 		})
 	}
 }
+
+// TestHangupLeavesNothing sends SIGHUP (a closed terminal) to a map of
+// 100 000 cells at points through its run, writing included. Before, the
+// signal killed the program and left a .ferry-partial-* file in the folder.
+func TestHangupLeavesNothing(t *testing.T) {
+	if runtime.GOOS == "windows" {
+		t.Skip("no SIGHUP on Windows")
+	}
+	if testing.Short() {
+		t.Skip("runs the program several times")
+	}
+	fx := newFixture(t)
+	cells := writeFile(t, filepath.Join(fx.dir, "many-cells.csv"), cellsCSV(100000))
+	dir := t.TempDir()
+	args := []string{"map", fx.transform, cells, "-o", filepath.Join(dir, "mapped.csv")}
+	first := runChild(t, dir, nil, 0, args...)
+	if first.code != 0 {
+		t.Fatalf("the complete run: %v", first.outcome)
+	}
+	want := snapshot(t, dir)
+	for _, share := range []float64{0.3, 0.6, 0.8, 0.9, 0.97} {
+		cmd := exec.Command(ferryBinary(t), args...)
+		cmd.Dir = dir
+		var stderr strings.Builder
+		cmd.Stderr = &stderr
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		timer := time.AfterFunc(time.Duration(share*float64(first.elapsed)), func() { cmd.Process.Signal(syscall.SIGHUP) })
+		err := cmd.Wait()
+		timer.Stop()
+		var exit *exec.ExitError
+		if errors.As(err, &exit) {
+			if ws, ok := exit.Sys().(syscall.WaitStatus); ok && ws.Signaled() {
+				t.Errorf("SIGHUP at %.0f %%: killed by the signal", 100*share)
+			}
+		}
+		if diff := sameFolder(want, snapshot(t, dir)); diff != "" {
+			t.Errorf("SIGHUP at %.0f %%: %s", 100*share, diff)
+		}
+	}
+}
