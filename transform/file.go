@@ -7,8 +7,17 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 )
+
+// MaxFileBytes bounds the size of a transform file a reader takes: 64 MiB.
+// A file holds about 540 bytes per landmark (measured on splines of 500 and
+// 1 000 landmarks), so the limit allows some 120 000 landmarks, far more
+// than a spline ferry would fit: its dense system alone would need 6 n² × 8
+// bytes, 700 GB. A larger file (a gigabyte of whitespace, say) is refused
+// before it is read, instead of taking the memory and a minute to parse.
+const MaxFileBytes = 64 << 20
 
 // FormatName and FormatVersion identify the transform file. A reader refuses
 // another name and any version newer than its own.
@@ -235,6 +244,16 @@ func Unmarshal(name string, data []byte) (*File, error) {
 	fail := func(format string, a ...any) (*File, error) {
 		return nil, fmt.Errorf("%s: %s", name, fmt.Sprintf(format, a...))
 	}
+	if len(data) > MaxFileBytes {
+		return fail("%d bytes, more than a transform file holds (at most %d MiB): not a ferry transform file", len(data), MaxFileBytes>>20)
+	}
+	// failAt names the line and column of a JSON error where it has one.
+	failAt := func(err error, format string, a ...any) (*File, error) {
+		if line, col, ok := jsonPosition(data, err); ok {
+			return nil, fmt.Errorf("%s:%d:%d: %s", name, line, col, fmt.Sprintf(format, a...))
+		}
+		return fail(format, a...)
+	}
 	// Read the header alone first, so that a newer file says "newer" rather
 	// than complaining about fields this reader does not know.
 	var head struct {
@@ -242,7 +261,7 @@ func Unmarshal(name string, data []byte) (*File, error) {
 		Version int    `json:"version"`
 	}
 	if err := json.Unmarshal(data, &head); err != nil {
-		return fail("not a ferry transform file (damaged or not JSON: %v)", err)
+		return failAt(err, "not a ferry transform file (damaged or not JSON: %v)", err)
 	}
 	if head.Format != FormatName {
 		return fail("not a ferry transform file (format %q, want %q)", head.Format, FormatName)
@@ -255,7 +274,7 @@ func Unmarshal(name string, data []byte) (*File, error) {
 	}
 	var w fileJSON
 	if err := strictUnmarshal(data, &w); err != nil {
-		return fail("damaged transform file: %v", err)
+		return failAt(err, "damaged transform file: %v", err)
 	}
 	want, err := checksum(w)
 	if err != nil {
@@ -286,13 +305,52 @@ func Unmarshal(name string, data []byte) (*File, error) {
 	}, nil
 }
 
-// ReadFile reads and decodes the transform file at path.
+// ReadFile reads and decodes the transform file at path. A file larger than
+// MaxFileBytes is refused before it is read; from a pipe or a device, no
+// more than that is read.
 func ReadFile(path string) (*File, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot read transform file: %w", err)
 	}
+	defer f.Close()
+	if info, err := f.Stat(); err == nil && info.Mode().IsRegular() && info.Size() > MaxFileBytes {
+		return nil, fmt.Errorf("%s: %d bytes, more than a transform file holds (at most %d MiB): not a ferry transform file", path, info.Size(), MaxFileBytes>>20)
+	}
+	data, err := io.ReadAll(io.LimitReader(f, MaxFileBytes+1))
+	if err != nil {
+		return nil, fmt.Errorf("cannot read transform file: %w", err)
+	}
+	if len(data) > MaxFileBytes {
+		return nil, fmt.Errorf("%s: more than %d MiB, more than a transform file holds: not a ferry transform file", path, MaxFileBytes>>20)
+	}
 	return Unmarshal(path, data)
+}
+
+// jsonPosition is the line and column (from 1, in bytes) of a JSON syntax
+// or type error in data.
+func jsonPosition(data []byte, err error) (line, col int, ok bool) {
+	var offset int64
+	var syntax *json.SyntaxError
+	var typ *json.UnmarshalTypeError
+	switch {
+	case errors.As(err, &syntax):
+		offset = syntax.Offset
+	case errors.As(err, &typ):
+		offset = typ.Offset
+	default:
+		return 0, 0, false
+	}
+	if offset < 0 || offset > int64(len(data)) {
+		return 0, 0, false
+	}
+	before := data[:offset]
+	line = 1 + bytes.Count(before, []byte{'\n'})
+	col = int(offset) - (bytes.LastIndexByte(before, '\n') + 1)
+	if col < 1 {
+		col = 1
+	}
+	return line, col, true
 }
 
 func strictUnmarshal(data []byte, v any) error {

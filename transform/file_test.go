@@ -93,7 +93,7 @@ func TestFileRefusals(t *testing.T) {
 			if err == nil {
 				t.Fatal("accepted")
 			}
-			if !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "t.json: ") {
+			if !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "t.json:") {
 				t.Errorf("error %q, want the file name and %q", err, tc.want)
 			}
 		})
