@@ -179,7 +179,7 @@ func (t *table) require(hint string, names ...string) ([]int, error) {
 	for k, name := range names {
 		idx[k] = t.column(name)
 		if idx[k] < 0 {
-			msg := "missing from the header, which has " + strings.Join(t.header, ", ")
+			msg := "missing from the header, which has " + headerList(t.header)
 			if allNumbers(t.header) {
 				msg += " (is the header row missing?)"
 			} else if hint != "" {
