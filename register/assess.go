@@ -175,6 +175,11 @@ func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, er
 	if model == "" {
 		model = mostFlexible(p)
 	}
+	if model == transform.TPS {
+		if err := repeatedSource(p); err != nil {
+			return nil, err
+		}
+	}
 	flags, err := flagLandmarks(p, model, weights, s, a.Radii)
 	if err != nil {
 		return nil, err

@@ -18,6 +18,9 @@ type Problem struct {
 	IDs            []string
 	Kinds          []landmarks.Kind
 	Source, Target []transform.Vec
+	// Lines are the pairs' lines in the landmark file, for messages; may
+	// be nil.
+	Lines []int
 }
 
 // NewProblem takes the pairs of a landmark file, already scaled to
@@ -29,7 +32,16 @@ func NewProblem(set *landmarks.PairSet) *Problem {
 		Kinds:  set.Kinds(),
 		Source: set.Sources(),
 		Target: set.Targets(),
+		Lines:  pairLines(set),
 	}
+}
+
+func pairLines(set *landmarks.PairSet) []int {
+	lines := make([]int, len(set.Pairs))
+	for i, pr := range set.Pairs {
+		lines[i] = pr.Line
+	}
+	return lines
 }
 
 // Len is the number of landmark pairs.
@@ -44,6 +56,9 @@ func (p *Problem) subset(keep func(i int) bool) *Problem {
 			q.Kinds = append(q.Kinds, p.Kinds[i])
 			q.Source = append(q.Source, p.Source[i])
 			q.Target = append(q.Target, p.Target[i])
+			if i < len(p.Lines) {
+				q.Lines = append(q.Lines, p.Lines[i])
+			}
 		}
 	}
 	return q

@@ -395,3 +395,38 @@ func TestHangupLeavesNothing(t *testing.T) {
 		}
 	}
 }
+
+// TestRepeatedSourceNamed: two landmarks at one source position, with
+// different targets or the same, were refused by the spline naming "pairs 0
+// and 39" (0-based indices). The refusal now names both by id and line,
+// with the way out, for the default model and for --model tps with any
+// smoothing.
+func TestRepeatedSourceNamed(t *testing.T) {
+	dir := t.TempDir()
+	base := landmarkCSV(40)
+	lines := strings.Split(strings.TrimSpace(base), "\n")
+	first := strings.Split(lines[3], ",") // L02 on line 4
+	for _, tc := range []struct {
+		name, target string
+		args         []string
+		want         string
+	}{
+		{"another target, default model", "999", nil, "targets"},
+		{"another target, tps auto", "999", []string{"--model", "tps"}, "targets"},
+		{"another target, tps 0", "999", []string{"--model", "tps", "--smoothing", "0"}, "targets"},
+		{"the same pair twice", first[7], nil, "given twice"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			dup := append([]string{"DUP"}, first[1:]...)
+			dup[7] = tc.target
+			path := writeFile(t, filepath.Join(dir, "landmarks.csv"), base+strings.Join(dup, ",")+"\n")
+			o := ferry(t, append([]string{"check", path}, tc.args...)...)
+			oneLine(t, o, "landmarks.csv", "L02 (line 4)", "DUP (line 43)", tc.want, "--exclude DUP")
+		})
+	}
+	// A linear model takes the repeated position.
+	path := writeFile(t, filepath.Join(dir, "landmarks.csv"), base+"DUP,"+strings.Join(first[1:], ",")+"\n")
+	if o := ferry(t, "check", path, "--model", "affine"); o.code == exitError {
+		t.Errorf("affine: %v", o)
+	}
+}
