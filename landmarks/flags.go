@@ -8,10 +8,21 @@ import (
 	"ferry/transform"
 )
 
+// The range of every per-axis value (a voxel size, a standard deviation), in
+// micrometres: from a picometre, a hundred times finer than any microscope
+// resolves, to a metre, beyond any specimen. Outside it a value is a slip,
+// and one such as 1e300 or 5e-324 overflowed or vanished in the arithmetic
+// later, where the message then blamed a column of the cells file.
+const (
+	MinPerAxisUM = 1e-6
+	MaxPerAxisUM = 1e6
+)
+
 // ParseTriple reads the value of a per-axis flag such as
 // "--source-voxel 0.5,0.5,2" or "--cell-sd 1,1,3": dim comma-separated
 // numbers (X,Y,Z in 3-D; X,Y in 2-D, where the Z of the result is left
-// zero), each positive and finite, in micrometres. flagName, with its dashes, starts every message.
+// zero), each from MinPerAxisUM to MaxPerAxisUM micrometres. flagName, with
+// its dashes, starts every message.
 func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 	var v transform.Vec
 	axes := "X,Y,Z"
@@ -40,6 +51,9 @@ func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 		}
 		if !(x > 0) {
 			return v, fail(axes[2*a:2*a+1] + " is not positive")
+		}
+		if x < MinPerAxisUM || x > MaxPerAxisUM {
+			return v, fail(fmt.Sprintf("%s is %g, outside %g to %g µm", axes[2*a:2*a+1], x, MinPerAxisUM, MaxPerAxisUM))
 		}
 		v[a] = x
 	}

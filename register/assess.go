@@ -157,6 +157,9 @@ func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, er
 	if err := spreadAtAll(p); err != nil {
 		return nil, err
 	}
+	if err := farOutlier(p); err != nil {
+		return nil, err
+	}
 	if s.Model != "" {
 		if err := enoughFor(p, s.Model); err != nil {
 			return nil, err

@@ -62,3 +62,54 @@ func formatVecUM(v transform.Vec, dim int) string {
 	}
 	return fmt.Sprintf("(%g, %g, %g) µm", v[0], v[1], v[2])
 }
+
+// farOutlierFactor is how many times farther than the typical landmark
+// from the median position a landmark must lie to be refused as a slip: a
+// coordinate of 999999999 among landmarks a few hundred micrometres apart is
+// a million times farther. A factor of 1e5 leaves every real layout alone
+// (a field of view is never 100 000 times wider than the spacing of half
+// its landmarks) and still catches the slips that made the fit report
+// "source points lie on a plane" without naming any line.
+const farOutlierFactor = 1e5
+
+// farOutlier refuses a landmark that lies so far from the others that it can
+// only be a slip (a typo, a wrong unit), naming it by id and line, on
+// either side. Distances are from the per-axis median position and
+// compared with their median.
+func farOutlier(p *Problem) error {
+	if p.Len() < 4 {
+		return nil
+	}
+	for _, side := range []struct {
+		name string
+		pos  []transform.Vec
+	}{{"source", p.Source}, {"target", p.Target}} {
+		var centre transform.Vec
+		vals := make([]float64, p.Len())
+		for k := range p.Dim {
+			for i, q := range side.pos {
+				vals[i] = q[k]
+			}
+			centre[k] = median(vals)
+		}
+		dist := make([]float64, p.Len())
+		for i, q := range side.pos {
+			dist[i] = q.Sub(centre).Norm()
+		}
+		typical := median(dist)
+		if !(typical > coincidentUM) {
+			continue
+		}
+		worst := 0
+		for i := range dist {
+			if dist[i] > dist[worst] {
+				worst = i
+			}
+		}
+		if dist[worst] > farOutlierFactor*typical {
+			return fmt.Errorf("landmark %s%s: its %s position %s lies %.3g µm from the landmarks' median position, %.2g times farther than the typical landmark (%.3g µm): a typo or a unit slip? Correct it or leave it out (--exclude %s)",
+				p.IDs[worst], p.lineOf(worst), side.name, formatVecUM(side.pos[worst], p.Dim), dist[worst], dist[worst]/typical, typical, p.IDs[worst])
+		}
+	}
+	return nil
+}

@@ -287,8 +287,10 @@ func Unmarshal(name string, data []byte) (*File, error) {
 		return fail("units %q, want \"micrometre\"", w.Units)
 	}
 	for _, v := range []*Vec{w.SourceVoxel, w.TargetVoxel} {
-		if v != nil && !(v[0] > 0 && v[1] > 0 && v[2] > 0 && v.IsFinite()) {
-			return fail("voxel size %v: want positive numbers", *v)
+		// The range of the voxel flags (landmarks.MinPerAxisUM to
+		// MaxPerAxisUM): a picometre to a metre.
+		if v != nil && !(v[0] >= 1e-6 && v[1] >= 1e-6 && v[2] >= 1e-6 && v[0] <= 1e6 && v[1] <= 1e6 && v[2] <= 1e6) {
+			return fail("voxel size %v µm: want numbers from 1e-06 to 1e+06 µm", *v)
 		}
 	}
 	t, err := decodeTransform(w.Transform, 0)

@@ -430,3 +430,48 @@ func TestRepeatedSourceNamed(t *testing.T) {
 		t.Errorf("affine: %v", o)
 	}
 }
+
+// TestMessagesBlameTheRightInput: each fault is named where it is. Before, a
+// coordinate of 999999999 gave "source points lie on a plane" with no line,
+// --cell-sd 1e300 blamed a column of the cells file, and a voxel size of
+// 5e-324 was taken, so that map --inverse later blamed the cells file.
+func TestMessagesBlameTheRightInput(t *testing.T) {
+	fx := newFixture(t)
+	dir := t.TempDir()
+	far := writeFile(t, filepath.Join(dir, "far.csv"), landmarkCSV(40)+"FAR,vessel,999999999,10,10,100,100,100,x\n")
+	tiny, err := transform.ReadFile(fx.transform)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tiny.TargetVoxel = &transform.Vec{5e-324, 1, 1}
+	data, err := tiny.Marshal()
+	if err != nil {
+		t.Fatal(err)
+	}
+	tinyPath := writeFile(t, filepath.Join(dir, "tiny-voxel.json"), string(data))
+	out := filepath.Join(dir, "out.csv")
+	for _, tc := range []struct {
+		name string
+		args []string
+		want []string
+	}{
+		{"a coordinate of 999999999", []string{"check", far}, []string{"far.csv", "FAR (line 43)", "source", "--exclude FAR"}},
+		{"--cell-sd 1e300", []string{"map", fx.transform, fx.cells, "--cell-sd", "1e300,1,1", "-o", out}, []string{"--cell-sd", "1e+300", "outside"}},
+		{"--cell-sd 5e-324", []string{"map", fx.transform, fx.cells, "--cell-sd", "1,5e-324,1", "-o", out}, []string{"--cell-sd", "Y is 5e-324"}},
+		{"--source-voxel 5e-324", []string{"fit", fx.landmarks, "--source-voxel", "5e-324,1,1", "-o", out}, []string{"--source-voxel", "outside"}},
+		{"--target-sd 1e300", []string{"check", fx.landmarks, "--target-sd", "1,1,1e300"}, []string{"--target-sd", "outside"}},
+		{"--candidate-sd 1e300", []string{"match", fx.transform, fx.cells, fx.cells, "--candidate-sd", "1e300", "-o", out}, []string{"--candidate-sd"}},
+		{"a transform file with a voxel of 5e-324", []string{"map", tinyPath, fx.cells, "--inverse", "-o", out}, []string{"tiny-voxel.json", "voxel size"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			o := ferry(t, tc.args...)
+			oneLine(t, o, tc.want...)
+			if strings.Contains(o.stderr, "cells.csv") || strings.Contains(o.stderr, "plane") {
+				t.Errorf("blames the wrong input: %s", o.stderr)
+			}
+			if _, err := os.Stat(out); err == nil {
+				t.Errorf("%s written", out)
+			}
+		})
+	}
+}

@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"math"
 	"strconv"
 	"strings"
 
@@ -37,8 +36,8 @@ the nearest one. See docs/matching.md for the method.`,
 			if err := requireOutput(out, args...); err != nil {
 				return err
 			}
-			if !(candidateSD > 0) || math.IsInf(candidateSD, 0) {
-				return fmt.Errorf("--candidate-sd: want a positive number of micrometres, got %v", candidateSD)
+			if !(candidateSD >= landmarks.MinPerAxisUM && candidateSD <= landmarks.MaxPerAxisUM) {
+				return fmt.Errorf("--candidate-sd: want a number of micrometres from %g to %g, got %v", landmarks.MinPerAxisUM, landmarks.MaxPerAxisUM, candidateSD)
 			}
 			if !(minP > 0.5 && minP < 1) {
 				return fmt.Errorf("--min-p: want a probability between 0.5 and 1, got %v", minP)
