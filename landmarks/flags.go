@@ -2,6 +2,7 @@ package landmarks
 
 import (
 	"encoding/csv"
+	"errors"
 	"fmt"
 	"strings"
 
@@ -104,4 +105,15 @@ func ParseIDList(flagName, value string) ([]string, error) {
 		ids[i] = id
 	}
 	return ids, nil
+}
+
+// ParseDecimal reads a number as the tables' numbers are read: a finite
+// decimal number, digits without separators, a point as the decimal mark,
+// no hexadecimal. The message of its error says why s is not one.
+func ParseDecimal(s string) (float64, error) {
+	v, msg := parseNumber(s)
+	if msg != "" {
+		return 0, errors.New(msg)
+	}
+	return v, nil
 }

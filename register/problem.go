@@ -3,7 +3,6 @@ package register
 import (
 	"context"
 	"fmt"
-	"math"
 	"strconv"
 	"strings"
 
@@ -75,10 +74,8 @@ func ParseSmoothing(s string) (Smoothing, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return Smoothing{Auto: true}, nil
 	}
-	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-	// ParseFloat also reads hexadecimal and digit separators, which no
-	// other number ferry reads accepts.
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || strings.ContainsAny(s, "xX_") {
+	v, err := landmarks.ParseDecimal(s)
+	if err != nil {
 		return Smoothing{}, fmt.Errorf("--smoothing: want \"auto\" or a number ≥ 0, got %q", s)
 	}
 	if v < 0 {

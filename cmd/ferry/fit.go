@@ -111,7 +111,7 @@ leave-one-out error exceeds --max-error.`,
 		},
 	}
 	flags.register(cmd)
-	cmd.Flags().Float64Var(&maxError, "max-error", 0, "fail (exit 3) when a leave-one-out error exceeds this many µm")
+	newDecimalFlag(cmd.Flags(), &maxError, "max-error", 0, "fail (exit 3) when a leave-one-out error exceeds this many µm")
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print one JSON object instead of the table")
 	return cmd
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"os"
+	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -178,4 +179,25 @@ func requireOutput(out string, inputs ...string) error {
 		return fmt.Errorf("-o %s: is a folder, want a file name", out)
 	}
 	return outfile.NotAnInput(out, inputs...)
+}
+
+// decimalFlag is a number flag read by the tables' rule
+// (landmarks.ParseDecimal): the flag library's own reading also takes Go's
+// digit separators (1_0) and hexadecimal, which no number in a table may be.
+type decimalFlag float64
+
+func newDecimalFlag(fl *pflag.FlagSet, p *float64, name string, value float64, usage string) {
+	*p = value
+	fl.Var((*decimalFlag)(p), name, usage)
+}
+
+func (d *decimalFlag) String() string { return strconv.FormatFloat(float64(*d), 'g', -1, 64) }
+func (d *decimalFlag) Type() string   { return "float" }
+func (d *decimalFlag) Set(s string) error {
+	v, err := landmarks.ParseDecimal(s)
+	if err != nil {
+		return err
+	}
+	*d = decimalFlag(v)
+	return nil
 }

@@ -475,3 +475,31 @@ func TestMessagesBlameTheRightInput(t *testing.T) {
 		})
 	}
 }
+
+// TestOneNumberRule: 1_234.5 was read as 1234.5 while 1,234.5 and 1 234.5
+// were refused. Digit separators of any kind are now refused, in tables
+// (landmarks' tests) and in every number flag.
+func TestOneNumberRule(t *testing.T) {
+	fx := newFixture(t)
+	dir := t.TempDir()
+	out := filepath.Join(dir, "out.csv")
+	cells := writeFile(t, filepath.Join(dir, "cells.csv"), "id,x,y,z\nc1,1_234.5,2,3\n")
+	for _, tc := range []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"a table", []string{"map", fx.transform, cells, "-o", out}, `cells.csv:2: column "x"`},
+		{"--smoothing", []string{"check", fx.landmarks, "--smoothing", "1_0"}, "--smoothing"},
+		{"--max-error", []string{"check", fx.landmarks, "--max-error", "1_0"}, "max-error"},
+		{"--source-sd", []string{"check", fx.landmarks, "--source-sd", "1_0,1,1"}, "--source-sd"},
+		{"--candidate-sd", []string{"match", fx.transform, fx.cells, fx.cells, "--candidate-sd", "1_0", "-o", out}, "candidate-sd"},
+		{"--min-p", []string{"match", fx.transform, fx.cells, fx.cells, "--min-p", "0_9", "-o", out}, "min-p"},
+		{"--prior-counterpart", []string{"match", fx.transform, fx.cells, fx.cells, "--prior-counterpart", "0_5", "-o", out}, "--prior-counterpart"},
+		{"hexadecimal --max-error", []string{"check", fx.landmarks, "--max-error", "0x10"}, "max-error"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			oneLine(t, ferry(t, tc.args...), tc.want)
+		})
+	}
+}

@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -104,9 +103,9 @@ the nearest one. See docs/matching.md for the method.`,
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "matches to write (CSV)")
 	fl.StringVar(&cellSD, "cell-sd", "", "localisation error of the cells' own coordinates X,Y,Z in µm (one standard deviation)")
-	fl.Float64Var(&candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
+	newDecimalFlag(fl, &candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
 	fl.StringVar(&prior, "prior-counterpart", "auto", "share of cells inside the candidates' volume that have a counterpart there, in (0, 1), or auto to estimate it")
-	fl.Float64Var(&minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
+	newDecimalFlag(fl, &minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
 	return cmd
 }
 
@@ -115,7 +114,7 @@ func parsePrior(s string) (float64, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return 0, nil
 	}
-	p, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	p, err := landmarks.ParseDecimal(s)
 	if err != nil || !(p > 0 && p < 1) {
 		return 0, fmt.Errorf("--prior-counterpart: want auto or a probability between 0 and 1, got %q", s)
 	}
