@@ -503,3 +503,45 @@ func TestOneNumberRule(t *testing.T) {
 		})
 	}
 }
+
+// TestImageFormatFollowsTheName: resample -o x.jpg wrote TIFF data and
+// overlay -o x.tif wrote PNG. The extension now picks the format, and one
+// the command cannot write is refused before the work starts.
+func TestImageFormatFollowsTheName(t *testing.T) {
+	sc := newScenarioFixture(t)
+	tiffMagic, pngMagic := "II*\x00", "\x89PNG"
+	for _, tc := range []struct {
+		cmd, name, magic string // magic "" means refused
+	}{
+		{"resample", "x.tif", tiffMagic},
+		{"resample", "x.TIFF", tiffMagic},
+		{"resample", "x.png", pngMagic},
+		{"resample", "x.jpg", ""},
+		{"overlay", "x.png", pngMagic},
+		{"overlay", "x.tif", ""},
+		{"overlay", "x.jpeg", ""},
+	} {
+		t.Run(tc.cmd+" "+tc.name, func(t *testing.T) {
+			out := filepath.Join(t.TempDir(), tc.name)
+			args := []string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}
+			if tc.cmd == "overlay" {
+				args = []string{"overlay", sc.transform, sc.stack, sc.plane, "-o", out}
+			}
+			o := ferry(t, append(args, sc.imageFlags()...)...)
+			if tc.magic == "" {
+				oneLine(t, o, tc.name, "name the output")
+				if _, err := os.Stat(out); err == nil {
+					t.Errorf("%s written", out)
+				}
+				return
+			}
+			if o.code != exitOK {
+				t.Fatalf("%v", o)
+			}
+			data, err := os.ReadFile(out)
+			if err != nil || !strings.HasPrefix(string(data), tc.magic) {
+				t.Errorf("%s does not begin %q: %.8q", tc.name, tc.magic, data)
+			}
+		})
+	}
+}

@@ -8,6 +8,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strings"
 	"syscall"
 	"testing"
@@ -21,18 +22,20 @@ func TestCancelledBeforeWriting(t *testing.T) {
 	fx := newFixture(t)
 	dir := t.TempDir()
 	out := writeFile(t, filepath.Join(dir, "mapped.csv"), "an earlier output\n")
+	outTIF := writeFile(t, filepath.Join(dir, "resampled.tif"), "an earlier output\n")
+	outPNG := writeFile(t, filepath.Join(dir, "overlay.png"), "an earlier output\n")
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
 	sc := newScenarioFixture(t)
 	for _, args := range [][]string{
 		{"map", fx.transform, fx.cells, "-o", out},
 		{"fit", fx.landmarks, "-o", out},
-		append([]string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", out}, sc.imageFlags()...),
-		append([]string{"overlay", sc.transform, sc.stack, sc.plane, "-o", out}, sc.imageFlags()...),
+		append([]string{"resample", sc.transform, sc.stack, "--like", sc.plane, "-o", outTIF}, sc.imageFlags()...),
+		append([]string{"overlay", sc.transform, sc.stack, sc.plane, "-o", outPNG}, sc.imageFlags()...),
 	} {
 		before := snapshot(t, dir)
 		o := ferryContext(ctx, args...)
-		oneLine(t, o, "interrupted", out+" not written")
+		oneLine(t, o, "interrupted", args[slices.Index(args, "-o")+1]+" not written")
 		if diff := sameFolder(before, snapshot(t, dir)); diff != "" {
 			t.Errorf("%s: %s", args[0], diff)
 		}

@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"path/filepath"
 	"strconv"
 	"strings"
 
@@ -114,6 +115,10 @@ stack is in the target and the plane in the source.`,
 			if err := requireOutput(f.out, args[0], args[1], like); err != nil {
 				return err
 			}
+			format, err := imageFormat(f.out, "tiff", "tiff", "png")
+			if err != nil {
+				return err
+			}
 			job, err := f.load(args[0], args[1], like)
 			if err != nil {
 				return err
@@ -127,7 +132,11 @@ stack is in the target and the plane in the source.`,
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
-			if err := imaging.WriteTIFF(f.out, out); err != nil {
+			write := func() error { return imaging.WriteTIFF(f.out, out) }
+			if format == "png" {
+				write = func() error { return imaging.WritePNG(f.out, out.Image(0)) }
+			}
+			if err := write(); err != nil {
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", describeResample(rep), f.out)
@@ -156,6 +165,9 @@ marked, coloured by status.`,
 				return err
 			}
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
+				return err
+			}
+			if _, err := imageFormat(f.out, "png", "png"); err != nil {
 				return err
 			}
 			job, err := f.load(args[0], args[1], args[2])
@@ -232,4 +244,31 @@ func readMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mark, er
 		}
 	}
 	return imaging.PlaneMarks(pos, reach, states, imaging.GridLike(job.plane, job.gridVox, f.targetZ)), nil
+}
+
+// imageFormat is the format of an image output by its extension: .tif or
+// .tiff for TIFF, .png for PNG, among those allowed; a name without an
+// extension (a device such as /dev/null, say) takes def. Any other
+// extension is refused before the work starts: the data written must be what
+// the name says.
+func imageFormat(out, def string, allowed ...string) (string, error) {
+	ext := strings.ToLower(filepath.Ext(out))
+	format := ""
+	switch ext {
+	case "":
+		return def, nil
+	case ".tif", ".tiff":
+		format = "tiff"
+	case ".png":
+		format = "png"
+	}
+	var kinds, names []string
+	for _, a := range allowed {
+		if a == format {
+			return format, nil
+		}
+		kinds = append(kinds, strings.ToUpper(a))
+		names = append(names, map[string]string{"tiff": ".tif or .tiff", "png": ".png"}[a])
+	}
+	return "", fmt.Errorf("-o %s: this command writes %s images: name the output %s", out, strings.Join(kinds, " or "), strings.Join(names, " or "))
 }
