@@ -241,11 +241,29 @@ func checksum(w fileJSON) (string, error) {
 // not know, with a checksum that does not match, or with parameters that do
 // not make a valid transform.
 func Unmarshal(name string, data []byte) (*File, error) {
+	return unmarshalLimited(name, data, MaxFileBytes)
+}
+
+// tooLarge is the refusal of a file of more than limit bytes.
+func tooLarge(name string, limit int) error {
+	return fmt.Errorf("%s: more than %s, more than a transform file holds: not a ferry transform file", name, sizeWords(limit))
+}
+
+func sizeWords(n int) string {
+	if n >= 1<<20 && n%(1<<20) == 0 {
+		return fmt.Sprintf("%d MiB", n>>20)
+	}
+	return fmt.Sprintf("%d bytes", n)
+}
+
+// unmarshalLimited is Unmarshal with the size limit given, so that the fuzz
+// target can reach the limit's path with small inputs.
+func unmarshalLimited(name string, data []byte, limit int) (*File, error) {
 	fail := func(format string, a ...any) (*File, error) {
 		return nil, fmt.Errorf("%s: %s", name, fmt.Sprintf(format, a...))
 	}
-	if len(data) > MaxFileBytes {
-		return fail("%d bytes, more than a transform file holds (at most %d MiB): not a ferry transform file", len(data), MaxFileBytes>>20)
+	if len(data) > limit {
+		return nil, tooLarge(name, limit)
 	}
 	// failAt names the line and column of a JSON error where it has one.
 	failAt := func(err error, format string, a ...any) (*File, error) {
@@ -311,22 +329,26 @@ func Unmarshal(name string, data []byte) (*File, error) {
 // MaxFileBytes is refused before it is read; from a pipe or a device, no
 // more than that is read.
 func ReadFile(path string) (*File, error) {
+	return readFileLimited(path, MaxFileBytes)
+}
+
+func readFileLimited(path string, limit int) (*File, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot read transform file: %w", err)
 	}
 	defer f.Close()
-	if info, err := f.Stat(); err == nil && info.Mode().IsRegular() && info.Size() > MaxFileBytes {
-		return nil, fmt.Errorf("%s: %d bytes, more than a transform file holds (at most %d MiB): not a ferry transform file", path, info.Size(), MaxFileBytes>>20)
+	if info, err := f.Stat(); err == nil && info.Mode().IsRegular() && info.Size() > int64(limit) {
+		return nil, tooLarge(path, limit)
 	}
-	data, err := io.ReadAll(io.LimitReader(f, MaxFileBytes+1))
+	data, err := io.ReadAll(io.LimitReader(f, int64(limit)+1))
 	if err != nil {
 		return nil, fmt.Errorf("cannot read transform file: %w", err)
 	}
-	if len(data) > MaxFileBytes {
-		return nil, fmt.Errorf("%s: more than %d MiB, more than a transform file holds: not a ferry transform file", path, MaxFileBytes>>20)
+	if len(data) > limit {
+		return nil, tooLarge(path, limit)
 	}
-	return Unmarshal(path, data)
+	return unmarshalLimited(path, data, limit)
 }
 
 // jsonPosition is the line and column (from 1, in bytes) of a JSON syntax

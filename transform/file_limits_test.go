@@ -49,7 +49,7 @@ func TestReadFileSizeLimit(t *testing.T) {
 	}
 	for _, p := range paths {
 		_, err := ReadFile(p)
-		if err == nil || !strings.Contains(err.Error(), "MiB") || !strings.Contains(err.Error(), p) {
+		if err == nil || !strings.Contains(err.Error(), "64 MiB") || !strings.Contains(err.Error(), p) {
 			t.Errorf("%s: error %v, want a refusal naming the file and the limit", p, err)
 		}
 	}
