@@ -32,7 +32,10 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 				return err
 			}
 			file, cells := job.file, job.cells
-			mapped := job.mapper.MapAll(job.pos, job.cellSD, inverse)
+			mapped, err := job.mapper.MapAllContext(cmd.Context(), job.pos, job.cellSD, inverse)
+			if err != nil {
+				return fmt.Errorf("%s not written: %w", outputName(out), err)
+			}
 			voxel := file.TargetVoxel
 			if inverse {
 				voxel = file.SourceVoxel
