@@ -57,12 +57,12 @@ landmarks were spoiled). See docs/simulation.md.`,
 			if err != nil {
 				return err
 			}
-			files, err := s.Write(args[0])
+			files, err := s.WriteContext(cmd.Context(), args[0])
 			if err != nil {
 				return err
 			}
 			ip := s.DefaultImageParams()
-			stack, plane, err := s.WriteImages(args[0], ip)
+			stack, plane, err := s.WriteImagesContext(cmd.Context(), args[0], ip)
 			if err != nil {
 				return err
 			}

@@ -132,9 +132,9 @@ stack is in the target and the plane in the source.`,
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
-			write := func() error { return imaging.WriteTIFF(f.out, out) }
+			write := func() error { return imaging.WriteTIFFContext(cmd.Context(), f.out, out) }
 			if format == "png" {
-				write = func() error { return imaging.WritePNG(f.out, out.Image(0)) }
+				write = func() error { return imaging.WritePNGContext(cmd.Context(), f.out, out.Image(0)) }
 			}
 			if err := write(); err != nil {
 				return err
@@ -188,7 +188,7 @@ marked, coloured by status.`,
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
-			if err := imaging.WritePNG(f.out, img); err != nil {
+			if err := imaging.WritePNGContext(cmd.Context(), f.out, img); err != nil {
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", describeResample(rep), len(marks), f.out)

@@ -99,7 +99,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 	out := &Outcome{Statuses: map[string]int{}}
-	if out.Files.Files, err = scen.Write(o.Dir); err != nil {
+	if out.Files.Files, err = scen.WriteContext(ctx, o.Dir); err != nil {
 		return nil, err
 	}
 	f := &out.Files
@@ -231,7 +231,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 
 	step("drawing the scenario's images and the overlay")
 	ip := scen.DefaultImageParams()
-	stackPath, planePath, err := scen.WriteImages(o.Dir, ip)
+	stackPath, planePath, err := scen.WriteImagesContext(ctx, o.Dir, ip)
 	if err != nil {
 		return nil, err
 	}
@@ -313,7 +313,7 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err
 	}
-	if err := imaging.WritePNG(path, img); err != nil {
+	if err := imaging.WritePNGContext(ctx, path, img); err != nil {
 		return overlayResult{}, err
 	}
 	return overlayResult{path: path, marks: len(marks), outside: rep.OutsideShare()}, nil

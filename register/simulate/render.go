@@ -1,6 +1,7 @@
 package simulate
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"path/filepath"
@@ -60,6 +61,12 @@ func (s *Scenario) DefaultImageParams() ImageParams {
 // WriteImages draws and writes the in vivo stack (multi-page TIFF) and the
 // EM plane (PNG) into dir, returning their paths.
 func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string, err error) {
+	return s.WriteImagesContext(context.Background(), dir, ip)
+}
+
+// WriteImagesContext is WriteImages with the run's context, which carries
+// its output tracker (register/outfile); the writes are not cut short.
+func (s *Scenario) WriteImagesContext(ctx context.Context, dir string, ip ImageParams) (stack, plane string, err error) {
 	st, err := s.InVivoStack(ip)
 	if err != nil {
 		return "", "", err
@@ -69,10 +76,10 @@ func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string,
 		return "", "", err
 	}
 	stack, plane = filepath.Join(dir, InVivoStackFile), filepath.Join(dir, EMPlaneFile)
-	if err := imaging.WriteTIFF(stack, st); err != nil {
+	if err := imaging.WriteTIFFContext(ctx, stack, st); err != nil {
 		return "", "", err
 	}
-	if err := imaging.WritePNG(plane, pl.Image(0)); err != nil {
+	if err := imaging.WritePNGContext(ctx, plane, pl.Image(0)); err != nil {
 		return "", "", err
 	}
 	return stack, plane, nil
