@@ -372,7 +372,7 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	if err := s.cancelled(); err != nil {
 		return nil, err
 	}
-	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
+	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true, Context: s.ctx}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
 			sm, err := chooseSmoothing(p, weights, s)
@@ -404,7 +404,7 @@ func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 			return math.Inf(1)
 		}
 		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
-			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true})
+			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true, Context: s.ctx})
 		if err != nil {
 			return math.Inf(1)
 		}
