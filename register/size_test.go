@@ -66,6 +66,22 @@ func TestEstimateJob(t *testing.T) {
 	}
 }
 
+// TestEstimateMapping: a spline of 100 000 nodes, as a transform file of
+// 64 MiB may hold, is refused for map on a machine of 16 GB; a linear
+// transform costs nothing.
+func TestEstimateMapping(t *testing.T) {
+	sp := &transform.Spline{Dimension: 3, Nodes: make([]transform.Vec, 100000)}
+	e := EstimateMapping(&transform.File{Transform: sp})
+	err := e.CheckMemory(16e9)
+	if err == nil || !strings.Contains(err.Error(), "to map through") || !strings.Contains(err.Error(), "refit") {
+		t.Errorf("refusal: %v", err)
+	}
+	lin := &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity()}
+	if e := EstimateMapping(&transform.File{Transform: lin}); e.Landmarks != 0 || e.CheckMemory(1) != nil {
+		t.Errorf("linear: %+v", e)
+	}
+}
+
 // BenchmarkAssessSpline measures the check of a spline with the smoothing
 // given, the basis of EstimateJob's secondsPerCube; with -benchmem, the
 // bytes allocated. Run:

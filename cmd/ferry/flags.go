@@ -133,6 +133,9 @@ func loadMapping(transformPath, cellsPath, cellSD string, inverse bool) (*mappin
 	if j.file, err = transform.ReadFile(transformPath); err != nil {
 		return nil, err
 	}
+	if err := register.EstimateMapping(j.file).CheckMemory(register.AvailableMemory()); err != nil {
+		return nil, fmt.Errorf("%s: %w", transformPath, err)
+	}
 	if j.cells, j.pos, err = register.ReadCells(cellsPath, "cells", j.file, inverse); err != nil {
 		return nil, err
 	}
