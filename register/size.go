@@ -129,16 +129,22 @@ func (e JobEstimate) String() string {
 		e.Landmarks, FormatBytes(e.Bytes), FormatDuration(e.Duration), how)
 }
 
-// WayOut says what makes the job smaller.
+// WayOut says what makes the job shorter and smaller.
 func (e JobEstimate) WayOut() string {
-	if e.Mapping {
-		return "refit on fewer landmarks or with a linear model (--model affine) on a machine that can, or map on a machine with more memory"
-	}
-	s := "use a linear model (--model affine), which needs memory only in proportion to the landmarks, or fewer landmarks"
+	s := e.smaller()
 	if e.AutoSmoothing {
 		s = "give the smoothing (--smoothing 0, or a value from a check of a subset), " + s
 	}
 	return s
+}
+
+// smaller says what makes the job need less memory; the smoothing does
+// not.
+func (e JobEstimate) smaller() string {
+	if e.Mapping {
+		return "refit on fewer landmarks or with a linear model (--model affine) on a machine that can, or map on a machine with more memory"
+	}
+	return "use a linear model (--model affine), which needs memory only in proportion to the landmarks, or fewer landmarks"
 }
 
 // CheckMemory refuses the job when it needs more memory than available
@@ -148,7 +154,7 @@ func (e JobEstimate) CheckMemory(available uint64) error {
 		return nil
 	}
 	return fmt.Errorf("%s, and this machine has %s available (/proc/meminfo): refused before starting; %s",
-		e, FormatBytes(float64(available)), e.WayOut())
+		e, FormatBytes(float64(available)), e.smaller())
 }
 
 // AvailableMemory is the memory the machine can give a new job, from the

@@ -53,7 +53,7 @@ func TestEstimateJob(t *testing.T) {
 	if err == nil {
 		t.Fatal("a job of 480 GB on 16 GB was not refused")
 	}
-	for _, want := range []string{"100000 landmarks", "GB of memory", "16 GB available", "--model affine", "--smoothing"} {
+	for _, want := range []string{"100000 landmarks", "GB of memory", "16 GB available", "--model affine"} {
 		if !strings.Contains(err.Error(), want) {
 			t.Errorf("refusal %q does not say %q", err, want)
 		}
