@@ -1,6 +1,7 @@
 package landmarks
 
 import (
+	"fmt"
 	"strconv"
 	"strings"
 	"unicode/utf8"
@@ -39,7 +40,7 @@ func (e *InputError) Error() string {
 	}
 	if e.Column != "" {
 		b.WriteString("column ")
-		b.WriteString(strconv.Quote(e.Column))
+		b.WriteString(quote(e.Column))
 		b.WriteString(": ")
 	}
 	b.WriteString(e.Msg)
@@ -65,4 +66,29 @@ func quote(s string) string {
 		n++
 	}
 	return strconv.Quote(s)
+}
+
+// maxHeaderListed bounds the characters of a header listed in a message: a
+// one-line header of 10 MB once made a 10 MB message.
+const maxHeaderListed = 200
+
+// headerList lists a header's names for a message, each name shortened, and
+// the list cut short with the number of columns when it is long.
+func headerList(header []string) string {
+	var b strings.Builder
+	for i, h := range header {
+		name := h
+		if utf8.RuneCountInString(name) > maxQuoted {
+			name = strings.TrimSuffix(strings.TrimPrefix(quote(name), `"`), `"...`) + "..."
+		}
+		if i > 0 && b.Len()+len(name) > maxHeaderListed {
+			fmt.Fprintf(&b, ", ... (%d columns in all)", len(header))
+			break
+		}
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		b.WriteString(name)
+	}
+	return b.String()
 }

@@ -137,6 +137,21 @@ func TestParseErrors(t *testing.T) {
 			want: `cells.csv:2: column "x": "1,5" is not a number (use a point as the decimal mark)`, line: 2, column: "x",
 		},
 		{
+			// One rule for digit separators (issue 16): none. Go's
+			// underscores were read as 1234.5 while commas and spaces
+			// were refused.
+			name: "underscore digit separator", kind: "cells", file: "cells.csv", input: "id,x,y,z\nc1,1_234.5,2,3\n",
+			want: `cells.csv:2: column "x": "1_234.5" is not a number (write digits without separators)`, line: 2, column: "x",
+		},
+		{
+			name: "comma digit separator", kind: "cells", file: "cells.csv", input: "id,x,y,z\nc1,\"1,234.5\",2,3\n",
+			want: `cells.csv:2: column "x": "1,234.5" is not a number (write digits without separators)`, line: 2, column: "x",
+		},
+		{
+			name: "space digit separator", kind: "cells", file: "cells.csv", input: "id,x,y,z\nc1,1 234.5,2,3\n",
+			want: `cells.csv:2: column "x": "1 234.5" is not a number (write digits without separators)`, line: 2, column: "x",
+		},
+		{
 			name: "NaN", kind: "pairs", file: "pairs.csv", input: pairHeader + "L1,vessel,1,2,3,4,NaN,6\n",
 			want: `pairs.csv:2: column "target_y": "NaN" is not a number: want a finite number`, line: 2, column: "target_y",
 		},

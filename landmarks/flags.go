@@ -2,16 +2,29 @@ package landmarks
 
 import (
 	"encoding/csv"
+	"errors"
 	"fmt"
+	"math"
 	"strings"
 
 	"ferry/transform"
 )
 
+// The range of every per-axis value (a voxel size, a standard deviation), in
+// micrometres: from a picometre, a hundred times finer than any microscope
+// resolves, to a metre, beyond any specimen. Outside it a value is a slip,
+// and one such as 1e300 or 5e-324 overflowed or vanished in the arithmetic
+// later, where the message then blamed a column of the cells file.
+const (
+	MinPerAxisUM = 1e-6
+	MaxPerAxisUM = 1e6
+)
+
 // ParseTriple reads the value of a per-axis flag such as
 // "--source-voxel 0.5,0.5,2" or "--cell-sd 1,1,3": dim comma-separated
 // numbers (X,Y,Z in 3-D; X,Y in 2-D, where the Z of the result is left
-// zero), each positive and finite, in micrometres. flagName, with its dashes, starts every message.
+// zero), each from MinPerAxisUM to MaxPerAxisUM micrometres. flagName, with
+// its dashes, starts every message.
 func ParseTriple(flagName, value string, dim int) (transform.Vec, error) {
 	return parseTriple(flagName, value, dim, true)
 }
@@ -55,6 +68,14 @@ func parseTriple(flagName, value string, dim int, positive bool) (transform.Vec,
 		}
 		if positive && !(x > 0) {
 			return v, fail(axes[2*a:2*a+1] + " is not positive")
+		}
+		// Sizes and spreads have a plausible range; a position (an offset
+		// of a stack in its frame) may be zero or negative.
+		if positive && (x < MinPerAxisUM || x > MaxPerAxisUM) {
+			return v, fail(fmt.Sprintf("%s is %g, outside %g to %g µm", axes[2*a:2*a+1], x, MinPerAxisUM, MaxPerAxisUM))
+		}
+		if !positive && math.Abs(x) > MaxPerAxisUM {
+			return v, fail(fmt.Sprintf("%s is %g, beyond ±%g µm", axes[2*a:2*a+1], x, MaxPerAxisUM))
 		}
 		v[a] = x
 	}
@@ -131,4 +152,15 @@ func ParseNumbers(flagName, value string, n int, names string) ([]float64, error
 		out[a] = x
 	}
 	return out, nil
+}
+
+// ParseDecimal reads a number as the tables' numbers are read: a finite
+// decimal number, digits without separators, a point as the decimal mark,
+// no hexadecimal. The message of its error says why s is not one.
+func ParseDecimal(s string) (float64, error) {
+	v, msg := parseNumber(s)
+	if msg != "" {
+		return 0, errors.New(msg)
+	}
+	return v, nil
 }

@@ -179,7 +179,7 @@ func (t *table) require(hint string, names ...string) ([]int, error) {
 	for k, name := range names {
 		idx[k] = t.column(name)
 		if idx[k] < 0 {
-			msg := "missing from the header, which has " + strings.Join(t.header, ", ")
+			msg := "missing from the header, which has " + headerList(t.header)
 			if allNumbers(t.header) {
 				msg += " (is the header row missing?)"
 			} else if hint != "" {
@@ -263,10 +263,19 @@ func parseNumber(s string) (float64, string) {
 	if s == "" {
 		return 0, "empty: want a number"
 	}
+	if strings.IndexByte(s, '_') >= 0 {
+		// strconv reads Go's digit separators (1_234.5); no CSV writer
+		// makes them, and the commas and spaces other programs group
+		// digits with are refused too: one rule, digits unbroken.
+		return 0, quote(s) + " is not a number (write digits without separators)"
+	}
 	v, err := strconv.ParseFloat(s, 64)
 	if err != nil {
 		if errors.Is(err, strconv.ErrRange) {
 			return 0, quote(s) + " is out of range for a number"
+		}
+		if strings.ContainsAny(s, ", ") && strings.IndexByte(s, '.') >= 0 || strings.IndexByte(s, ' ') >= 0 {
+			return 0, quote(s) + " is not a number (write digits without separators)"
 		}
 		if strings.IndexByte(s, ',') >= 0 {
 			return 0, quote(s) + " is not a number (use a point as the decimal mark)"

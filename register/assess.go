@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"errors"
 	"ferry/progress"
 	"fmt"
@@ -141,6 +142,13 @@ func (a *Assessment) MaxLOO() float64 {
 // its neighbours'. Result is the chosen model fitted to every landmark of
 // the problem, flagged ones included: what the user asked to be fitted.
 func Assess(p *Problem, s Settings) (*Assessment, error) {
+	return AssessContext(context.Background(), p, s)
+}
+
+// AssessContext is Assess that stops, with ctx's error, between one fit and
+// the next once ctx is cancelled.
+func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, error) {
+	s.ctx = ctx
 	if p.Len() == 0 {
 		return nil, errors.New("no landmark pairs")
 	}
@@ -148,6 +156,9 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		return nil, fmt.Errorf("dimension %d: want 2 or 3", p.Dim)
 	}
 	if err := spreadAtAll(p); err != nil {
+		return nil, err
+	}
+	if err := farOutlier(p); err != nil {
 		return nil, err
 	}
 	if s.Model != "" {
@@ -172,6 +183,11 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	model := s.Model
 	if model == "" {
 		model = mostFlexible(p)
+	}
+	if model == transform.TPS {
+		if err := repeatedSource(p); err != nil {
+			return nil, err
+		}
 	}
 	flags, err := flagLandmarks(p, model, weights, s, a.Radii)
 	if err != nil {
@@ -359,10 +375,13 @@ type fitted struct {
 // fitModel fits kind to every pair of p with leave-one-out, the spline's
 // smoothing, when automatic, chosen on the same pairs.
 func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*fitted, error) {
-	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true}
+	if err := s.cancelled(); err != nil {
+		return nil, err
+	}
+	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true, Context: s.ctx}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
-			sm, err := chooseSmoothing(p, weights, progress.Of(s.Progress))
+			sm, err := chooseSmoothing(p, weights, s)
 			if err != nil {
 				return nil, err
 			}
@@ -385,11 +404,15 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 // interpolation to nearly affine, refined around the best. The scale of the
 // grid follows the kernel: a typical landmark distance in 3-D, its square
 // times its logarithm in 2-D.
-func chooseSmoothing(q *Problem, w []float64, rep progress.Reporter) (float64, error) {
+func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
+	rep := progress.Of(s.Progress)
 	unit := kernelScale(q)
 	cost := func(sm float64) float64 {
+		if s.cancelled() != nil {
+			return math.Inf(1)
+		}
 		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
-			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true})
+			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true, Context: s.ctx})
 		rep.Add(1)
 		if err != nil {
 			return math.Inf(1)
@@ -415,6 +438,9 @@ func chooseSmoothing(q *Problem, w []float64, rep progress.Reporter) (float64, e
 				best, bestCost = sm, c
 			}
 		}
+	}
+	if err := s.cancelled(); err != nil {
+		return 0, err
 	}
 	if math.IsInf(bestCost, 1) {
 		_, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,

@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"fmt"
 	"math"
 
@@ -54,6 +55,9 @@ type Mapper struct {
 // NewMapper prepares the mapping of points through the transform of a
 // transform file, with the file's uncertainty model.
 func NewMapper(f *transform.File) (*Mapper, error) {
+	if err := plausible(f.Transform); err != nil {
+		return nil, err
+	}
 	dim := f.Transform.Dim()
 	u, err := ParseUncertaintyModel(f.Uncertainty, dim)
 	if err != nil {
@@ -315,6 +319,25 @@ func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool)
 		}
 	})
 	return out
+}
+
+// mapBlock is how many points MapAllContext maps between two looks at its
+// context: a few hundred milliseconds of work for a large spline.
+const mapBlock = 1 << 14
+
+// MapAllContext is MapAll that stops with ctx's error between blocks of
+// mapBlock points, so that an interrupt ends a map of millions of cells
+// within a fraction of a second. The blocks are of a fixed size, so that the
+// result does not depend on the number of cores.
+func (m *Mapper) MapAllContext(ctx context.Context, xs []transform.Vec, cellSD *transform.Vec, inverse bool) ([]Mapped, error) {
+	out := make([]Mapped, 0, len(xs))
+	for lo := 0; lo < len(xs); lo += mapBlock {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		out = append(out, m.MapAll(xs[lo:min(lo+mapBlock, len(xs))], cellSD, inverse)...)
+	}
+	return out, nil
 }
 
 // each runs f for every index in [0, n) on all cores.

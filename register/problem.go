@@ -1,13 +1,13 @@
 package register
 
 import (
-	"ferry/progress"
+	"context"
 	"fmt"
-	"math"
 	"strconv"
 	"strings"
 
 	"ferry/landmarks"
+	"ferry/progress"
 	"ferry/transform"
 )
 
@@ -18,6 +18,9 @@ type Problem struct {
 	IDs            []string
 	Kinds          []landmarks.Kind
 	Source, Target []transform.Vec
+	// Lines are the pairs' lines in the landmark file, for messages; may
+	// be nil.
+	Lines []int
 }
 
 // NewProblem takes the pairs of a landmark file, already scaled to
@@ -29,7 +32,16 @@ func NewProblem(set *landmarks.PairSet) *Problem {
 		Kinds:  set.Kinds(),
 		Source: set.Sources(),
 		Target: set.Targets(),
+		Lines:  pairLines(set),
 	}
+}
+
+func pairLines(set *landmarks.PairSet) []int {
+	lines := make([]int, len(set.Pairs))
+	for i, pr := range set.Pairs {
+		lines[i] = pr.Line
+	}
+	return lines
 }
 
 // Len is the number of landmark pairs.
@@ -44,6 +56,9 @@ func (p *Problem) subset(keep func(i int) bool) *Problem {
 			q.Kinds = append(q.Kinds, p.Kinds[i])
 			q.Source = append(q.Source, p.Source[i])
 			q.Target = append(q.Target, p.Target[i])
+			if i < len(p.Lines) {
+				q.Lines = append(q.Lines, p.Lines[i])
+			}
 		}
 	}
 	return q
@@ -60,10 +75,8 @@ func ParseSmoothing(s string) (Smoothing, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return Smoothing{Auto: true}, nil
 	}
-	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-	// ParseFloat also reads hexadecimal and digit separators, which no
-	// other number ferry reads accepts.
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || strings.ContainsAny(s, "xX_") {
+	v, err := landmarks.ParseDecimal(s)
+	if err != nil {
 		return Smoothing{}, fmt.Errorf("--smoothing: want \"auto\" or a number ≥ 0, got %q", s)
 	}
 	if v < 0 {
@@ -105,4 +118,15 @@ type Settings struct {
 	// Progress, when not nil, hears of every fit Assess makes: with many
 	// landmarks the leave-one-out check takes seconds.
 	Progress progress.Reporter
+
+	// ctx, when set by AssessContext, is checked between fits.
+	ctx context.Context
+}
+
+// cancelled returns the context's error, if any.
+func (s Settings) cancelled() error {
+	if s.ctx == nil {
+		return nil
+	}
+	return s.ctx.Err()
 }

@@ -91,6 +91,11 @@ func SidecarPath(table string) string { return table + SidecarSuffix }
 // register/outfile): fill writes the table, beginning with its header row;
 // the sidecar records prov, the table's checksum and coords.
 func WriteTable(ctx context.Context, path string, prov Provenance, coords []Coordinates, fill func(w io.Writer) error) error {
+	if outfile.IsStream(path) {
+		// A device or pipe (/dev/stdout) takes the table alone: a sidecar
+		// beside it would be a file in /dev.
+		return outfile.Write(ctx, path, fill)
+	}
 	h := sha256.New()
 	table := outfile.File{Path: path, Fill: func(w io.Writer) error {
 		return fill(io.MultiWriter(w, h))

@@ -33,16 +33,33 @@ type Input struct {
 }
 
 // Line is the provenance as one line of text, without a comment mark.
+// A path or flag that holds a control character (a line break in a file
+// name, say) is written quoted with Go's escapes (strconv.Quote), so that
+// the line stays one line and the output can be read back.
 func (p Provenance) Line() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "ferry %s %s", Version, p.Command)
 	for _, in := range p.Inputs {
-		fmt.Fprintf(&b, "; %s sha256:%s", in.Path, in.SHA256)
+		fmt.Fprintf(&b, "; %s sha256:%s", OneLine(in.Path), in.SHA256)
 	}
 	if len(p.Flags) > 0 {
-		fmt.Fprintf(&b, "; flags: %s", strings.Join(p.Flags, " "))
+		flags := make([]string, len(p.Flags))
+		for i, f := range p.Flags {
+			flags[i] = OneLine(f)
+		}
+		fmt.Fprintf(&b, "; flags: %s", strings.Join(flags, " "))
 	}
 	return b.String()
+}
+
+// OneLine returns s as it is when it holds no control character and is
+// valid UTF-8, else quoted with Go's escapes (strconv.Quote): a name with a
+// line break in it then takes one line of a file or a message.
+func OneLine(s string) string {
+	if !utf8.ValidString(s) || strings.IndexFunc(s, unicode.IsControl) >= 0 {
+		return strconv.Quote(s)
+	}
+	return s
 }
 
 // formatCoord writes a coordinate or an error in micrometres (or voxels) to
@@ -100,11 +117,8 @@ type MappedLayout struct {
 	// mapped back with --inverse.
 	Frame string
 	// Coordinates describe the position columns: x, y, z in the units
-	// given, and, unless a cell's own column already has the name,
-	// target_x_um… (or source_x_um…) in micrometres.
+	// given, and target_x_um… (or source_x_um…) in micrometres.
 	Coordinates []Coordinates
-	// withUM says whether the micrometre columns are written.
-	withUM bool
 }
 
 // NewMappedLayout is the layout of the table of cells mapped into frame,
@@ -122,19 +136,11 @@ func NewMappedLayout(cells *landmarks.PointSet, frame string, voxel *transform.V
 	for k, a := range axes {
 		um[k] = frame + "_" + a + "_um"
 	}
-	l.withUM = true
-	for _, e := range cells.ExtraColumns {
-		for _, u := range um {
-			if strings.EqualFold(e, u) {
-				l.withUM = false
-			}
-		}
-	}
-	if l.withUM {
-		l.Header = append(l.Header, um...)
-		l.Coordinates = append(l.Coordinates, CoordinatesIn(um, frame, nil))
-	}
-	l.Header = append(l.Header, cells.ExtraColumns...)
+	l.Header = append(l.Header, um...)
+	l.Coordinates = append(l.Coordinates, CoordinatesIn(um, frame, nil))
+	// A kept column named like one of ours (a map of a map's output) is
+	// renamed, as every writer does (landmarks.KeptColumnNames).
+	l.Header = append(l.Header, landmarks.KeptColumnNames(l.Header, cells.ExtraColumns)...)
 	return l
 }
 
@@ -199,15 +205,13 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 		}
 		line = append(line, ',')
 		line = appendField(line, m.Status)
-		if layout.withUM {
-			for k := range cells.Dim {
-				line = append(line, ',')
-				if m.Status == StatusNoInverse {
-					continue
-				}
-				// Finite: the same value passed above.
-				line, _ = appendCoord(line, m.Pos[k])
+		for k := range cells.Dim {
+			line = append(line, ',')
+			if m.Status == StatusNoInverse {
+				continue
 			}
+			// Finite: the same value passed above.
+			line, _ = appendCoord(line, m.Pos[k])
 		}
 		for _, e := range c.Extra {
 			line = append(line, ',')

@@ -7,8 +7,17 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 )
+
+// MaxFileBytes bounds the size of a transform file a reader takes: 64 MiB.
+// A file holds about 540 bytes per landmark (measured on splines of 500 and
+// 1 000 landmarks), so the limit allows some 120 000 landmarks, far more
+// than a spline ferry would fit: its dense system alone would need 6 n² × 8
+// bytes, 700 GB. A larger file (a gigabyte of whitespace, say) is refused
+// before it is read, instead of taking the memory and a minute to parse.
+const MaxFileBytes = 64 << 20
 
 // FormatName and FormatVersion identify the transform file. A reader refuses
 // another name and any version newer than its own.
@@ -232,8 +241,36 @@ func checksum(w fileJSON) (string, error) {
 // not know, with a checksum that does not match, or with parameters that do
 // not make a valid transform.
 func Unmarshal(name string, data []byte) (*File, error) {
+	return unmarshalLimited(name, data, MaxFileBytes)
+}
+
+// tooLarge is the refusal of a file of more than limit bytes.
+func tooLarge(name string, limit int) error {
+	return fmt.Errorf("%s: more than %s, more than a transform file holds: not a ferry transform file", name, sizeWords(limit))
+}
+
+func sizeWords(n int) string {
+	if n >= 1<<20 && n%(1<<20) == 0 {
+		return fmt.Sprintf("%d MiB", n>>20)
+	}
+	return fmt.Sprintf("%d bytes", n)
+}
+
+// unmarshalLimited is Unmarshal with the size limit given, so that the fuzz
+// target can reach the limit's path with small inputs.
+func unmarshalLimited(name string, data []byte, limit int) (*File, error) {
 	fail := func(format string, a ...any) (*File, error) {
 		return nil, fmt.Errorf("%s: %s", name, fmt.Sprintf(format, a...))
+	}
+	if len(data) > limit {
+		return nil, tooLarge(name, limit)
+	}
+	// failAt names the line and column of a JSON error where it has one.
+	failAt := func(err error, format string, a ...any) (*File, error) {
+		if line, col, ok := jsonPosition(data, err); ok {
+			return nil, fmt.Errorf("%s:%d:%d: %s", name, line, col, fmt.Sprintf(format, a...))
+		}
+		return fail(format, a...)
 	}
 	// Read the header alone first, so that a newer file says "newer" rather
 	// than complaining about fields this reader does not know.
@@ -242,7 +279,7 @@ func Unmarshal(name string, data []byte) (*File, error) {
 		Version int    `json:"version"`
 	}
 	if err := json.Unmarshal(data, &head); err != nil {
-		return fail("not a ferry transform file (damaged or not JSON: %v)", err)
+		return failAt(err, "not a ferry transform file (damaged or not JSON: %v)", err)
 	}
 	if head.Format != FormatName {
 		return fail("not a ferry transform file (format %q, want %q)", head.Format, FormatName)
@@ -255,7 +292,7 @@ func Unmarshal(name string, data []byte) (*File, error) {
 	}
 	var w fileJSON
 	if err := strictUnmarshal(data, &w); err != nil {
-		return fail("damaged transform file: %v", err)
+		return failAt(err, "damaged transform file: %v", err)
 	}
 	want, err := checksum(w)
 	if err != nil {
@@ -268,8 +305,10 @@ func Unmarshal(name string, data []byte) (*File, error) {
 		return fail("units %q, want \"micrometre\"", w.Units)
 	}
 	for _, v := range []*Vec{w.SourceVoxel, w.TargetVoxel} {
-		if v != nil && !(v[0] > 0 && v[1] > 0 && v[2] > 0 && v.IsFinite()) {
-			return fail("voxel size %v: want positive numbers", *v)
+		// The range of the voxel flags (landmarks.MinPerAxisUM to
+		// MaxPerAxisUM): a picometre to a metre.
+		if v != nil && !(v[0] >= 1e-6 && v[1] >= 1e-6 && v[2] >= 1e-6 && v[0] <= 1e6 && v[1] <= 1e6 && v[2] <= 1e6) {
+			return fail("voxel size %v µm: want numbers from 1e-06 to 1e+06 µm", *v)
 		}
 	}
 	t, err := decodeTransform(w.Transform, 0)
@@ -286,13 +325,56 @@ func Unmarshal(name string, data []byte) (*File, error) {
 	}, nil
 }
 
-// ReadFile reads and decodes the transform file at path.
+// ReadFile reads and decodes the transform file at path. A file larger than
+// MaxFileBytes is refused before it is read; from a pipe or a device, no
+// more than that is read.
 func ReadFile(path string) (*File, error) {
-	data, err := os.ReadFile(path)
+	return readFileLimited(path, MaxFileBytes)
+}
+
+func readFileLimited(path string, limit int) (*File, error) {
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot read transform file: %w", err)
 	}
-	return Unmarshal(path, data)
+	defer f.Close()
+	if info, err := f.Stat(); err == nil && info.Mode().IsRegular() && info.Size() > int64(limit) {
+		return nil, tooLarge(path, limit)
+	}
+	data, err := io.ReadAll(io.LimitReader(f, int64(limit)+1))
+	if err != nil {
+		return nil, fmt.Errorf("cannot read transform file: %w", err)
+	}
+	if len(data) > limit {
+		return nil, tooLarge(path, limit)
+	}
+	return unmarshalLimited(path, data, limit)
+}
+
+// jsonPosition is the line and column (from 1, in bytes) of a JSON syntax
+// or type error in data.
+func jsonPosition(data []byte, err error) (line, col int, ok bool) {
+	var offset int64
+	var syntax *json.SyntaxError
+	var typ *json.UnmarshalTypeError
+	switch {
+	case errors.As(err, &syntax):
+		offset = syntax.Offset
+	case errors.As(err, &typ):
+		offset = typ.Offset
+	default:
+		return 0, 0, false
+	}
+	if offset < 0 || offset > int64(len(data)) {
+		return 0, 0, false
+	}
+	before := data[:offset]
+	line = 1 + bytes.Count(before, []byte{'\n'})
+	col = int(offset) - (bytes.LastIndexByte(before, '\n') + 1)
+	if col < 1 {
+		col = 1
+	}
+	return line, col, true
 }
 
 func strictUnmarshal(data []byte, v any) error {

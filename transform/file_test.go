@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -93,7 +95,7 @@ func TestFileRefusals(t *testing.T) {
 			if err == nil {
 				t.Fatal("accepted")
 			}
-			if !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "t.json: ") {
+			if !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "t.json:") {
 				t.Errorf("error %q, want the file name and %q", err, tc.want)
 			}
 		})
@@ -146,13 +148,52 @@ func FuzzUnmarshal(f *testing.F) {
 	f.Fuzz(func(t *testing.T, data []byte) {
 		g, err := Unmarshal("fuzz.json", data)
 		if err != nil {
-			if !strings.HasPrefix(err.Error(), "fuzz.json: ") {
+			// "fuzz.json: …", or "fuzz.json:LINE:COL: …" for a JSON error.
+			if !strings.HasPrefix(err.Error(), "fuzz.json:") {
 				t.Fatalf("error does not name the file: %v", err)
 			}
 			return
 		}
 		if p := g.Transform.Apply(Vec{1, 2, 3}); !p.IsFinite() {
 			t.Fatalf("accepted a transform that maps to %v", p)
+		}
+	})
+}
+
+// FuzzReadFileSizeLimit reaches the size limit's paths with small inputs:
+// given a limit, a file of more bytes is refused, naming the file and the
+// limit, whether it is read by ReadFile or given to Unmarshal, and a file
+// within it reads as Unmarshal reads it without a limit.
+func FuzzReadFileSizeLimit(f *testing.F) {
+	l := &Linear{Model: Rigid, D: 3, A: Identity(), T: Vec{1, 2, 3}, Scale: 1}
+	good, err := (&File{Program: "fuzz", Transform: l}).Marshal()
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Add(good, uint16(len(good)))
+	f.Add(good, uint16(len(good)-1))
+	f.Add([]byte("   \n\t  "), uint16(3))
+	f.Add([]byte(`"`+strings.Repeat("a", 300)+`"`), uint16(100))
+	dir := f.TempDir()
+	f.Fuzz(func(t *testing.T, data []byte, limit uint16) {
+		path := filepath.Join(dir, "t.json")
+		if err := os.WriteFile(path, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		_, whole := Unmarshal(path, data)
+		for _, read := range []func() (*File, error){
+			func() (*File, error) { return readFileLimited(path, int(limit)) },
+			func() (*File, error) { return unmarshalLimited(path, data, int(limit)) },
+		} {
+			_, err := read()
+			switch {
+			case len(data) > int(limit):
+				if err == nil || !strings.HasPrefix(err.Error(), path+": more than") {
+					t.Fatalf("%d bytes over a limit of %d: %v", len(data), limit, err)
+				}
+			case (err == nil) != (whole == nil):
+				t.Fatalf("within the limit: %v, without a limit: %v", err, whole)
+			}
 		}
 	})
 }

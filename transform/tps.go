@@ -369,8 +369,14 @@ func fitSpline(dim int, src, dst []Vec, opt Options) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
+	if err := opt.cancelled(); err != nil {
+		return nil, err
+	}
 	sys, err := newSplineSystem(dim, centre, scale, src, opt.Smoothing, opt.Weights)
 	if err != nil {
+		return nil, err
+	}
+	if err := opt.cancelled(); err != nil {
 		return nil, err
 	}
 	// Subtracting the mean target keeps the affine constant, not the
@@ -418,6 +424,9 @@ func fitSpline(dim int, src, dst []Vec, opt Options) (*Result, error) {
 	}
 	if !opt.LeaveOneOut {
 		return res, nil
+	}
+	if err := opt.cancelled(); err != nil {
+		return nil, err
 	}
 	res.LOO, res.LOOFactor, err = sys.leaveOneOut(sp.Weights)
 	if err != nil {

@@ -1,6 +1,7 @@
 package transform
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -124,6 +125,19 @@ type Options struct {
 	NoMirror bool
 	// LeaveOneOut asks for Result.LOO.
 	LeaveOneOut bool
+	// Context, when not nil, is looked at between the stages of a
+	// spline's fit (the factorisation, the solution, the leave-one-out):
+	// once it is cancelled the fit stops with its error. One stage, a
+	// dense factorisation, cannot itself be cut short.
+	Context context.Context
+}
+
+// cancelled is the error of opt's context, if any.
+func (opt Options) cancelled() error {
+	if opt.Context == nil {
+		return nil
+	}
+	return opt.Context.Err()
 }
 
 // ApplyAll maps every point of src into dst (which may be src itself), on all

@@ -203,8 +203,13 @@ func TestExtremeNumbers(t *testing.T) {
 	}
 	t.Run("voxel sizes that make the coordinates huge", func(t *testing.T) {
 		dir := t.TempDir()
+		// A voxel size beyond a metre is refused as a flag (issue 16); one
+		// within range can still carry a coordinate beyond a kilometre.
 		refusesAndWritesNothing(t, dir, []string{"fit", fx.landmarks, "--source-voxel", "1e300,1,1", "-o", filepath.Join(dir, "t.json")},
-			[]string{fx.landmarks + ":3: ", `column "source_x"`, "is beyond"})
+			[]string{"--source-voxel", "outside 1e-06 to 1e+06 µm"})
+		far := writeFile(t, filepath.Join(dir, "far.csv"), landmarkCSV(40)+"FAR,vessel,5000,10,10,100,100,100,x\n")
+		refusesAndWritesNothing(t, dir, []string{"fit", far, "--source-voxel", "1e6,1,1", "-o", filepath.Join(dir, "t.json")},
+			[]string{far + ":43: ", `column "source_x"`, "is beyond"})
 	})
 	t.Run("cells at 1e300", func(t *testing.T) {
 		dir := t.TempDir()

@@ -50,16 +50,19 @@ EM candidate nuclei, and the truth (true positions, true matches, which
 landmarks were spoiled). See docs/simulation.md.`,
 		Args: exactArgs("DIR"),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := simulate.CheckFolder(args[0], simulate.FileNames()...); err != nil {
+				return err
+			}
 			s, err := simulate.Generate(simulate.DefaultParams(), seed)
 			if err != nil {
 				return err
 			}
-			files, err := s.Write(args[0])
+			files, err := s.WriteContext(cmd.Context(), args[0])
 			if err != nil {
 				return err
 			}
 			ip := s.DefaultImageParams()
-			stack, plane, err := s.WriteImages(args[0], ip)
+			stack, plane, err := s.WriteImagesContext(cmd.Context(), args[0], ip)
 			if err != nil {
 				return err
 			}

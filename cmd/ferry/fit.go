@@ -10,7 +10,6 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/match"
-	"ferry/register/outfile"
 )
 
 func newFitCommand() *cobra.Command {
@@ -52,8 +51,11 @@ noise): the cell's source position and the candidate's target position.`,
 					return match.AddDecidedLandmarks(set, d, cells, cands)
 				}
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
+				if cmd.Context().Err() != nil {
+					return fmt.Errorf("%s not written: %w", out, cmd.Context().Err())
+				}
 				return err
 			}
 			// The hash of the bytes the reader read, not of the file read
@@ -69,10 +71,10 @@ noise): the cell's source position and the candidate's target position.`,
 			if err != nil {
 				return err
 			}
-			if err := outfile.WriteBytes(cmd.Context(), out, data); err != nil {
+			if err := writeOutputBytes(cmd, out, data); err != nil {
 				return err
 			}
-			w := cmd.OutOrStdout()
+			w := summaryWriter(cmd, out)
 			register.WriteComparison(w, a)
 			fmt.Fprintf(w, "Leave-one-out error of the %s model: RMS %.2f µm, max %.2f µm over %d landmarks.\n",
 				a.Chosen, a.JSON().RMSUM, a.JSON().MaxUM, len(a.Landmarks))
@@ -80,7 +82,7 @@ noise): the cell's source position and the candidate's target position.`,
 				fmt.Fprintf(w, "Warning: %d landmark(s) look wrong and are still in the fit: %s. Run ferry check, then correct them or refit with --exclude %s\n",
 					len(ids), strings.Join(ids, ", "), strings.Join(ids, ","))
 			}
-			fmt.Fprintf(w, "Wrote %s\n", out)
+			fmt.Fprintf(w, "Wrote %s\n", outputName(out))
 			return nil
 		},
 	}
@@ -108,7 +110,7 @@ leave-one-out error exceeds --max-error.`,
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
 				return fmt.Errorf("--max-error: want a positive finite number of micrometres, got %v", maxError)
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
 				return err
 			}
@@ -139,7 +141,7 @@ leave-one-out error exceeds --max-error.`,
 		},
 	}
 	flags.register(cmd)
-	cmd.Flags().Float64Var(&maxError, "max-error", 0, "fail (exit 3) when a leave-one-out error exceeds this many µm")
+	newDecimalFlag(cmd.Flags(), &maxError, "max-error", 0, "fail (exit 3) when a leave-one-out error exceeds this many µm")
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print one JSON object instead of the table")
 	return cmd
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"os"
+	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -102,14 +103,24 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 }
 
 // assess loads the landmark file with the flags and runs the check on it.
-func (f *modelFlags) assess(path string) (*landmarkJob, *register.Assessment, error) {
+// A job that needs more memory than the machine has is refused before it
+// starts, and one that takes long is announced on stderr, with the way to
+// make it smaller.
+func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *register.Assessment, error) {
 	job, err := f.load(path)
 	if err != nil {
 		return nil, nil, err
 	}
+	est := register.EstimateJob(job.problem, job.settings)
+	if err := est.CheckMemory(register.AvailableMemory()); err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if est.Announce() {
+		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: %s: %s; Ctrl-C stops it. To make it smaller: %s.\n", path, est, est.WayOut())
+	}
 	settings := job.settings
 	settings.Progress = progress.Terminal(os.Stderr)
-	a, err := register.Assess(job.problem, settings)
+	a, err := register.AssessContext(cmd.Context(), job.problem, settings)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", path, err)
 	}
@@ -132,6 +143,9 @@ func loadMapping(transformPath, cellsPath, cellSD string, inverse bool) (*mappin
 	var err error
 	if j.file, err = transform.ReadFile(transformPath); err != nil {
 		return nil, err
+	}
+	if err := register.EstimateMapping(j.file).CheckMemory(register.AvailableMemory()); err != nil {
+		return nil, fmt.Errorf("%s: %w", transformPath, err)
 	}
 	if j.cells, j.pos, err = register.ReadCells(cellsPath, "cells", j.file, inverse); err != nil {
 		return nil, err
@@ -172,8 +186,32 @@ func requireOutput(out string, inputs ...string) error {
 	if strings.TrimSpace(out) == "" {
 		return fmt.Errorf("-o: an output file is required")
 	}
+	if out == stdoutName {
+		return nil
+	}
 	if info, err := os.Stat(out); err == nil && info.IsDir() {
 		return fmt.Errorf("-o %s: is a folder, want a file name", out)
 	}
 	return outfile.NotAnInput(out, inputs...)
+}
+
+// decimalFlag is a number flag read by the tables' rule
+// (landmarks.ParseDecimal): the flag library's own reading also takes Go's
+// digit separators (1_0) and hexadecimal, which no number in a table may be.
+type decimalFlag float64
+
+func newDecimalFlag(fl *pflag.FlagSet, p *float64, name string, value float64, usage string) {
+	*p = value
+	fl.Var((*decimalFlag)(p), name, usage)
+}
+
+func (d *decimalFlag) String() string { return strconv.FormatFloat(float64(*d), 'g', -1, 64) }
+func (d *decimalFlag) Type() string   { return "float" }
+func (d *decimalFlag) Set(s string) error {
+	v, err := landmarks.ParseDecimal(s)
+	if err != nil {
+		return err
+	}
+	*d = decimalFlag(v)
+	return nil
 }

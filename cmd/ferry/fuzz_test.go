@@ -14,11 +14,15 @@ import (
 )
 
 // FuzzFlagValues gives the parsers of the flags' values (per-axis triples,
-// id lists, smoothing and model) any text: none panics, and whatever one
-// accepts is what the flag promises and reads back the same when written
-// out again.
+// id lists, smoothing, model, the number flags and --prior-counterpart) any
+// text: none panics, whatever one accepts is within the flag's range (a
+// per-axis value from landmarks.MinPerAxisUM to MaxPerAxisUM, a
+// probability in (0, 1), a smoothing ≥ 0), was written without digit
+// separators or hexadecimal, and reads back the same when written out
+// again.
 func FuzzFlagValues(f *testing.F) {
-	for _, seed := range []string{"1,1,1", "0.5, 0.5 ,2", "1,1", "auto", "AUTO", "0", "1e-3", "-1", "NaN", "1,Inf,1", "L3,L7", `"a,b",c`, " ", "", "tps", "Affine", "0x1p4,1,1", "1e999"} {
+	for _, seed := range []string{"1,1,1", "0.5, 0.5 ,2", "1,1", "auto", "AUTO", "0", "1e-3", "-1", "NaN", "1,Inf,1", "L3,L7", `"a,b",c`, " ", "", "tps", "Affine", "0x1p4,1,1", "1e999",
+		"1e300,1,1", "5e-324,1,1", "1e6,1e-6,1", "1_0", "1_234.5", "0_5", "0.5", "1e-7,1,1", "1000000.0000001,1,1"} {
 		f.Add(seed)
 	}
 	f.Fuzz(func(t *testing.T, value string) {
@@ -30,10 +34,13 @@ func FuzzFlagValues(f *testing.F) {
 				}
 				continue
 			}
+			if strings.ContainsAny(value, "_xX") {
+				t.Errorf("ParseTriple(%q) accepted digit separators or hexadecimal", value)
+			}
 			parts := make([]string, dim)
 			for k := range dim {
-				if !(v[k] > 0) || math.IsInf(v[k], 0) {
-					t.Errorf("ParseTriple(%q, %d) accepted %v", value, dim, v)
+				if !(v[k] >= landmarks.MinPerAxisUM && v[k] <= landmarks.MaxPerAxisUM) {
+					t.Errorf("ParseTriple(%q, %d) accepted %v, outside the per-axis range", value, dim, v)
 				}
 				parts[k] = strconv.FormatFloat(v[k], 'g', -1, 64)
 			}
@@ -77,12 +84,35 @@ func FuzzFlagValues(f *testing.F) {
 				t.Errorf("ParseSmoothing(%q) error %q does not name the flag", value, err)
 			}
 		} else {
-			if !s.Auto && (!(s.Value >= 0) || math.IsInf(s.Value, 0)) {
+			if !s.Auto && (!(s.Value >= 0) || math.IsInf(s.Value, 0) || strings.ContainsAny(value, "_")) {
 				t.Errorf("ParseSmoothing(%q) accepted %v", value, s.Value)
 			}
 			if again, err := register.ParseSmoothing(s.String()); err != nil || again != s {
 				t.Errorf("ParseSmoothing(%q) = %v does not read back: %v, %v", value, s, again, err)
 			}
+		}
+
+		if x, err := landmarks.ParseDecimal(value); err == nil {
+			if math.IsNaN(x) || math.IsInf(x, 0) || strings.ContainsAny(value, "_xX") {
+				t.Errorf("ParseDecimal(%q) accepted %v", value, x)
+			}
+			var d decimalFlag
+			if err := d.Set(value); err != nil || float64(d) != x {
+				t.Errorf("decimalFlag.Set(%q) = %v, %v; ParseDecimal %v", value, d, err, x)
+			}
+			if again, err := landmarks.ParseDecimal(d.String()); err != nil || again != x {
+				t.Errorf("ParseDecimal(%q) = %v does not read back: %v, %v", value, x, again, err)
+			}
+		} else if strings.Contains(err.Error(), "\n") {
+			t.Errorf("ParseDecimal(%q) error %q is not one line", value, err)
+		}
+
+		if p, err := parsePrior(value); err != nil {
+			if !strings.HasPrefix(err.Error(), "--prior-counterpart: ") {
+				t.Errorf("parsePrior(%q) error %q does not name the flag", value, err)
+			}
+		} else if p != 0 && !(p > 0 && p < 1) || strings.ContainsAny(value, "_") {
+			t.Errorf("parsePrior(%q) accepted %v", value, p)
 		}
 
 		k, err := register.ParseModel(value)

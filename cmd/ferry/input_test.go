@@ -206,14 +206,14 @@ func TestBadTransformFiles(t *testing.T) {
 		name, content string
 		want          []string
 	}{
-		{"empty", "", []string{"FILE: ", "not a ferry transform file"}},
-		{"a CSV table", pairHeader + goodPairRows, []string{"FILE: ", "not a ferry transform file"}},
-		{"truncated", text[:len(text)/2], []string{"FILE: ", "not a ferry transform file (damaged"}},
+		{"empty", "", []string{"FILE:", "not a ferry transform file"}},
+		{"a CSV table", pairHeader + goodPairRows, []string{"FILE:", "not a ferry transform file"}},
+		{"truncated", text[:len(text)/2], []string{"FILE:", "not a ferry transform file (damaged"}},
 		{"white space added", strings.Replace(text, `"units": "micrometre"`, `"units":    "micrometre"`, 1) + "\n\n", nil},
 		{"a number changed", strings.Replace(text, `"smoothing": `, `"smoothing": 1`, 1), []string{"FILE: ", "does not match its checksum"}},
 		{"newer version", strings.Replace(text, `"version": 1`, `"version": 99`, 1), []string{"FILE: ", "version 99 is newer"}},
 		{"another format", strings.Replace(text, `"format": "ferry-transform"`, `"format": "something-else"`, 1), []string{"FILE: ", `format "something-else"`}},
-		{"binary", "\x00\x01\x02\x03", []string{"FILE: ", "not a ferry transform file"}},
+		{"binary", "\x00\x01\x02\x03", []string{"FILE:", "not a ferry transform file"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -32,7 +33,10 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 				return err
 			}
 			file, cells := job.file, job.cells
-			mapped := job.mapper.MapAll(job.pos, job.cellSD, inverse)
+			mapped, err := job.mapper.MapAllContext(cmd.Context(), job.pos, job.cellSD, inverse)
+			if err != nil {
+				return fmt.Errorf("%s not written: %w", outputName(out), err)
+			}
 			voxel, frame := file.TargetVoxel, register.FrameTarget
 			if inverse {
 				voxel, frame = file.SourceVoxel, register.FrameSource
@@ -43,14 +47,19 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			}
 			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256})
 			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := register.WriteMappedTable(cmd.Context(), out, prov, cells, mapped, frame, voxel); err != nil {
+			layout := register.NewMappedLayout(cells, frame, voxel)
+			if err := writeTable(cmd, out, func(ctx context.Context, path string) error {
+				return register.WriteMappedTable(ctx, path, prov, cells, mapped, frame, voxel)
+			}, func(w io.Writer) error {
+				return register.WriteMapped(w, cells, mapped, layout, voxel)
+			}); err != nil {
 				return err
 			}
 			counts := map[string]int{}
 			for _, m := range mapped {
 				counts[m.Status]++
 			}
-			fmt.Fprintf(cmd.OutOrStdout(), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), out)
+			fmt.Fprintf(summaryWriter(cmd, out), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), outputName(out))
 			return nil
 		},
 	}

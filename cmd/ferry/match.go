@@ -1,10 +1,10 @@
 package main
 
 import (
+	"context"
 	"fmt"
-	"math"
+	"io"
 	"os"
-	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -38,8 +38,8 @@ the nearest one. See docs/matching.md for the method.`,
 			if err := requireOutput(out, append(args, decisions)...); err != nil {
 				return err
 			}
-			if !(candidateSD > 0) || math.IsInf(candidateSD, 0) {
-				return fmt.Errorf("--candidate-sd: want a positive number of micrometres, got %v", candidateSD)
+			if !(candidateSD >= landmarks.MinPerAxisUM && candidateSD <= landmarks.MaxPerAxisUM) {
+				return fmt.Errorf("--candidate-sd: want a number of micrometres from %g to %g, got %v", landmarks.MinPerAxisUM, landmarks.MaxPerAxisUM, candidateSD)
 			}
 			if !(minP > 0.5 && minP < 1) {
 				return fmt.Errorf("--min-p: want a probability between 0.5 and 1, got %v", minP)
@@ -85,10 +85,14 @@ the nearest one. See docs/matching.md for the method.`,
 				inputs = append(inputs, register.Input{Path: decisions, SHA256: decisionsSHA})
 			}
 			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
-			if err := match.WriteMatchesTable(cmd.Context(), out, prov, cells, cands, res, job.file.TargetVoxel); err != nil {
+			if err := writeTable(cmd, out, func(ctx context.Context, path string) error {
+				return match.WriteMatchesTable(ctx, path, prov, cells, cands, res, job.file.TargetVoxel)
+			}, func(w io.Writer) error {
+				return match.WriteMatches(w, cells, cands, res, job.file.TargetVoxel)
+			}); err != nil {
 				return err
 			}
-			w := cmd.OutOrStdout()
+			w := summaryWriter(cmd, out)
 			how := "estimated from the cells"
 			if share != 0 {
 				how = "as given"
@@ -105,19 +109,19 @@ the nearest one. See docs/matching.md for the method.`,
 					return err
 				}
 				if n > maxAmbiguousListed {
-					fmt.Fprintf(w, "  and %d more (status ambiguous in %s)\n", n-maxAmbiguousListed, out)
+					fmt.Fprintf(w, "  and %d more (status ambiguous in %s)\n", n-maxAmbiguousListed, outputName(out))
 				}
 			}
-			fmt.Fprintf(w, "Wrote %s\n", out)
+			fmt.Fprintf(w, "Wrote %s\n", outputName(out))
 			return nil
 		},
 	}
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "matches to write (CSV)")
 	fl.StringVar(&cellSD, "cell-sd", "", "localisation error of the cells' own coordinates X,Y,Z in µm (one standard deviation)")
-	fl.Float64Var(&candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
+	newDecimalFlag(fl, &candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its cell's soma centre in µm per axis: its localisation error with the soma-to-nucleus offset")
 	fl.StringVar(&prior, "prior-counterpart", "auto", "share of cells inside the candidates' volume that have a counterpart there, in (0, 1), or auto to estimate it")
-	fl.Float64Var(&minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
+	newDecimalFlag(fl, &minP, "min-p", match.DefaultMinPMatch, "posterior probability from which a match is called matched")
 	fl.StringVar(&decisions, "decisions", "", "decisions file from review: accepted pairs fixed, rejected ones forbidden, cells with no counterpart left out")
 	return cmd
 }
@@ -127,7 +131,7 @@ func parsePrior(s string) (float64, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return 0, nil
 	}
-	p, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	p, err := landmarks.ParseDecimal(s)
 	if err != nil || !(p > 0 && p < 1) {
 		return 0, fmt.Errorf("--prior-counterpart: want auto or a probability between 0 and 1, got %q", s)
 	}

@@ -36,6 +36,9 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 					inputs = append(inputs, p)
 				}
 			}
+			if err := refuseStdout(out, "an HTML page"); err != nil {
+				return err
+			}
 			if err := requireOutput(out, inputs...); err != nil {
 				return err
 			}
@@ -94,7 +97,7 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 // reportFromLandmarks checks and fits the landmarks with the flags, as fit
 // does, for a report without a transform file.
 func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags, path string) error {
-	job, a, err := flags.assess(path)
+	job, a, err := flags.assess(cmd, path)
 	if err != nil {
 		return err
 	}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 
@@ -177,7 +178,14 @@ where the stack maps.`,
 			if like == "" {
 				return fmt.Errorf("--like: a target image whose pixel grid to fill is required")
 			}
+			if err := refuseStdout(f.out, "an image"); err != nil {
+				return err
+			}
 			if err := requireOutput(f.out, args[0], args[1], like); err != nil {
+				return err
+			}
+			format, err := imageFormat(f.out, "tiff", "tiff", "png")
+			if err != nil {
 				return err
 			}
 			job, err := f.load(cmd, args[0], args[1], like)
@@ -193,7 +201,11 @@ where the stack maps.`,
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
-			if err := imaging.WriteTIFF(f.out, out); err != nil {
+			write := func() error { return imaging.WriteTIFFContext(cmd.Context(), f.out, out) }
+			if format == "png" {
+				write = func() error { return imaging.WritePNGContext(cmd.Context(), f.out, out.Image(0)) }
+			}
+			if err := write(); err != nil {
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", job.describe(rep), f.out)
@@ -220,7 +232,13 @@ status (diamond: ok or matched; square: ambiguous; plus: any other), and a
 scale bar in µm is drawn. Voxel sizes, origins and --target-z as for resample.`,
 		Args: exactArgs("TRANSFORM", "SOURCE_STACK", "TARGET_IMAGE"),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := refuseStdout(f.out, "an image"); err != nil {
+				return err
+			}
 			if err := requireOutput(f.out, args[0], args[1], args[2], mapped); err != nil {
+				return err
+			}
+			if _, err := imageFormat(f.out, "png", "png"); err != nil {
 				return err
 			}
 			job, err := f.load(cmd, args[0], args[1], args[2])
@@ -241,7 +259,7 @@ scale bar in µm is drawn. Voxel sizes, origins and --target-z as for resample.`
 			if err := cmd.Context().Err(); err != nil {
 				return fmt.Errorf("%s not written: %w", f.out, err)
 			}
-			if err := imaging.WritePNG(f.out, img); err != nil {
+			if err := imaging.WritePNGContext(cmd.Context(), f.out, img); err != nil {
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", job.describe(rep), len(marks), f.out)
@@ -372,4 +390,31 @@ func readMatchMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mar
 		return nil, fmt.Errorf("%s: no row gives the mapped cell's position (no cell_x_um or cell_x_vox columns: a table from an older ferry match? run match again)", path)
 	}
 	return imaging.PlaneMarks(pos, reach, states, ids, job.grid), nil
+}
+
+// imageFormat is the format of an image output by its extension: .tif or
+// .tiff for TIFF, .png for PNG, among those allowed; a name without an
+// extension (a device such as /dev/null, say) takes def. Any other
+// extension is refused before the work starts: the data written must be what
+// the name says.
+func imageFormat(out, def string, allowed ...string) (string, error) {
+	ext := strings.ToLower(filepath.Ext(out))
+	format := ""
+	switch ext {
+	case "":
+		return def, nil
+	case ".tif", ".tiff":
+		format = "tiff"
+	case ".png":
+		format = "png"
+	}
+	var kinds, names []string
+	for _, a := range allowed {
+		if a == format {
+			return format, nil
+		}
+		kinds = append(kinds, strings.ToUpper(a))
+		names = append(names, map[string]string{"tiff": ".tif or .tiff", "png": ".png"}[a])
+	}
+	return "", fmt.Errorf("-o %s: this command writes %s images: name the output %s", out, strings.Join(kinds, " or "), strings.Join(names, " or "))
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"os"
@@ -47,7 +48,7 @@ See docs/suggest.md.`,
 			if n < 1 {
 				return fmt.Errorf("--n: want a positive number of landmarks, got %d", n)
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
 				return err
 			}
@@ -80,7 +81,14 @@ See docs/suggest.md.`,
 				return err
 			}
 			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
-			if err := res.WriteTable(cmd.Context(), out, output); err != nil {
+			if out == stdoutName && asJSON {
+				return fmt.Errorf("-o - with --json: both would go to standard output; give -o a file name")
+			}
+			if err := writeTable(cmd, out, func(ctx context.Context, path string) error {
+				return res.WriteTable(ctx, path, output)
+			}, func(w io.Writer) error {
+				return res.WriteCSV(w, output)
+			}); err != nil {
 				return err
 			}
 			stderr := cmd.ErrOrStderr()
@@ -94,7 +102,7 @@ See docs/suggest.md.`,
 			if asJSON {
 				return writeJSON(cmd.OutOrStdout(), res.JSON(output))
 			}
-			writeSuggestions(cmd.OutOrStdout(), res, output, out)
+			writeSuggestions(summaryWriter(cmd, out), res, output, outputName(out))
 			return nil
 		},
 	}

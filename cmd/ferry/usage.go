@@ -10,8 +10,14 @@ import (
 // usageError is a mistake on the command line: its message, then the
 // command's usage line, so that the user sees at once what to type.
 func usageError(cmd *cobra.Command, format string, a ...any) error {
-	return fmt.Errorf("%s: %s\nusage: %s", cmd.Name(), fmt.Sprintf(format, a...), cmd.UseLine())
+	return &commandLineError{msg: cmd.Name() + ": " + fmt.Sprintf(format, a...), usage: cmd.UseLine()}
 }
+
+// commandLineError is what usageError makes: the message, which is printed
+// on one line as every message is, and the usage line printed below it.
+type commandLineError struct{ msg, usage string }
+
+func (e *commandLineError) Error() string { return e.msg + "\nusage: " + e.usage }
 
 // exactArgs takes exactly the arguments named, and names the missing ones
 // (or says how many are too many) with the usage line.

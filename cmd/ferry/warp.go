@@ -39,6 +39,9 @@ resample.`,
 			if err := requireOutput(out, args[0], args[1]); err != nil {
 				return err
 			}
+			if _, err := imageFormat(out, "tiff", "tiff"); err != nil {
+				return err
+			}
 			sidecar := out + ".json"
 			if err := requireOutput(sidecar, args[0], args[1]); err != nil {
 				return err

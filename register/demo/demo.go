@@ -88,6 +88,12 @@ type Outcome struct {
 	flaggedVerdicts []register.LandmarkCheck
 }
 
+// FileNames are the names of the files Run writes into its folder, the
+// simulator's included.
+func FileNames() []string {
+	return append(simulate.FileNames(), "transform.json", "mapped.csv", "matches.csv", "overlay.png", "report.html")
+}
+
 // Run simulates the scenario into o.Dir and does the job on its files.
 func Run(ctx context.Context, o Options) (*Outcome, error) {
 	start := time.Now()
@@ -100,13 +106,16 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if o.Params != nil {
 		params = *o.Params
 	}
+	if err := simulate.CheckFolder(o.Dir, FileNames()...); err != nil {
+		return nil, err
+	}
 	step("simulating the scenario (seed %d)", o.Seed)
 	scen, err := simulate.Generate(params, o.Seed)
 	if err != nil {
 		return nil, err
 	}
 	out := &Outcome{Statuses: map[string]int{}}
-	if out.Files.Files, err = scen.Write(o.Dir); err != nil {
+	if out.Files.Files, err = scen.WriteContext(ctx, o.Dir); err != nil {
 		return nil, err
 	}
 	f := &out.Files
@@ -234,7 +243,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 
 	step("drawing the scenario's images and the overlay")
 	ip := scen.DefaultImageParams()
-	stackPath, planePath, err := scen.WriteImages(o.Dir, ip)
+	stackPath, planePath, err := scen.WriteImagesContext(ctx, o.Dir, ip)
 	if err != nil {
 		return nil, err
 	}
@@ -363,7 +372,7 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err
 	}
-	if err := imaging.WritePNG(path, img); err != nil {
+	if err := imaging.WritePNGContext(ctx, path, img); err != nil {
 		return overlayResult{}, err
 	}
 	return overlayResult{path: path, marks: len(marks), outside: rep.OutsideShare()}, nil

@@ -20,7 +20,13 @@ import (
 // (see tiffwrite.go). The file appears whole or not at all: it is written
 // to a temporary file in the same folder and renamed over path only when
 // complete. It refuses to write over the file s was read from.
-func WriteTIFF(path string, s *Stack) error {
+func WriteTIFF(path string, s *Stack) error { return WriteTIFFContext(context.Background(), path, s) }
+
+// WriteTIFFContext is WriteTIFF with the run's context, whose output tracker
+// (register/outfile) learns of the temporary file, so that a signal handler
+// can remove it. The write is not cut short by a cancelled ctx: a caller
+// checks for an interrupt before it starts.
+func WriteTIFFContext(ctx context.Context, path string, s *Stack) error {
 	if err := s.check(); err != nil {
 		return err
 	}
@@ -31,7 +37,7 @@ func WriteTIFF(path string, s *Stack) error {
 	if err := l.check(path); err != nil {
 		return err
 	}
-	return writeAtomic(path, func(w io.Writer) error {
+	return writeAtomic(ctx, path, func(w io.Writer) error {
 		tw, err := newTIFFWriter(w, l)
 		if err != nil {
 			return err
@@ -49,11 +55,16 @@ func WriteTIFF(path string, s *Stack) error {
 // Stack's Image) as grey, an image.RGBA (an Overlay) as colour. Like
 // WriteTIFF it writes whole or not at all.
 func WritePNG(path string, img image.Image) error {
+	return WritePNGContext(context.Background(), path, img)
+}
+
+// WritePNGContext is WritePNG with the run's context, as WriteTIFFContext.
+func WritePNGContext(ctx context.Context, path string, img image.Image) error {
 	if img == nil || img.Bounds().Empty() {
 		return fmt.Errorf("imaging: %s: no image to write", path)
 	}
 	enc := png.Encoder{CompressionLevel: png.DefaultCompression}
-	return writeAtomic(path, func(w io.Writer) error {
+	return writeAtomic(ctx, path, func(w io.Writer) error {
 		return enc.Encode(w, img)
 	})
 }
@@ -77,7 +88,8 @@ func refuseOwnInput(path, input string) error {
 // writeAtomic writes a file through fill, whole or not at all, by the one
 // output path every ferry command takes (register/outfile), which buffers
 // fill's writes. A write of an image takes well under a second, so it is not
-// given a context: a caller checks for an interrupt before it starts.
-func writeAtomic(path string, fill func(io.Writer) error) error {
-	return outfile.Write(context.Background(), path, fill)
+// cancelled with ctx (a caller checks for an interrupt before it starts);
+// ctx only carries the output tracker.
+func writeAtomic(ctx context.Context, path string, fill func(io.Writer) error) error {
+	return outfile.Write(context.WithoutCancel(ctx), path, fill)
 }

@@ -2,6 +2,7 @@ package imaging
 
 import (
 	"bytes"
+	"context"
 	"errors"
 	"image"
 	"image/color"
@@ -179,7 +180,7 @@ func TestWriteWholeOrNothing(t *testing.T) {
 		t.Fatal(err)
 	}
 	boom := errors.New("disk on fire")
-	err := writeAtomic(path, func(w io.Writer) error {
+	err := writeAtomic(context.Background(), path, func(w io.Writer) error {
 		w.Write([]byte("half a file"))
 		return boom
 	})

@@ -74,7 +74,8 @@ func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.Point
 	}
 	cw := csv.NewWriter(w)
 	dim := cells.Dim
-	header := append(append(append(append([]string(nil), Columns...), CoordinateColumns(dim, voxel)...), "decision"), cells.ExtraColumns...)
+	own := append(append(append([]string(nil), Columns...), CoordinateColumns(dim, voxel)...), "decision")
+	header := append(own, landmarks.KeptColumnNames(own, cells.ExtraColumns)...)
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -84,6 +85,11 @@ func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.Point
 		cand, runner, err := candidateIDs(cands, r)
 		if err != nil {
 			return fmt.Errorf("match: cell %q: %v", c.ID, err)
+		}
+		for _, v := range []float64{r.PMatch, r.DistanceUM, r.PRunnerUp, r.PNone} {
+			if math.IsInf(v, 0) {
+				return &landmarks.InputError{File: cells.Path, Line: c.Line, Msg: fmt.Sprintf("cell %q: a distance or probability of %v, not a finite number: nothing written", c.ID, v)}
+			}
 		}
 		pMatch := ""
 		if r.Candidate >= 0 {

@@ -1,6 +1,7 @@
 package simulate
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"path/filepath"
@@ -62,6 +63,12 @@ func (s *Scenario) DefaultImageParams() ImageParams {
 // their voxel size and origin (ImageJ metadata and resolution tags), the
 // plane its z position, so that resample, overlay and warp need no flags.
 func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string, err error) {
+	return s.WriteImagesContext(context.Background(), dir, ip)
+}
+
+// WriteImagesContext is WriteImages with the run's context, which carries
+// its output tracker (register/outfile); the writes are not cut short.
+func (s *Scenario) WriteImagesContext(ctx context.Context, dir string, ip ImageParams) (stack, plane string, err error) {
 	st, err := s.InVivoStack(ip)
 	if err != nil {
 		return "", "", err
@@ -71,10 +78,10 @@ func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string,
 		return "", "", err
 	}
 	stack, plane = filepath.Join(dir, InVivoStackFile), filepath.Join(dir, EMPlaneFile)
-	if err := imaging.WriteTIFF(stack, st); err != nil {
+	if err := imaging.WriteTIFFContext(ctx, stack, st); err != nil {
 		return "", "", err
 	}
-	if err := imaging.WriteTIFF(plane, pl); err != nil {
+	if err := imaging.WriteTIFFContext(ctx, plane, pl); err != nil {
 		return "", "", err
 	}
 	return stack, plane, nil

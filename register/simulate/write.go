@@ -41,8 +41,19 @@ type Files struct {
 }
 
 // Write writes the scenario's files into dir, creating it if need be. Each
-// file is written whole or not at all (see register/outfile).
+// file is written whole or not at all (see register/outfile). A folder
+// that holds a file of the same name as one the simulator writes, and is not
+// a scenario folder written before, is refused (CheckFolder).
 func (s *Scenario) Write(dir string) (Files, error) {
+	return s.WriteContext(context.Background(), dir)
+}
+
+// WriteContext is Write with the run's context, which carries its output
+// tracker (register/outfile); the writes are not cut short.
+func (s *Scenario) WriteContext(ctx context.Context, dir string) (Files, error) {
+	if err := CheckFolder(dir, FileNames()...); err != nil {
+		return Files{}, fmt.Errorf("simulate: %w", err)
+	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return Files{}, fmt.Errorf("simulate: %w", err)
 	}
@@ -69,7 +80,7 @@ func (s *Scenario) Write(dir string) (Files, error) {
 		{files.TruthLandmarks, contents[TruthLandmarksFile]},
 		{files.Scenario, contents[ScenarioFile]},
 	} {
-		if err := writeAtomic(f.path, f.data); err != nil {
+		if err := writeAtomic(ctx, f.path, f.data); err != nil {
 			return Files{}, err
 		}
 	}
@@ -101,9 +112,9 @@ func (s *Scenario) Encode() (map[string][]byte, error) {
 
 // writeAtomic writes one file of the scenario whole or not at all, by the
 // one output path every ferry command takes. Generating a scenario is not
-// interruptible, so neither is writing it.
-func writeAtomic(path string, data []byte) error {
-	if err := outfile.WriteBytes(context.Background(), path, data); err != nil {
+// interruptible, so neither is writing it; ctx only carries the tracker.
+func writeAtomic(ctx context.Context, path string, data []byte) error {
+	if err := outfile.WriteBytes(context.WithoutCancel(ctx), path, data); err != nil {
 		return fmt.Errorf("simulate: %w", err)
 	}
 	return nil

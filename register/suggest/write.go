@@ -45,7 +45,7 @@ func (r *Result) columns(out Output) []string {
 	}
 	if out.Where != nil {
 		h = append(h, "where_id")
-		h = append(h, out.Where.ExtraColumns...)
+		h = append(h, landmarks.KeptColumnNames(h, out.Where.ExtraColumns)...)
 	}
 	return h
 }
