@@ -1,0 +1,260 @@
+package refine
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"sort"
+
+	"ferry/register"
+	"ferry/transform"
+)
+
+// fitState is the spline fitted to the landmarks and one round's pairs.
+type fitState struct {
+	res       *transform.Result
+	smoothing float64
+	// src, dst and weights are the nodes: landmarks, then pair nodes.
+	src, dst []transform.Vec
+	weights  []float64
+	// nodes is the number of pair nodes.
+	nodes       int
+	scale       transform.Vec
+	uncertainty *register.UncertaintyModel
+	heldOut     []register.HeldOut
+	// pairs are the round's pairs with their leave-one-out errors.
+	pairs []Pair
+}
+
+// The grid of the smoothing search, in decades about the last value: wide
+// in the first round, where the landmarks' S is only a guess for a fit with
+// many more nodes, narrow after.
+var (
+	wideDecades   = []float64{-2, -1.5, -1, -0.5, 0, 0.5, 1}
+	narrowDecades = []float64{-0.25, 0, 0.25}
+)
+
+// fit fits the thin-plate spline to the landmarks and the pairs (up to the
+// node budget), its smoothing chosen by the weighted mean squared exact
+// leave-one-out error of every node (ordinary cross-validation; Wahba 1990,
+// "Spline Models for Observational Data", ch. 4), searched about hint.
+func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) {
+	p := r.in.Landmarks
+	sortPairs(pairs)
+	isNode := r.chooseNodes(pairs, r.opt.MaxNodes-p.Len())
+	st := &fitState{}
+	st.src = append([]transform.Vec(nil), p.Source...)
+	st.dst = append([]transform.Vec(nil), p.Target...)
+	st.weights = append([]float64(nil), r.a.Weights...)
+	for i, pr := range pairs {
+		if isNode[i] {
+			pairs[i].Node = true
+			st.src = append(st.src, pr.Source)
+			st.dst = append(st.dst, pr.Target)
+			st.weights = append(st.weights, r.pairWeight)
+			st.nodes++
+		}
+	}
+	if !(hint > 0) {
+		hint = 1e-3 * typicalDistance(st.src, r.dim)
+	}
+	decades := narrowDecades
+	if wide {
+		decades = wideDecades
+	}
+	type trial struct {
+		sm   float64
+		cost float64
+		res  *transform.Result
+	}
+	try := func(sm float64) trial {
+		res, err := transform.Fit(transform.TPS, r.dim, st.src, st.dst,
+			transform.Options{Weights: st.weights, Smoothing: sm, LeaveOneOut: true})
+		if err != nil {
+			return trial{sm, math.Inf(1), nil}
+		}
+		c := 0.0
+		for i, e := range res.LOO {
+			c += st.weights[i] * e.Dot(e)
+		}
+		return trial{sm, c, res}
+	}
+	best := trial{cost: math.Inf(1)}
+	bestDecade := 0.0
+	for _, e := range decades {
+		if t := try(hint * math.Pow(10, e)); t.cost < best.cost {
+			best, bestDecade = t, e
+		}
+	}
+	if wide && best.res != nil {
+		for _, de := range []float64{-0.25, 0.25} {
+			if t := try(hint * math.Pow(10, bestDecade+de)); t.cost < best.cost {
+				best = t
+			}
+		}
+	}
+	if best.res == nil {
+		return nil, fmt.Errorf("refine: the spline through %d landmarks and %d pairs could not be fitted at any smoothing", p.Len(), st.nodes)
+	}
+	st.res, st.smoothing = best.res, best.sm
+	st.scale = axisScale(st.res, r.dim)
+
+	meanW := 0.0
+	for _, w := range st.weights {
+		meanW += w
+	}
+	meanW /= float64(len(st.weights))
+	u := *r.base
+	u.Scale = st.scale
+	u.NoiseFactor = st.smoothing * meanW
+	u.Source = st.src
+	u.Weights = st.weights
+	st.uncertainty = &u
+
+	// Each node pair's held-out prediction and its leave-one-out error;
+	// the other pairs are held out by construction, and are judged by the
+	// fit itself.
+	pred, err := transform.NewPredictor(st.res.Transform, st.src, st.weights)
+	if err != nil {
+		return nil, fmt.Errorf("refine: %w", err)
+	}
+	nugget := st.smoothing * meanW / r.pairWeight
+	k := p.Len()
+	for i := range pairs {
+		pr := &pairs[i]
+		var factor float64
+		if pr.Node {
+			pr.LOO = st.res.LOO[k]
+			factor = st.res.LOOFactor[k]
+			st.heldOut = append(st.heldOut, register.HeldOut{
+				ID: r.in.SomaIDs[pr.Soma], Source: pr.Source,
+				Predicted: pr.Target.Sub(pr.LOO), Factor: math.Max(factor-nugget, 0),
+			})
+			k++
+		} else {
+			pr.LOO = pr.Target.Sub(st.res.Transform.Apply(pr.Source))
+			factor = pred.Factor(pr.Source)[0][0] + nugget
+		}
+		var cov transform.Mat
+		for a := range r.dim {
+			cov[a][a] = st.scale[a] * factor
+		}
+		pr.R95 = r.radii.Radius(cov)
+	}
+	st.pairs = pairs
+	return st, nil
+}
+
+// chooseNodes picks which pairs become nodes: all of them within budget,
+// else one pair per box of a regular grid whose box is the smallest that
+// leaves at most budget boxes occupied, the likeliest pair of each box (the
+// lower soma index on a tie). The nodes then spread over the volume as the
+// pairs do, and every region keeps some.
+func (r *refiner) chooseNodes(pairs []Pair, budget int) []bool {
+	node := make([]bool, len(pairs))
+	if budget <= 0 {
+		return node
+	}
+	if len(pairs) <= budget {
+		for i := range node {
+			node[i] = true
+		}
+		return node
+	}
+	lo, hi := pairs[0].Source, pairs[0].Source
+	for _, pr := range pairs {
+		for a := range r.dim {
+			lo[a] = math.Min(lo[a], pr.Source[a])
+			hi[a] = math.Max(hi[a], pr.Source[a])
+		}
+	}
+	span := 0.0
+	for a := range r.dim {
+		span = math.Max(span, hi[a]-lo[a])
+	}
+	boxes := func(h float64) map[[3]int]int {
+		best := map[[3]int]int{}
+		for i, pr := range pairs {
+			var key [3]int
+			for a := range r.dim {
+				key[a] = int(math.Floor((pr.Source[a] - lo[a]) / h))
+			}
+			if j, ok := best[key]; !ok || pr.P > pairs[j].P {
+				best[key] = i
+			}
+		}
+		return best
+	}
+	small, large := span*1e-6, span+1
+	for range 50 {
+		mid := math.Sqrt(small * large)
+		if len(boxes(mid)) > budget {
+			small = mid
+		} else {
+			large = mid
+		}
+	}
+	chosen := boxes(large)
+	idx := make([]int, 0, len(chosen))
+	for _, i := range chosen {
+		idx = append(idx, i)
+	}
+	sort.Ints(idx)
+	for _, i := range idx {
+		node[i] = true
+	}
+	return node
+}
+
+// axisScale is the per-axis mean standardised square of a fit's
+// leave-one-out errors, as register's check estimates the scale of a
+// landmark fit, floored away from zero.
+func axisScale(res *transform.Result, dim int) transform.Vec {
+	var s transform.Vec
+	for i, e := range res.LOO {
+		for k := range dim {
+			s[k] += e[k] * e[k] / res.LOOFactor[i]
+		}
+	}
+	m := 0.0
+	for k := range dim {
+		s[k] /= float64(max(len(res.LOO), 1))
+		m = math.Max(m, s[k])
+	}
+	for k := range dim {
+		s[k] = math.Max(s[k], math.Max(m*1e-12, 1e-24))
+	}
+	return s
+}
+
+// typicalDistance is the mean distance between nodes, over a stride of
+// them, as a kernel value in 3-D; its square times its logarithm in 2-D.
+func typicalDistance(points []transform.Vec, dim int) float64 {
+	sum, n := 0.0, 0
+	step := max(1, len(points)/50)
+	for i := 0; i < len(points); i += step {
+		for j := i + 1; j < len(points); j += step {
+			sum += points[i].Sub(points[j]).Norm()
+			n++
+		}
+	}
+	d := 1.0
+	if n > 0 && sum > 0 {
+		d = sum / float64(n)
+	}
+	if dim == 2 {
+		return d * d * math.Max(math.Log(d), 1)
+	}
+	return d
+}
+
+// heldOutJSON is a refinement record with the held-out predictions alone,
+// which is what a mapper reads.
+func heldOutJSON(h []register.HeldOut) (json.RawMessage, error) {
+	if h == nil {
+		h = []register.HeldOut{}
+	}
+	return json.Marshal(struct {
+		HeldOut []register.HeldOut `json:"held_out"`
+	}{h})
+}
