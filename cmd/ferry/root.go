@@ -37,6 +37,7 @@ Results are for research and must be checked by eye before tracing.`,
 		newResampleCommand(),
 		newOverlayCommand(),
 		newSuggestCommand(),
+		newRefineCommand(),
 	)
 	return root
 }

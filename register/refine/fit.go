@@ -67,6 +67,13 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 		cost float64
 		res  *transform.Result
 	}
+	// The landmarks the check flagged stay nodes, as fit keeps them, but
+	// neither choose the smoothing nor set the scale: a wrong landmark's
+	// error would make every radius wider.
+	clean := make([]bool, len(st.src))
+	for i := range clean {
+		clean[i] = i >= p.Len() || r.a.Landmarks[i].Flag == ""
+	}
 	try := func(sm float64) trial {
 		res, err := transform.Fit(transform.TPS, r.dim, st.src, st.dst,
 			transform.Options{Weights: st.weights, Smoothing: sm, LeaveOneOut: true})
@@ -75,7 +82,9 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 		}
 		c := 0.0
 		for i, e := range res.LOO {
-			c += st.weights[i] * e.Dot(e)
+			if clean[i] {
+				c += st.weights[i] * e.Dot(e)
+			}
 		}
 		return trial{sm, c, res}
 	}
@@ -97,7 +106,7 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 		return nil, fmt.Errorf("refine: the spline through %d landmarks and %d pairs could not be fitted at any smoothing", p.Len(), st.nodes)
 	}
 	st.res, st.smoothing = best.res, best.sm
-	st.scale = axisScale(st.res, r.dim)
+	st.scale = axisScale(st.res, r.dim, clean)
 
 	meanW := 0.0
 	for _, w := range st.weights {
@@ -209,16 +218,21 @@ func (r *refiner) chooseNodes(pairs []Pair, budget int) []bool {
 // axisScale is the per-axis mean standardised square of a fit's
 // leave-one-out errors, as register's check estimates the scale of a
 // landmark fit, floored away from zero.
-func axisScale(res *transform.Result, dim int) transform.Vec {
+func axisScale(res *transform.Result, dim int, use []bool) transform.Vec {
 	var s transform.Vec
+	n := 0
 	for i, e := range res.LOO {
+		if !use[i] {
+			continue
+		}
+		n++
 		for k := range dim {
 			s[k] += e[k] * e[k] / res.LOOFactor[i]
 		}
 	}
 	m := 0.0
 	for k := range dim {
-		s[k] /= float64(max(len(res.LOO), 1))
+		s[k] /= float64(max(n, 1))
 		m = math.Max(m, s[k])
 	}
 	for k := range dim {

@@ -31,8 +31,12 @@ const (
 var startP = []float64{0.999, 0.995}
 
 // stableShare: the rounds stop once at most this share of the pairs (and at
-// least one pair) changed since the round before at the final threshold.
-const stableShare = 0.005
+// least stableLeast pairs) changed since the round before at the final
+// threshold: a pair or two near the threshold may go in and out for ever.
+const (
+	stableShare = 0.005
+	stableLeast = 2
+)
 
 // Options steer Refine. The zero value of a field means its default.
 type Options struct {
@@ -58,6 +62,9 @@ type Options struct {
 type Input struct {
 	// Landmarks are the landmark pairs, the user's exclusions removed.
 	Landmarks *register.Problem
+	// Assessment, when not nil, is register.Assess of Landmarks with
+	// Options.Settings, already run; Refine runs it otherwise.
+	Assessment *register.Assessment
 	// Somata are the in vivo somata (source): the cells, then any more.
 	// SomaIDs name them (unique).
 	Somata  []transform.Vec
@@ -156,11 +163,14 @@ func Refine(in Input, opt Options) (*Result, error) {
 		return nil, errors.New("refine: ids and positions differ in number")
 	}
 	rep := progress.Of(opt.Progress)
-	rep.Step("fitting the landmarks", 0)
-	a, err := register.Assess(p, opt.Settings)
-	rep.Finish()
-	if err != nil {
-		return nil, err
+	a := in.Assessment
+	if a == nil {
+		rep.Step("fitting the landmarks", 0)
+		a, err = register.Assess(p, opt.Settings)
+		rep.Finish()
+		if err != nil {
+			return nil, err
+		}
 	}
 	r := &refiner{in: in, opt: opt, a: a, dim: p.Dim, radii: register.Radius95(p.Dim)}
 	r.base = register.NewUncertaintyModel(p, a, opt.Settings)
@@ -225,7 +235,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if mapper, err = r.mapper(cur); err != nil {
 			return nil, err
 		}
-		if threshold == opt.MinP && round >= len(startP) && rd.Changed() <= max(1, int(stableShare*float64(len(pairs)))) {
+		if threshold == opt.MinP && round >= len(startP) && rd.Changed() <= max(stableLeast, int(stableShare*float64(len(pairs)))) {
 			break
 		}
 	}
@@ -404,7 +414,16 @@ func (r *refiner) finish(res *Result, fit *fitState) {
 			res.PairCalibration.Inside++
 		}
 	}
-	res.Worse, res.WorseReason = worse(res.LandmarkBefore, res.LandmarkAfter)
+	// The flagged landmarks are left out of the comparison: predicting a
+	// wrong landmark worse is no fault.
+	var before, after []float64
+	for i, l := range r.a.Landmarks {
+		if l.Flag == "" {
+			before = append(before, res.LandmarkBefore[i])
+			after = append(after, res.LandmarkAfter[i])
+		}
+	}
+	res.Worse, res.WorseReason = worse(before, after)
 }
 
 // worse compares the landmarks' leave-one-out errors before and after by
