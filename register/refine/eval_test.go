@@ -17,7 +17,7 @@ func evaluate(t testing.TB, s *scenario, f *transform.File) scores {
 		t.Fatal(err)
 	}
 	sd := s.Params.CellSD
-	res, err := match.Match(m, s.Cells, &sd, s.Candidates, match.Options{CellIDs: s.CellIDs, CandidateIDs: s.CandIDs})
+	res, err := match.Match(m, s.Cells, &sd, s.Candidates, match.Options{CandidateSD: s.Params.NucleusSD, CellIDs: s.CellIDs, CandidateIDs: s.CandIDs})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -67,7 +67,7 @@ func baseFile(t testing.TB, s *scenario, a *register.Assessment) *transform.File
 func runScenario(t testing.TB, s *scenario) (before, after scores, res *Result) {
 	t.Helper()
 	sd := s.Params.CellSD
-	opt := Options{Settings: register.Settings{Smoothing: register.Smoothing{Auto: true}}, CellSD: &sd}
+	opt := Options{Settings: register.Settings{Smoothing: register.Smoothing{Auto: true}}, CellSD: &sd, CandidateSD: s.Params.NucleusSD}
 	res, err := Refine(s.input(), opt)
 	if err != nil {
 		t.Fatal(err)

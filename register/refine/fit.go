@@ -22,8 +22,10 @@ type fitState struct {
 	scale       transform.Vec
 	uncertainty *register.UncertaintyModel
 	heldOut     []register.HeldOut
-	// pairs are the round's pairs with their leave-one-out errors.
-	pairs []Pair
+	// pairs are the round's pairs with their leave-one-out errors;
+	// pairFactor the prediction factor of each one's cell without its pair.
+	pairs      []Pair
+	pairFactor []float64
 }
 
 // The grid of the smoothing search, in decades about the last value: wide
@@ -106,13 +108,26 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 		return nil, fmt.Errorf("refine: the spline through %d landmarks and %d pairs could not be fitted at any smoothing", p.Len(), st.nodes)
 	}
 	st.res, st.smoothing = best.res, best.sm
-	st.scale = axisScale(st.res, r.dim, clean)
-
 	meanW := 0.0
 	for _, w := range st.weights {
 		meanW += w
 	}
 	meanW /= float64(len(st.weights))
+	// The prediction factor of each node pair's cell without its own pair:
+	// its leave-one-out factor less the pair's own noise as the fit models
+	// it (its nugget S·w̄/w).
+	nugget := st.smoothing * meanW / r.pairWeight
+	k := p.Len()
+	heldFactor := make([]float64, len(pairs))
+	for i := range pairs {
+		if pairs[i].Node {
+			pairs[i].LOO = st.res.LOO[k]
+			heldFactor[i] = math.Max(st.res.LOOFactor[k]-nugget, 0)
+			k++
+		}
+	}
+	st.scale = axisScale(st.res, r.dim, clean)
+
 	u := *r.base
 	u.Scale = st.scale
 	u.NoiseFactor = st.smoothing * meanW
@@ -120,38 +135,43 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 	u.Weights = st.weights
 	st.uncertainty = &u
 
-	// Each node pair's held-out prediction and its leave-one-out error;
-	// the other pairs are held out by construction, and are judged by the
-	// fit itself.
+	// Each node pair's held-out prediction; the other pairs are held out by
+	// construction, and are judged by the fit itself. Each pair's 95 %
+	// radius is that of its leave-one-out error: its cell's mapping error
+	// and the candidate's spread.
 	pred, err := transform.NewPredictor(st.res.Transform, st.src, st.weights)
 	if err != nil {
 		return nil, fmt.Errorf("refine: %w", err)
 	}
-	nugget := st.smoothing * meanW / r.pairWeight
-	k := p.Len()
+	st.pairFactor = heldFactor
 	for i := range pairs {
 		pr := &pairs[i]
-		var factor float64
 		if pr.Node {
-			pr.LOO = st.res.LOO[k]
-			factor = st.res.LOOFactor[k]
 			st.heldOut = append(st.heldOut, register.HeldOut{
 				ID: r.in.SomaIDs[pr.Soma], Source: pr.Source,
-				Predicted: pr.Target.Sub(pr.LOO), Factor: math.Max(factor-nugget, 0),
+				Predicted: pr.Target.Sub(pr.LOO), Factor: heldFactor[i],
 			})
-			k++
 		} else {
 			pr.LOO = pr.Target.Sub(st.res.Transform.Apply(pr.Source))
-			factor = pred.Factor(pr.Source)[0][0] + nugget
+			st.pairFactor[i] = pred.Factor(pr.Source)[0][0]
 		}
-		var cov transform.Mat
-		for a := range r.dim {
-			cov[a][a] = st.scale[a] * factor
-		}
-		pr.R95 = r.radii.Radius(cov)
 	}
 	st.pairs = pairs
+	r.pairRadii(st)
 	return st, nil
+}
+
+// pairRadii sets each pair's 95 % radius: that of its leave-one-out error,
+// its cell's mapping error and the candidate's spread together.
+func (r *refiner) pairRadii(st *fitState) {
+	noise := r.pairNoise()
+	for i := range st.pairs {
+		var cov transform.Mat
+		for a := range r.dim {
+			cov[a][a] = st.scale[a]*st.pairFactor[i] + noise[a]
+		}
+		st.pairs[i].R95 = r.radii.Radius(cov)
+	}
 }
 
 // chooseNodes picks which pairs become nodes: all of them within budget,
@@ -271,4 +291,45 @@ func heldOutJSON(h []register.HeldOut) (json.RawMessage, error) {
 	return json.Marshal(struct {
 		HeldOut []register.HeldOut `json:"held_out"`
 	}{h})
+}
+
+// minPairsForScale is the fewest node pairs from which the scale is taken
+// from the pairs rather than from every node.
+const minPairsForScale = 20
+
+// pairScale is the per-axis scale s (µm²) from the node pairs' leave-one-out
+// errors, by the method of moments: the error of pair k along axis a has
+// variance s_a·F_k + n_a, F_k the prediction factor of its cell without the
+// pair and n_a the pair's stated noise (the soma's localisation error
+// through the Jacobian and the candidate's spread), so
+//
+//	s_a = Σ_k (e_ka² − n_a) / Σ_k F_k.
+//
+// This calibrates the mapped cells' covariance s·F + (own error) to the
+// errors of held-out cells, which is what map's r95 must hold; the scale of
+// every node's standardised errors (fallback) lumps the pairs' noise into s
+// and made the radii wider than they need be. It is never below a tenth of
+// the fallback, so that a few lucky pairs cannot shrink every radius.
+func (r *refiner) pairScale(pairs []Pair, factor []float64, fallback transform.Vec) transform.Vec {
+	noise := r.pairNoise()
+	var num transform.Vec
+	den, n := 0.0, 0
+	for i, pr := range pairs {
+		if !pr.Node {
+			continue
+		}
+		n++
+		den += factor[i]
+		for a := range r.dim {
+			num[a] += pr.LOO[a]*pr.LOO[a] - noise[a]
+		}
+	}
+	if n < minPairsForScale || !(den > 0) {
+		return fallback
+	}
+	var s transform.Vec
+	for a := range r.dim {
+		s[a] = math.Max(num[a]/den, 0.1*fallback[a])
+	}
+	return s
 }

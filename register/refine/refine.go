@@ -220,6 +220,10 @@ func Refine(in Input, opt Options) (*Result, error) {
 		}
 		if len(pairs) == 0 {
 			res.Rounds = append(res.Rounds, rd)
+			if threshold > opt.MinP {
+				// Nothing that clear yet: lower the threshold.
+				continue
+			}
 			break
 		}
 		rep.Step(fmt.Sprintf("refining, round %d: fitting %d pairs", round+1, len(pairs)), 0)
@@ -245,6 +249,12 @@ func Refine(in Input, opt Options) (*Result, error) {
 		res.Uncertainty = r.base
 		res.Scale = a.Scale
 		return res, nil
+	}
+	rep.Step("refining: calibrating the uncertainty", 0)
+	err = r.calibrate(cur)
+	rep.Finish()
+	if err != nil {
+		return nil, err
 	}
 	r.finish(res, cur)
 	return res, nil

@@ -57,7 +57,7 @@ func defaultParams(w warpKind, nLandmarks int, zSD float64) scenarioParams {
 		Warp: w, Landmarks: nLandmarks, Size: transform.Vec{500, 500, 350},
 		Density: 9e-5, Cells: 700, MissingShare: 0.05,
 		CellSD: transform.Vec{0.5, 0.5, zSD}, NucleusSD: 1.0,
-		PickSource: 0.7, PickTarget: 0.4, Amplitude: 8,
+		PickSource: 0.7, PickTarget: 0.4, Amplitude: 14,
 	}
 }
 
@@ -234,23 +234,20 @@ func makeWarp(pr scenarioParams, rng *rand.Rand) func(transform.Vec) transform.V
 			return transform.Vec{k2 * t * u[0], k2 * t * u[1], -k1 * pr.Size[2] * t * t * 2}.Scale(a / 8)
 		}
 	case warpShear:
-		// Sections 40 µm thick, each sheared against the one before by
-		// a few micrometres, the shear blended over 10 µm.
+		// Sections 40 µm thick, each sheared against the one before by a
+		// few micrometres: the offset in x and y is a random walk over the
+		// sections, continuous and linear within each.
 		const thick = 40.0
 		n := int(pr.Size[2]/thick) + 4
 		sx, sy := make([]float64, n), make([]float64, n)
 		for i := 1; i < n; i++ {
-			sx[i] = sx[i-1] + a*0.35*rng.NormFloat64()
-			sy[i] = sy[i-1] + a*0.35*rng.NormFloat64()
+			sx[i] = sx[i-1] + a*0.3*rng.NormFloat64()
+			sy[i] = sy[i-1] + a*0.3*rng.NormFloat64()
 		}
 		distort = func(u transform.Vec) transform.Vec {
-			z := u[2] + pr.Size[2]/2 + thick
-			f := z / thick
+			f := (u[2] + pr.Size[2]/2 + thick) / thick
 			i := min(max(int(math.Floor(f)), 0), n-2)
-			t := f - float64(i)
-			// Smoothstep across the last quarter of the section.
-			w := math.Min(math.Max((t-0.75)/0.25, 0), 1)
-			w = w * w * (3 - 2*w)
+			w := f - float64(i)
 			return transform.Vec{sx[i]*(1-w) + sx[i+1]*w, sy[i]*(1-w) + sy[i+1]*w, 0}
 		}
 	default:
