@@ -37,8 +37,8 @@ func (r *refiner) calibrate(st *fitState) error {
 		if err != nil {
 			return err
 		}
-		res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.in.Candidates, match.Options{
-			Dim: r.dim, CandidateSD: r.opt.CandidateSD, CellIDs: r.in.SomaIDs, CandidateIDs: r.in.CandidateIDs,
+		res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
+			Dim: r.dim, CandidateSD: r.opt.CandidateSD, CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
 		})
 		if err != nil {
 			return err
@@ -52,7 +52,7 @@ func (r *refiner) calibrate(st *fitState) error {
 				if c.j < 0 || c.p <= 0 || m.Mapped.Status == register.StatusFolded {
 					continue
 				}
-				e := r.in.Candidates[c.j].Sub(m.Mapped.Pos)
+				e := r.candPos[c.j].Sub(m.Mapped.Pos)
 				for a := range r.dim {
 					f := math.Max(m.Mapped.Cov[a][a]-own[a], 0) / st.scale[a]
 					num[a] += c.p * (e[a]*e[a] - own[a] - cand)

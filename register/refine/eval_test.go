@@ -65,6 +65,12 @@ func baseFile(t testing.TB, s *scenario, a *register.Assessment) *transform.File
 // runScenario refines a scenario and scores the landmark fit and the
 // refined fit.
 func runScenario(t testing.TB, s *scenario) (before, after scores, res *Result) {
+	return refineAndScore(t, s, true)
+}
+
+// refineAndScore refines s and scores the refined fit, and the landmark fit
+// too when withBefore.
+func refineAndScore(t testing.TB, s *scenario, withBefore bool) (before, after scores, res *Result) {
 	t.Helper()
 	sd := s.Params.CellSD
 	opt := Options{Settings: register.Settings{Smoothing: register.Smoothing{Auto: true}}, CellSD: &sd, CandidateSD: s.Params.NucleusSD}
@@ -73,7 +79,9 @@ func runScenario(t testing.TB, s *scenario) (before, after scores, res *Result) 
 		t.Fatal(err)
 	}
 	base := baseFile(t, s, res.Landmark)
-	before = evaluate(t, s, base)
+	if withBefore {
+		before = evaluate(t, s, base)
+	}
 	f, err := res.File(base, res.Record(s.input(), opt, nil))
 	if err != nil {
 		t.Fatal(err)

@@ -184,6 +184,14 @@ func Refine(in Input, opt Options) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
+	// The rounds see only the candidates near the somata; r.cand maps
+	// their indices back to the caller's.
+	r.cand = nearCandidates(mapper, in.Somata, opt.CellSD, in.Candidates, p.Dim)
+	r.candPos = make([]transform.Vec, len(r.cand))
+	r.candIDs = make([]string, len(r.cand))
+	for k, j := range r.cand {
+		r.candPos[k], r.candIDs[k] = in.Candidates[j], in.CandidateIDs[j]
+	}
 	var (
 		cur  *fitState
 		prev map[int]int
@@ -294,6 +302,11 @@ type refiner struct {
 	dim        int
 	radii      *register.RadiusTable
 	pairWeight float64
+	// cand are the candidates near the somata (indices into the input's),
+	// candPos and candIDs their positions and ids.
+	cand    []int
+	candPos []transform.Vec
+	candIDs []string
 }
 
 // landmarkNoise is the landmarks' noise variance per target axis (µm²):
@@ -364,9 +377,9 @@ func (r *refiner) relativePairWeight() float64 {
 // matched one to one with posterior probability at least threshold, the
 // runner-up below 1 − threshold, the mapping not folded.
 func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pair, error) {
-	res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.in.Candidates, match.Options{
+	res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
 		Dim: r.dim, CandidateSD: r.opt.CandidateSD, MinPMatch: threshold,
-		CellIDs: r.in.SomaIDs, CandidateIDs: r.in.CandidateIDs,
+		CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
 	})
 	if err != nil {
 		return nil, err
@@ -376,8 +389,9 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pai
 		if m.Status != match.StatusMatched || m.PMatch < threshold || m.PRunnerUp > 1-threshold {
 			continue
 		}
-		pairs = append(pairs, Pair{Soma: i, Candidate: m.Candidate, P: m.PMatch,
-			Source: r.in.Somata[i], Target: r.in.Candidates[m.Candidate]})
+		j := r.cand[m.Candidate]
+		pairs = append(pairs, Pair{Soma: i, Candidate: j, P: m.PMatch,
+			Source: r.in.Somata[i], Target: r.in.Candidates[j]})
 	}
 	return pairs, nil
 }

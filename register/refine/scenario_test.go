@@ -50,6 +50,9 @@ type scenarioParams struct {
 	PickSource, PickTarget float64
 	// Amplitude scales the non-affine warp (µm).
 	Amplitude float64
+	// Margin is how far the EM volume (the somata, hence the candidates)
+	// reaches beyond the block on every side (µm); zero means 30 µm.
+	Margin transform.Vec
 }
 
 func defaultParams(w warpKind, nLandmarks int, zSD float64) scenarioParams {
@@ -83,9 +86,13 @@ func newScenario(pr scenarioParams, seed uint64) *scenario {
 	// Somata as a hard-core process: uniform proposals at least minGap
 	// apart (somata do not overlap), over the block and a margin around it
 	// so that the EM volume holds nuclei all round the imaged field.
-	const margin, minGap = 30.0, 7.0
-	lo := transform.Vec{-margin, -margin, -margin}
-	hi := pr.Size.Add(transform.Vec{margin, margin, margin})
+	const minGap = 7.0
+	margin := pr.Margin
+	if margin == (transform.Vec{}) {
+		margin = transform.Vec{30, 30, 30}
+	}
+	lo := margin.Scale(-1)
+	hi := pr.Size.Add(margin)
 	vol := (hi[0] - lo[0]) * (hi[1] - lo[1]) * (hi[2] - lo[2])
 	want := int(pr.Density * vol)
 	g := newGapGrid(minGap)

@@ -1,0 +1,39 @@
+package refine
+
+import (
+	"testing"
+
+	"ferry/transform"
+)
+
+// largeParams is the large block of the issue: 1 × 1 × 0.4 mm imaged, 60
+// vessel landmarks, the EM export reaching 500 µm beyond it in x and y and
+// 200 µm in z (about 290,000 nuclei), in vivo z sd 2 µm.
+func largeParams(cells int) scenarioParams {
+	pr := defaultParams(warpBumps, 60, 2)
+	pr.Size = transform.Vec{1000, 1000, 400}
+	pr.Cells = cells
+	pr.Margin = transform.Vec{500, 500, 200}
+	return pr
+}
+
+// BenchmarkRefineLarge refines and matches 5,000 cells against about
+// 290,000 nuclei: what `ferry refine` then `ferry match` compute, the
+// reading and writing of files aside.
+func BenchmarkRefineLarge(b *testing.B) { benchLarge(b, 5000) }
+
+// BenchmarkRefineLarge20k is the same with 20,000 cells.
+func BenchmarkRefineLarge20k(b *testing.B) { benchLarge(b, 20000) }
+
+func benchLarge(b *testing.B, cells int) {
+	s := newScenario(largeParams(cells), 1)
+	b.ReportMetric(float64(len(s.Candidates)), "candidates")
+	var after scores
+	for b.Loop() {
+		_, after, _ = refineAndScore(b, s, false)
+	}
+	b.ReportMetric(after.Recall, "recall")
+	b.ReportMetric(after.Precision, "precision")
+	b.ReportMetric(after.MedianUM, "median_um")
+	b.ReportMetric(after.Coverage, "coverage")
+}
