@@ -1,0 +1,166 @@
+package refine
+
+import (
+	"math"
+	"strings"
+	"testing"
+
+	"ferry/register"
+	"ferry/transform"
+)
+
+// A cell whose pair is a node of the refined spline is mapped, through the
+// transform file as map and match read it, to its exact leave-one-out
+// prediction: the spline refitted without that pair (same smoothing and
+// weights) and evaluated at the cell. Its own pair does not vouch for it.
+func TestHeldOutCellIsPredictedWithoutItsPair(t *testing.T) {
+	s := newScenario(smallParams(warpBumps), 2)
+	_, _, res := runScenario(t, s)
+	if len(res.HeldOut) < 100 {
+		t.Fatalf("only %d held-out cells", len(res.HeldOut))
+	}
+	f := refinedFile(t, s, res)
+	m, err := register.NewMapper(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp := res.Transform.(*transform.Spline)
+	for _, k := range []int{0, len(res.HeldOut) / 2, len(res.HeldOut) - 1} {
+		h := res.HeldOut[k]
+		got := m.Map(h.Source, nil).Pos
+		// Refit without the node.
+		var src, dst []transform.Vec
+		var w []float64
+		node := -1
+		for i, x := range res.Nodes {
+			if x == h.Source {
+				node = i
+				continue
+			}
+			src, dst, w = append(src, x), append(dst, res.Targets[i]), append(w, res.Weights[i])
+		}
+		if node < 0 {
+			t.Fatalf("held-out cell %s is not a node", h.ID)
+		}
+		// The spline's weights are relative to their mean, which leaving a
+		// node out changes: scale S so that every other node keeps its
+		// penalty S·w̄/w_i.
+		all := mean(res.Weights)
+		rest := mean(w)
+		loo, err := transform.Fit(transform.TPS, 3, src, dst, transform.Options{Weights: w, Smoothing: sp.Smoothing * all / rest})
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := loo.Transform.Apply(h.Source)
+		if d := got.Sub(want).Norm(); d > 1e-6 {
+			t.Errorf("cell %s mapped to %v, the fit without its pair predicts %v (%.3g µm apart)", h.ID, got, want, d)
+		}
+		if d := got.Sub(res.Transform.Apply(h.Source)).Norm(); d < 1e-9 {
+			t.Errorf("cell %s is mapped by the fit that holds its own pair", h.ID)
+		}
+	}
+}
+
+func mean(v []float64) float64 {
+	s := 0.0
+	for _, x := range v {
+		s += x
+	}
+	return s / float64(len(v))
+}
+
+func refinedFile(t testing.TB, s *scenario, res *Result) *transform.File {
+	t.Helper()
+	sd := s.Params.CellSD
+	opt := Options{CellSD: &sd, CandidateSD: s.Params.NucleusSD}
+	f, err := res.File(baseFile(t, s, res.Landmark), res.Record(s.input(), opt, nil))
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := f.Marshal()
+	if err != nil {
+		t.Fatal(err)
+	}
+	back, err := transform.Unmarshal("refined.json", data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return back
+}
+
+// smallParams is a quick scenario: 250 cells, 48 landmarks, a smaller block.
+func smallParams(w warpKind) scenarioParams {
+	pr := defaultParams(w, 48, 1)
+	pr.Size = transform.Vec{400, 400, 250}
+	pr.Cells = 250
+	return pr
+}
+
+// The landmarks are independent evidence: when the candidates disagree with
+// them (here every nucleus is shifted by 3 µm in x, as a wrong offset
+// between two exports would do), the refinement predicts them worse and is
+// refused.
+func TestRefinementThatPredictsLandmarksWorseIsRefused(t *testing.T) {
+	s := newScenario(smallParams(warpPolynomial), 3)
+	for j := range s.Candidates {
+		s.Candidates[j][0] += 3
+	}
+	sd := s.Params.CellSD
+	res, err := Refine(s.input(), Options{CellSD: &sd, CandidateSD: s.Params.NucleusSD})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Pairs) == 0 {
+		t.Fatal("no pair found: the shift is too large for this test")
+	}
+	if !res.Worse || !strings.Contains(res.WorseReason, "worse") {
+		t.Errorf("refinement against shifted candidates not refused: landmark RMS %.2f → %.2f µm", rmsOf(res.LandmarkBefore), rmsOf(res.LandmarkAfter))
+	}
+}
+
+func TestWorse(t *testing.T) {
+	tests := []struct {
+		name          string
+		before, after []float64
+		want          bool
+	}{
+		{"better", []float64{2, 3, 2, 4}, []float64{1.5, 2.5, 2, 3}, false},
+		{"the same", []float64{2, 3, 2, 4}, []float64{2, 3, 2, 4}, false},
+		{"one worse within noise", []float64{2, 3, 2, 4, 1, 2}, []float64{2, 3.5, 1.8, 3.9, 1, 2}, false},
+		{"all worse", []float64{2, 3, 2, 4}, []float64{3, 4, 3, 5}, true},
+	}
+	for _, tc := range tests {
+		if got, _ := worse(tc.before, tc.after); got != tc.want {
+			t.Errorf("%s: worse %v, want %v", tc.name, got, tc.want)
+		}
+	}
+}
+
+// The record states the rounds, pairs and landmark errors; the pairs'
+// leave-one-out errors are calibrated (about 95 % inside their radius).
+func TestRecord(t *testing.T) {
+	s := newScenario(smallParams(warpCompression), 4)
+	_, _, res := runScenario(t, s)
+	sd := s.Params.CellSD
+	rec := res.Record(s.input(), Options{CellSD: &sd}, []register.Input{{Path: "cells.csv", SHA256: "ab"}})
+	if rec.PairsUsed != len(res.Pairs) || rec.PairsUsed == 0 || rec.Iterations != len(res.Rounds) {
+		t.Errorf("record: %d pairs, %d iterations; result %d, %d", rec.PairsUsed, rec.Iterations, len(res.Pairs), len(res.Rounds))
+	}
+	if len(rec.Landmarks) != s.Landmarks.Len() || math.IsNaN(rec.LandmarkRMSAfter) {
+		t.Errorf("record: %d landmarks, RMS after %v", len(rec.Landmarks), rec.LandmarkRMSAfter)
+	}
+	if sh := rec.PairCalibration.Share; sh < 0.85 || sh > 0.995 {
+		t.Errorf("pairs' calibration %.3f, want near 0.95", sh)
+	}
+	var b strings.Builder
+	if err := WritePairs(&b, register.Provenance{Command: "refine"}, rec, 3, register.Voxels{}); err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(strings.TrimSpace(b.String()), "\n")
+	if len(lines) != rec.PairsUsed+2 || !strings.HasPrefix(lines[1], "id,kind,source_x,source_y,source_z,target_x,target_y,target_z,cell,candidate,p_match") {
+		t.Errorf("pairs file: %d lines, header %q", len(lines), lines[1])
+	}
+	if !strings.Contains(lines[2], ",soma,") {
+		t.Errorf("pair row %q is not of kind soma", lines[2])
+	}
+}
