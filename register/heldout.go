@@ -3,7 +3,6 @@ package register
 import (
 	"encoding/json"
 	"fmt"
-	"math"
 
 	"ferry/transform"
 )
@@ -22,10 +21,11 @@ type HeldOut struct {
 	// Predicted is the target position (µm) predicted without the cell's
 	// own correspondence.
 	Predicted transform.Vec `json:"predicted_um"`
-	// Factor is the prediction factor of Predicted, in the units of the
-	// uncertainty model's scale: the covariance of the prediction as an
-	// estimate of the true map there is diag(√s)·Factor·I·diag(√s).
-	Factor float64 `json:"factor"`
+	// Factor is the prediction factor of Predicted along each target axis,
+	// in the units of the uncertainty model's scale: the covariance of the
+	// prediction as an estimate of the true map there is diagonal, s_k·Factor_k
+	// along axis k.
+	Factor transform.Vec `json:"factor"`
 }
 
 // heldOutRecord is the part of a transform file's refinement record that
@@ -46,8 +46,13 @@ func parseHeldOut(raw json.RawMessage, dim int) (map[transform.Vec]HeldOut, erro
 	}
 	out := make(map[transform.Vec]HeldOut, len(rec.HeldOut))
 	for i, h := range rec.HeldOut {
-		if !h.Source.IsFinite() || !h.Predicted.IsFinite() || !(h.Factor >= 0) || math.IsInf(h.Factor, 0) {
+		if !h.Source.IsFinite() || !h.Predicted.IsFinite() || !h.Factor.IsFinite() {
 			return nil, fmt.Errorf("refinement record: held-out prediction %d (%q) is not finite", i+1, h.ID)
+		}
+		for k := range dim {
+			if !(h.Factor[k] >= 0) {
+				return nil, fmt.Errorf("refinement record: held-out prediction %d (%q) has a negative factor", i+1, h.ID)
+			}
 		}
 		if dim == 2 {
 			h.Source[2], h.Predicted[2] = 0, 0

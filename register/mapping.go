@@ -100,7 +100,7 @@ func (m *Mapper) finishForward(x transform.Vec, factor transform.Mat, cellSD *tr
 		y = h.Predicted
 		factor = transform.Mat{}
 		for k := range m.dim {
-			factor[k][k] = h.Factor
+			factor[k][k] = h.Factor[k]
 		}
 	}
 	cov := m.covariance(factor, jac, cellSD)

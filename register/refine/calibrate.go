@@ -8,8 +8,8 @@ import (
 	"ferry/transform"
 )
 
-// calibrationRounds is how many times the scale is re-estimated from the
-// matches it gives.
+// calibrationRounds is how many times the scale of the last fit is
+// re-estimated from the matches it gives; every round's fit gets one.
 const calibrationRounds = 3
 
 // calibrate re-estimates the per-axis scale s of the refined fit from every
@@ -29,10 +29,10 @@ const calibrationRounds = 3
 // The spline's own split of each pair's error into map and noise (its
 // smoothing) made s too large: its noise is one number for all three axes,
 // and in vivo z is several times worse than x and y.
-func (r *refiner) calibrate(st *fitState) error {
+func (r *refiner) calibrate(st *fitState, rounds int) error {
 	own := r.ownNoise()
 	cand := r.opt.CandidateSD * r.opt.CandidateSD
-	for range calibrationRounds {
+	for range rounds {
 		mapper, err := r.mapper(st)
 		if err != nil {
 			return err

@@ -12,8 +12,13 @@ import (
 
 // fitState is the spline fitted to the landmarks and one round's pairs.
 type fitState struct {
-	res       *transform.Result
-	smoothing float64
+	// transform is the spline; smoothing its S for x and y, and for z.
+	transform transform.Transform
+	smoothing [2]float64
+	// loo and looFactor are every node's leave-one-out error and its
+	// factor, axis by axis.
+	loo       []transform.Vec
+	looFactor []transform.Vec
 	// src, dst and weights are the nodes: landmarks, then pair nodes.
 	src, dst []transform.Vec
 	weights  []float64
@@ -25,22 +30,19 @@ type fitState struct {
 	// pairs are the round's pairs with their leave-one-out errors;
 	// pairFactor the prediction factor of each one's cell without its pair.
 	pairs      []Pair
-	pairFactor []float64
+	pairFactor []transform.Vec
 }
 
-// The grid of the smoothing search, in decades about the last value: wide
-// in the first round, where the landmarks' S is only a guess for a fit with
-// many more nodes, narrow after.
-var (
-	wideDecades   = []float64{-2, -1.5, -1, -0.5, 0, 0.5, 1}
-	narrowDecades = []float64{-0.25, 0, 0.25}
-)
+// wideDecades is the grid of the smoothing search, in decades about the
+// last choice, refined by a quarter decade about the best.
+var wideDecades = []float64{-2, -1.5, -1, -0.5, 0, 0.5, 1}
 
 // fit fits the thin-plate spline to the landmarks and the pairs (up to the
-// node budget), its smoothing chosen by the weighted mean squared exact
-// leave-one-out error of every node (ordinary cross-validation; Wahba 1990,
-// "Spline Models for Observational Data", ch. 4), searched about hint.
-func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) {
+// node budget), its smoothing for x and y and for z chosen apart by the
+// weighted mean squared exact leave-one-out error of every node along those
+// axes (ordinary cross-validation; Wahba 1990, "Spline Models for
+// Observational Data", ch. 4), searched about hint when wide, else hint.
+func (r *refiner) fit(pairs []Pair, hint [2]float64, wide bool) (*fitState, error) {
 	p := r.in.Landmarks
 	sortPairs(pairs)
 	isNode := r.chooseNodes(pairs, r.opt.MaxNodes-p.Len())
@@ -57,17 +59,9 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 			st.nodes++
 		}
 	}
-	if !(hint > 0) {
-		hint = 1e-3 * typicalDistance(st.src, r.dim)
-	}
-	decades := narrowDecades
-	if wide {
-		decades = wideDecades
-	}
-	type trial struct {
-		sm   float64
-		cost float64
-		res  *transform.Result
+	if !(hint[0] > 0) {
+		h := 1e-3 * typicalDistance(st.src, r.dim)
+		hint = [2]float64{h, h}
 	}
 	// The landmarks the check flagged stay nodes, as fit keeps them, but
 	// neither choose the smoothing nor set the scale: a wrong landmark's
@@ -76,38 +70,86 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 	for i := range clean {
 		clean[i] = i >= p.Len() || r.a.Landmarks[i].Flag == ""
 	}
+	// Two groups of target axes, x and y together and z alone, each with
+	// its own smoothing: in vivo z is several times noisier than x and y,
+	// and one smoothing for all three would either follow the noise in z
+	// or miss the warp in x and y.
+	groups := [][]int{{0, 1}, {2}}
+	if r.dim == 2 {
+		groups = groups[:1]
+	}
+	type trial struct {
+		sm   float64
+		cost [2]float64
+		res  *transform.Result
+	}
+	tried := map[float64]trial{}
 	try := func(sm float64) trial {
+		if t, ok := tried[sm]; ok {
+			return t
+		}
+		t := trial{sm: sm, cost: [2]float64{math.Inf(1), math.Inf(1)}}
 		res, err := transform.Fit(transform.TPS, r.dim, st.src, st.dst,
 			transform.Options{Weights: st.weights, Smoothing: sm, LeaveOneOut: true})
-		if err != nil {
-			return trial{sm, math.Inf(1), nil}
-		}
-		c := 0.0
-		for i, e := range res.LOO {
-			if clean[i] {
-				c += st.weights[i] * e.Dot(e)
+		if err == nil {
+			t.res, t.cost = res, [2]float64{}
+			for i, e := range res.LOO {
+				if clean[i] {
+					for g, axes := range groups {
+						for _, a := range axes {
+							t.cost[g] += st.weights[i] * e[a] * e[a]
+						}
+					}
+				}
 			}
 		}
-		return trial{sm, c, res}
+		tried[sm] = t
+		return t
 	}
-	best := trial{cost: math.Inf(1)}
-	bestDecade := 0.0
-	for _, e := range decades {
-		if t := try(hint * math.Pow(10, e)); t.cost < best.cost {
-			best, bestDecade = t, e
+	var best [2]trial
+	for g := range groups {
+		best[g] = trial{cost: [2]float64{math.Inf(1), math.Inf(1)}}
+		if !wide {
+			// The smoothing stays where the wide search put it.
+			best[g] = try(hint[g])
+			continue
 		}
-	}
-	if wide && best.res != nil {
+		bestDecade := 0.0
+		for _, e := range wideDecades {
+			if t := try(hint[g] * math.Pow(10, e)); t.cost[g] < best[g].cost[g] {
+				best[g], bestDecade = t, e
+			}
+		}
 		for _, de := range []float64{-0.25, 0.25} {
-			if t := try(hint * math.Pow(10, bestDecade+de)); t.cost < best.cost {
-				best = t
+			if t := try(hint[g] * math.Pow(10, bestDecade+de)); t.cost[g] < best[g].cost[g] {
+				best[g] = t
 			}
 		}
 	}
-	if best.res == nil {
-		return nil, fmt.Errorf("refine: the spline through %d landmarks and %d pairs could not be fitted at any smoothing", p.Len(), st.nodes)
+	for g := range groups {
+		if best[g].res == nil {
+			return nil, fmt.Errorf("refine: the spline through %d landmarks and %d pairs could not be fitted at any smoothing", p.Len(), st.nodes)
+		}
 	}
-	st.res, st.smoothing = best.res, best.sm
+	st.smoothing = [2]float64{best[0].sm, best[0].sm}
+	st.loo = append([]transform.Vec(nil), best[0].res.LOO...)
+	st.looFactor = make([]transform.Vec, len(st.loo))
+	for i, f := range best[0].res.LOOFactor {
+		st.looFactor[i] = transform.Vec{f, f, f}
+	}
+	st.transform = best[0].res.Transform
+	if len(groups) > 1 && best[1].sm != best[0].sm {
+		st.smoothing[1] = best[1].sm
+		sp, err := best[0].res.Transform.(*transform.Spline).WithAxesFrom(best[1].res.Transform.(*transform.Spline), 2)
+		if err != nil {
+			return nil, fmt.Errorf("refine: %w", err)
+		}
+		st.transform = sp
+		for i := range st.loo {
+			st.loo[i][2] = best[1].res.LOO[i][2]
+			st.looFactor[i][2] = best[1].res.LOOFactor[i]
+		}
+	}
 	meanW := 0.0
 	for _, w := range st.weights {
 		meanW += w
@@ -115,22 +157,27 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 	meanW /= float64(len(st.weights))
 	// The prediction factor of each node pair's cell without its own pair:
 	// its leave-one-out factor less the pair's own noise as the fit models
-	// it (its nugget S·w̄/w).
-	nugget := st.smoothing * meanW / r.pairWeight
+	// it (its nugget S·w̄/w), axis by axis.
+	var nugget transform.Vec
+	for a := range r.dim {
+		nugget[a] = st.smoothing[min(a/2, 1)] * meanW / r.pairWeight
+	}
 	k := p.Len()
-	heldFactor := make([]float64, len(pairs))
+	heldFactor := make([]transform.Vec, len(pairs))
 	for i := range pairs {
 		if pairs[i].Node {
-			pairs[i].LOO = st.res.LOO[k]
-			heldFactor[i] = math.Max(st.res.LOOFactor[k]-nugget, 0)
+			pairs[i].LOO = st.loo[k]
+			for a := range r.dim {
+				heldFactor[i][a] = math.Max(st.looFactor[k][a]-nugget[a], 0)
+			}
 			k++
 		}
 	}
-	st.scale = axisScale(st.res, r.dim, clean)
+	st.scale = axisScale(st.loo, st.looFactor, r.dim, clean)
 
 	u := *r.base
 	u.Scale = st.scale
-	u.NoiseFactor = st.smoothing * meanW
+	u.NoiseFactor = st.smoothing[0] * meanW
 	u.Source = st.src
 	u.Weights = st.weights
 	st.uncertainty = &u
@@ -139,7 +186,7 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 	// construction, and are judged by the fit itself. Each pair's 95 %
 	// radius is that of its leave-one-out error: its cell's mapping error
 	// and the candidate's spread.
-	pred, err := transform.NewPredictor(st.res.Transform, st.src, st.weights)
+	pred, err := transform.NewPredictor(st.transform, st.src, st.weights)
 	if err != nil {
 		return nil, fmt.Errorf("refine: %w", err)
 	}
@@ -152,8 +199,9 @@ func (r *refiner) fit(pairs []Pair, hint float64, wide bool) (*fitState, error) 
 				Predicted: pr.Target.Sub(pr.LOO), Factor: heldFactor[i],
 			})
 		} else {
-			pr.LOO = pr.Target.Sub(st.res.Transform.Apply(pr.Source))
-			st.pairFactor[i] = pred.Factor(pr.Source)[0][0]
+			pr.LOO = pr.Target.Sub(st.transform.Apply(pr.Source))
+			f := pred.Factor(pr.Source)[0][0]
+			st.pairFactor[i] = transform.Vec{f, f, f}
 		}
 	}
 	st.pairs = pairs
@@ -168,7 +216,7 @@ func (r *refiner) pairRadii(st *fitState) {
 	for i := range st.pairs {
 		var cov transform.Mat
 		for a := range r.dim {
-			cov[a][a] = st.scale[a]*st.pairFactor[i] + noise[a]
+			cov[a][a] = st.scale[a]*st.pairFactor[i][a] + noise[a]
 		}
 		st.pairs[i].R95 = r.radii.Radius(cov)
 	}
@@ -238,16 +286,16 @@ func (r *refiner) chooseNodes(pairs []Pair, budget int) []bool {
 // axisScale is the per-axis mean standardised square of a fit's
 // leave-one-out errors, as register's check estimates the scale of a
 // landmark fit, floored away from zero.
-func axisScale(res *transform.Result, dim int, use []bool) transform.Vec {
+func axisScale(loo, factor []transform.Vec, dim int, use []bool) transform.Vec {
 	var s transform.Vec
 	n := 0
-	for i, e := range res.LOO {
+	for i, e := range loo {
 		if !use[i] {
 			continue
 		}
 		n++
 		for k := range dim {
-			s[k] += e[k] * e[k] / res.LOOFactor[i]
+			s[k] += e[k] * e[k] / factor[i][k]
 		}
 	}
 	m := 0.0

@@ -31,6 +31,7 @@ type Record struct {
 	Rounds     []Round          `json:"rounds"`
 	PairWeight float64          `json:"pair_weight"`
 	Smoothing  float64          `json:"smoothing"`
+	SmoothingZ float64          `json:"smoothing_z"`
 	// Landmarks are the landmarks' leave-one-out errors before and after.
 	Landmarks         []LandmarkLOO `json:"landmarks"`
 	LandmarkRMSBefore float64       `json:"landmark_loo_rms_before_um"`
@@ -78,7 +79,7 @@ func (res *Result) Record(in Input, opt Options, inputs []register.Input) Record
 	rec := Record{
 		Method: MethodName, Inputs: inputs, CellSD: opt.CellSD, CandSD: opt.CandidateSD, MinP: opt.MinP,
 		Somata: len(in.Somata), Candidates: len(in.Candidates), MaxNodes: opt.MaxNodes,
-		Iterations: len(res.Rounds), Rounds: res.Rounds, PairWeight: res.PairWeight, Smoothing: res.Smoothing,
+		Iterations: len(res.Rounds), Rounds: res.Rounds, PairWeight: res.PairWeight, Smoothing: res.Smoothing, SmoothingZ: res.SmoothingZ,
 		PairsUsed: len(res.Pairs), HeldOut: res.HeldOut,
 	}
 	if rec.Rounds == nil {

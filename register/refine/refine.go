@@ -18,7 +18,7 @@ const (
 	// pseudo-landmark in the last rounds.
 	DefaultMinP = 0.99
 	// DefaultMaxRounds bounds the rounds of matching and refitting.
-	DefaultMaxRounds = 8
+	DefaultMaxRounds = 12
 	// DefaultMaxNodes bounds the nodes of the refined spline, landmarks
 	// included: a dense fit with exact leave-one-out costs O(N³) time and
 	// O(N²) memory, about 0.7 s and 18 MB at 1,500 nodes on two cores.
@@ -34,8 +34,8 @@ var startP = []float64{0.999, 0.995}
 // least stableLeast pairs) changed since the round before at the final
 // threshold: a pair or two near the threshold may go in and out for ever.
 const (
-	stableShare = 0.005
-	stableLeast = 2
+	stableShare = 0.01
+	stableLeast = 3
 )
 
 // Options steer Refine. The zero value of a field means its default.
@@ -103,9 +103,10 @@ type Round struct {
 	Added    int `json:"added"`
 	Dropped  int `json:"dropped"`
 	Switched int `json:"switched"`
-	// Smoothing is the spline's S; LandmarkRMS the landmarks'
-	// leave-one-out RMS error (µm) in the fit.
+	// Smoothing is the spline's S along x and y, SmoothingZ along z;
+	// LandmarkRMS the landmarks' leave-one-out RMS error (µm) in the fit.
 	Smoothing   float64 `json:"smoothing"`
+	SmoothingZ  float64 `json:"smoothing_z"`
 	LandmarkRMS float64 `json:"landmark_loo_rms_um"`
 }
 
@@ -118,9 +119,10 @@ type Result struct {
 	// Landmark is the check and fit of the landmarks alone, as fit does.
 	Landmark *register.Assessment
 	// Transform is the refined spline (the landmark fit when no pair was
-	// found), Smoothing its S.
-	Transform transform.Transform
-	Smoothing float64
+	// found), Smoothing its S along x and y (and the transform file's),
+	// SmoothingZ along z.
+	Transform             transform.Transform
+	Smoothing, SmoothingZ float64
 	// Nodes, Targets and Weights are what the spline was fitted to:
 	// the landmarks first, then the pairs that are nodes.
 	Nodes, Targets []transform.Vec
@@ -196,7 +198,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		cur  *fitState
 		prev map[int]int
 	)
-	hint := a.Smoothing
+	hint := [2]float64{a.Smoothing, a.Smoothing}
 	for round := 0; round < opt.MaxRounds; round++ {
 		threshold := opt.MinP
 		if round < len(startP) {
@@ -235,15 +237,32 @@ func Refine(in Input, opt Options) (*Result, error) {
 			break
 		}
 		rep.Step(fmt.Sprintf("refining, round %d: fitting %d pairs", round+1, len(pairs)), 0)
-		next, err := r.fit(pairs, hint, round == 0)
+		// The smoothing is searched widely until the threshold reaches its
+		// final value, and after that only a quarter decade either side of
+		// that choice, never of the last round's: the pairs kept are those
+		// the last fit predicts well, so a stiffer fit keeps pairs that
+		// agree with stiffness, which would call for a stiffer fit again,
+		// and the smoothing would drift up round after round while the
+		// landmarks' errors grew.
+		wide := round <= len(startP) || cur == nil
+		next, err := r.fit(pairs, hint, wide)
 		rep.Finish()
 		if err != nil {
 			return nil, err
 		}
-		cur, prev, hint = next, now, next.smoothing
-		rd.Nodes, rd.Smoothing = next.nodes, next.smoothing
-		rd.LandmarkRMS = rms(next.res.LOO[:p.Len()])
+		cur, prev = next, now
+		if wide {
+			hint = next.smoothing
+		}
+		rd.Nodes, rd.Smoothing, rd.SmoothingZ = next.nodes, next.smoothing[0], next.smoothing[1]
+		rd.LandmarkRMS = rms(next.loo[:p.Len()])
 		res.Rounds = append(res.Rounds, rd)
+		// The next round's matches are judged with radii calibrated to
+		// this fit: its own estimate of the scale makes them too wide,
+		// and fewer pairs look clear than are.
+		if err := r.calibrate(cur, 1); err != nil {
+			return nil, err
+		}
 		if mapper, err = r.mapper(cur); err != nil {
 			return nil, err
 		}
@@ -259,7 +278,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		return res, nil
 	}
 	rep.Step("refining: calibrating the uncertainty", 0)
-	err = r.calibrate(cur)
+	err = r.calibrate(cur, calibrationRounds)
 	rep.Finish()
 	if err != nil {
 		return nil, err
@@ -402,7 +421,7 @@ func (r *refiner) mapper(fit *fitState) (*register.Mapper, error) {
 	f := &transform.File{Transform: r.a.Result.Transform}
 	u := r.base
 	if fit != nil {
-		f.Transform = fit.res.Transform
+		f.Transform = fit.transform
 		u = fit.uncertainty
 		raw, err := heldOutJSON(fit.heldOut)
 		if err != nil {
@@ -425,10 +444,10 @@ func (r *refiner) mapper(fit *fitState) (*register.Mapper, error) {
 // finish fills the result from the last fit.
 func (r *refiner) finish(res *Result, fit *fitState) {
 	nl := r.in.Landmarks.Len()
-	res.Transform, res.Smoothing = fit.res.Transform, fit.smoothing
+	res.Transform, res.Smoothing, res.SmoothingZ = fit.transform, fit.smoothing[0], fit.smoothing[1]
 	res.Nodes, res.Targets, res.Weights = fit.src, fit.dst, fit.weights
 	res.Scale, res.Uncertainty, res.HeldOut = fit.scale, fit.uncertainty, fit.heldOut
-	for _, e := range fit.res.LOO[:nl] {
+	for _, e := range fit.loo[:nl] {
 		res.LandmarkAfter = append(res.LandmarkAfter, e.Norm())
 	}
 	res.Pairs = fit.pairs
