@@ -62,8 +62,9 @@ func TestRefineRefusals(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Landmarks at their true positions, precise enough to see an offset
-	// of the nuclei; every nucleus then 2 µm off in x: pairs are still
-	// found, and pull the map away from the landmarks.
+	// of the nuclei; every nucleus then 1.5 µm off in x, and the somata and
+	// nuclei stated precise, so that the pairs weigh and pull the map away
+	// from the landmarks.
 	exact := exactLandmarks(t, files.TruthLandmarks, filepath.Join(dir, "exact.csv"))
 	data, err := os.ReadFile(files.Candidates)
 	if err != nil {
@@ -79,13 +80,13 @@ func TestRefineRefusals(t *testing.T) {
 		if _, err := fmt.Sscan(fs[1], &x); err != nil {
 			t.Fatal(err)
 		}
-		fs[1] = fmt.Sprintf("%.4f", x+2)
+		fs[1] = fmt.Sprintf("%.4f", x+1.5)
 		lines[i] = strings.Join(fs, ",")
 	}
 	shifted := writeFile(t, filepath.Join(dir, "shifted.csv"), strings.Join(lines, "\n")+"\n")
 	out := filepath.Join(dir, "refined.json")
 	mustSucceed(t, "refine", exact, files.Cells, files.Candidates, "--cell-sd", "0.5,0.5,2", "-o", filepath.Join(dir, "fine.json"))
-	o := ferry(t, "refine", exact, files.Cells, shifted, "--cell-sd", "0.5,0.5,2", "-o", out)
+	o := ferry(t, "refine", exact, files.Cells, shifted, "--cell-sd", "0.3,0.3,0.5", "--candidate-sd", "0.5", "-o", out)
 	if o.code != exitQuality || !strings.Contains(o.stdout, "worse") {
 		t.Errorf("refine against shifted nuclei: %v", o)
 	}

@@ -195,8 +195,10 @@ func Refine(in Input, opt Options) (*Result, error) {
 		r.candPos[k], r.candIDs[k] = in.Candidates[j], in.CandidateIDs[j]
 	}
 	var (
-		cur  *fitState
-		prev map[int]int
+		cur *fitState
+		// prev and before are the pairs of the last two rounds, soma to
+		// candidate.
+		prev, before map[int]int
 	)
 	hint := [2]float64{a.Smoothing, a.Smoothing}
 	for round := 0; round < opt.MaxRounds; round++ {
@@ -250,6 +252,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if err != nil {
 			return nil, err
 		}
+		prev0 := prev
 		cur, prev = next, now
 		if wide {
 			hint = next.smoothing
@@ -269,6 +272,12 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if threshold == opt.MinP && round >= len(startP) && rd.Changed() <= max(stableLeast, int(stableShare*float64(len(pairs)))) {
 			break
 		}
+		// A few pairs at the threshold may go out and come back in turn:
+		// the same pairs as two rounds ago is as stable as it gets.
+		if samePairs(now, before) {
+			break
+		}
+		before = prev0
 	}
 	if cur == nil {
 		// No pair was clear: the landmark fit stands, and says so.
@@ -526,4 +535,17 @@ func centroid(points []transform.Vec) transform.Vec {
 // sortPairs orders pairs by soma.
 func sortPairs(pairs []Pair) {
 	sort.Slice(pairs, func(i, j int) bool { return pairs[i].Soma < pairs[j].Soma })
+}
+
+// samePairs reports that two sets of pairs (soma to candidate) are equal.
+func samePairs(a, b map[int]int) bool {
+	if a == nil || b == nil || len(a) != len(b) {
+		return false
+	}
+	for s, c := range a {
+		if d, ok := b[s]; !ok || d != c {
+			return false
+		}
+	}
+	return true
 }
