@@ -11,8 +11,10 @@
 // clear (posterior probability above a threshold that is lowered over the
 // first rounds, the runner-up negligible) become pseudo-landmarks of kind
 // soma: the thin-plate spline is refitted to the landmarks and these pairs
-// together, each weighted by the precision of its kind, its smoothing chosen
-// by exact leave-one-out. The transform's uncertainty shrinks where pairs
+// together, each weighted by the precision of its kind, its smoothing for x
+// and y and for z chosen apart by exact leave-one-out (in vivo z is several
+// times noisier), and its per-axis scale re-estimated from every soma's
+// match. The transform's uncertainty shrinks where pairs
 // are added, more cells become clear, and the rounds stop once the pairs no
 // longer change. This is a hard-assignment, annealed variant of robust
 // point matching (Chui & Rangarajan 2003, Computer Vision and Image
