@@ -114,6 +114,13 @@ var refineSeeds = flag.Int("refine-seeds", 2, "seeds per scenario of TestRefineF
 // miss these narrowly (docs/refine.md gives the figures) and are held to
 // the looser bounds measured for them. Run with -v to see the figures, and
 // -refine-seeds=N for more seeds.
+//
+// The methods under test: annealed correspondences with an outlier option
+// and a thin-plate spline after robust point matching (Chui & Rangarajan
+// 2003, Computer Vision and Image Understanding 89(2–3):114–141), and the
+// scale re-estimated from the posterior-weighted errors as in the σ² step
+// of coherent point drift (Myronenko & Song 2010, IEEE TPAMI
+// 32(12):2262–2275); the coverage figures check the latter.
 func TestRefineFamilies(t *testing.T) {
 	if testing.Short() {
 		t.Skip("Monte Carlo evaluation: about a minute")

@@ -147,7 +147,9 @@ func TestWorse(t *testing.T) {
 }
 
 // The record states the rounds, pairs and landmark errors; the pairs'
-// leave-one-out errors are calibrated (about 95 % inside their radius).
+// leave-one-out errors are calibrated (about 95 % inside their radius),
+// with the scale re-estimated as coherent point drift re-estimates its σ²
+// (Myronenko & Song 2010, IEEE TPAMI 32(12):2262–2275).
 func TestRecord(t *testing.T) {
 	s := newScenario(smallParams(warpCompression), 4)
 	_, _, res := runScenario(t, s)
