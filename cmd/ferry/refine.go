@@ -183,7 +183,11 @@ func writeRefineSummary(w io.Writer, res *refine.Result, rec refine.Record) {
 		fmt.Fprintln(w, "No pair was clear enough to use: the transform is the landmark fit.")
 		return
 	}
-	fmt.Fprintf(w, "Pairs used: %d (%d as nodes of the spline), smoothing %.4g along x and y, %.4g along z.\n", rec.PairsUsed, rec.PairNodes, rec.Smoothing, rec.SmoothingZ)
+	if res.Dim == 2 {
+		fmt.Fprintf(w, "Pairs used: %d (%d as nodes of the spline), smoothing %.4g.\n", rec.PairsUsed, rec.PairNodes, rec.Smoothing)
+	} else {
+		fmt.Fprintf(w, "Pairs used: %d (%d as nodes of the spline), smoothing %.4g along x and y, %.4g along z.\n", rec.PairsUsed, rec.PairNodes, rec.Smoothing, rec.SmoothingZ)
+	}
 	fmt.Fprintf(w, "Landmark leave-one-out error: RMS %.2f µm before, %.2f µm after; median %.2f µm before, %.2f µm after.\n",
 		rec.LandmarkRMSBefore, rec.LandmarkRMSAfter, rec.LandmarkMedBefore, rec.LandmarkMedAfter)
 	fmt.Fprintf(w, "Pairs' own leave-one-out error: median %.2f µm, 95th percentile %.2f µm; %d of %d (%.1f %%) inside their 95 %% radius.\n",
