@@ -240,12 +240,11 @@ func Refine(in Input, opt Options) (*Result, error) {
 		}
 		rep.Step(fmt.Sprintf("refining, round %d: fitting %d pairs", round+1, len(pairs)), 0)
 		// The smoothing is searched widely until the threshold reaches its
-		// final value, and after that only a quarter decade either side of
-		// that choice, never of the last round's: the pairs kept are those
-		// the last fit predicts well, so a stiffer fit keeps pairs that
-		// agree with stiffness, which would call for a stiffer fit again,
-		// and the smoothing would drift up round after round while the
-		// landmarks' errors grew.
+		// final value, and kept after that: the pairs kept are those the
+		// last fit predicts well, so a stiffer fit keeps pairs that agree
+		// with stiffness, which call for a stiffer fit again, and a
+		// smoothing searched afresh each round drifted up round after
+		// round while the landmarks' errors grew.
 		wide := round <= len(startP) || cur == nil
 		next, err := r.fit(pairs, hint, wide)
 		rep.Finish()
