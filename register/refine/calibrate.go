@@ -40,6 +40,7 @@ func (r *refiner) calibrate(st *fitState, rounds int) error {
 		res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
 			Dim: r.dim, CandidateSD: r.opt.CandidateSD, CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
 		})
+		r.rep.Add(1)
 		if err != nil {
 			return err
 		}

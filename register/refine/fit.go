@@ -91,6 +91,7 @@ func (r *refiner) fit(pairs []Pair, hint [2]float64, wide bool) (*fitState, erro
 		t := trial{sm: sm, cost: [2]float64{math.Inf(1), math.Inf(1)}}
 		res, err := transform.Fit(transform.TPS, r.dim, st.src, st.dst,
 			transform.Options{Weights: st.weights, Smoothing: sm, LeaveOneOut: true})
+		r.rep.Add(1)
 		if err == nil {
 			t.res, t.cost = res, [2]float64{}
 			for i, e := range res.LOO {

@@ -174,7 +174,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 			return nil, err
 		}
 	}
-	r := &refiner{in: in, opt: opt, a: a, dim: p.Dim, radii: register.Radius95(p.Dim)}
+	r := &refiner{in: in, opt: opt, a: a, dim: p.Dim, radii: register.Radius95(p.Dim), rep: rep}
 	r.base = register.NewUncertaintyModel(p, a, opt.Settings)
 	r.pairWeight = r.relativePairWeight()
 	res := &Result{Dim: p.Dim, Landmark: a, Transform: a.Result.Transform, Smoothing: a.Smoothing, PairWeight: r.pairWeight}
@@ -206,10 +206,12 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if round < len(startP) {
 			threshold = math.Max(startP[round], opt.MinP)
 		}
-		rep.Step(fmt.Sprintf("refining, round %d: matching %d somata", round+1, len(in.Somata)), 0)
+		// One stage a round; its units are the matchings and the spline
+		// fits, each a second or more on a large block.
+		rep.Step(fmt.Sprintf("refining with %d somata, round %d (fits and matchings)", len(in.Somata), round+1), 0)
 		pairs, err := r.choosePairs(mapper, threshold)
-		rep.Finish()
 		if err != nil {
+			rep.Finish()
 			return nil, err
 		}
 		rd := Round{Threshold: threshold, Pairs: len(pairs)}
@@ -231,6 +233,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 			}
 		}
 		if len(pairs) == 0 {
+			rep.Finish()
 			res.Rounds = append(res.Rounds, rd)
 			if threshold > opt.MinP {
 				// Nothing that clear yet: lower the threshold.
@@ -238,7 +241,6 @@ func Refine(in Input, opt Options) (*Result, error) {
 			}
 			break
 		}
-		rep.Step(fmt.Sprintf("refining, round %d: fitting %d pairs", round+1, len(pairs)), 0)
 		// The smoothing is searched widely until the threshold reaches its
 		// final value, and kept after that: the pairs kept are those the
 		// last fit predicts well, so a stiffer fit keeps pairs that agree
@@ -247,8 +249,8 @@ func Refine(in Input, opt Options) (*Result, error) {
 		// round while the landmarks' errors grew.
 		wide := round <= len(startP) || cur == nil
 		next, err := r.fit(pairs, hint, wide)
-		rep.Finish()
 		if err != nil {
+			rep.Finish()
 			return nil, err
 		}
 		prev0 := prev
@@ -262,7 +264,9 @@ func Refine(in Input, opt Options) (*Result, error) {
 		// The next round's matches are judged with radii calibrated to
 		// this fit: its own estimate of the scale makes them too wide,
 		// and fewer pairs look clear than are.
-		if err := r.calibrate(cur, 1); err != nil {
+		err = r.calibrate(cur, 1)
+		rep.Finish()
+		if err != nil {
 			return nil, err
 		}
 		if mapper, err = r.mapper(cur); err != nil {
@@ -285,7 +289,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		res.Scale = a.Scale
 		return res, nil
 	}
-	rep.Step("refining: calibrating the uncertainty", 0)
+	rep.Step("refining: calibrating the uncertainty (matchings)", 0)
 	err = r.calibrate(cur, calibrationRounds)
 	rep.Finish()
 	if err != nil {
@@ -329,6 +333,8 @@ type refiner struct {
 	dim        int
 	radii      *register.RadiusTable
 	pairWeight float64
+	// rep counts the matchings and spline fits of the current stage.
+	rep progress.Reporter
 	// cand are the candidates near the somata (indices into the input's),
 	// candPos and candIDs their positions and ids.
 	cand    []int
@@ -408,6 +414,7 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pai
 		Dim: r.dim, CandidateSD: r.opt.CandidateSD, MinPMatch: threshold,
 		CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
 	})
+	r.rep.Add(1)
 	if err != nil {
 		return nil, err
 	}

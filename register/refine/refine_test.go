@@ -252,3 +252,28 @@ func TestRefine2D(t *testing.T) {
 		t.Errorf("median error %.2f µm after refining, %.2f µm before", after, before)
 	}
 }
+
+// recorder counts what a progress.Reporter is told.
+type recorder struct {
+	steps []string
+	adds  int
+}
+
+func (r *recorder) Step(name string, total int) { r.steps = append(r.steps, name) }
+func (r *recorder) Add(n int)                   { r.adds += n }
+func (r *recorder) Finish()                     {}
+
+// Refine reports its rounds, and the fits and matchings within them, so
+// that a terminal shows a bar for a long refinement.
+func TestRefineReportsProgress(t *testing.T) {
+	s := newScenario(smallParams(warpBumps), 5)
+	sd := s.Params.CellSD
+	rec := &recorder{}
+	res, err := Refine(s.input(), Options{CellSD: &sd, CandidateSD: s.Params.NucleusSD, Progress: rec})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rec.steps) < len(res.Rounds) || rec.adds < 2*len(res.Rounds) {
+		t.Errorf("%d rounds, but %d stages and %d units reported", len(res.Rounds), len(rec.steps), rec.adds)
+	}
+}
