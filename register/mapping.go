@@ -50,6 +50,9 @@ type Mapper struct {
 	near     []int8
 	radii    *RadiusTable
 	handSign float64
+	// heldOut are the held-out predictions of the cells a refined
+	// transform was fitted to, by exact source position (see HeldOut).
+	heldOut map[transform.Vec]HeldOut
 }
 
 // NewMapper prepares the mapping of points through the transform of a
@@ -73,6 +76,9 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 		tree:  newPointTree(u.Source),
 		radii: Radius95(dim),
 	}
+	if m.heldOut, err = parseHeldOut(f.Refinement, dim); err != nil {
+		return nil, err
+	}
 	m.classifyNear()
 	// The handedness of the transform as a whole: a fold is where the local
 	// Jacobian disagrees with it.
@@ -92,6 +98,15 @@ func (m *Mapper) Map(x transform.Vec, cellSD *transform.Vec) Mapped {
 
 func (m *Mapper) finishForward(x transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
 	y, jac := transform.ApplyWithJacobian(m.t, x)
+	if h, ok := m.heldOut[x]; ok {
+		// A cell the refined transform was fitted to: its position and
+		// uncertainty without its own correspondence.
+		y = h.Predicted
+		factor = transform.Mat{}
+		for k := range m.dim {
+			factor[k][k] = h.Factor[k]
+		}
+	}
 	cov := m.covariance(factor, jac, cellSD)
 	return m.finish(Mapped{Pos: y, Cov: cov}, x, jac)
 }

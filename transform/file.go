@@ -47,6 +47,11 @@ type File struct {
 	// prediction error that map and match need; both as the registration
 	// layer encodes them.
 	Summary, Uncertainty json.RawMessage
+	// Refinement, when set, says how the transform was refined with
+	// correspondences beyond the landmarks (ferry refine), with what map
+	// and match need to judge the cells behind them honestly; the
+	// registration layer encodes it.
+	Refinement json.RawMessage
 }
 
 // Provenance names the landmark file behind a transform.
@@ -72,6 +77,7 @@ type fileJSON struct {
 	Transform   json.RawMessage `json:"transform"`
 	Summary     json.RawMessage `json:"leave_one_out,omitempty"`
 	Uncertainty json.RawMessage `json:"uncertainty,omitempty"`
+	Refinement  json.RawMessage `json:"refinement,omitempty"`
 	Checksum    string          `json:"content_sha256"`
 }
 
@@ -211,7 +217,7 @@ func (f *File) Marshal() ([]byte, error) {
 		Format: FormatName, Version: FormatVersion, Program: f.Program, Units: units,
 		SourceVoxel: f.SourceVoxel, TargetVoxel: f.TargetVoxel, Landmarks: f.Landmarks,
 		Model: f.Transform.Kind(), Smoothing: f.Smoothing, Transform: raw,
-		Summary: f.Summary, Uncertainty: f.Uncertainty,
+		Summary: f.Summary, Uncertainty: f.Uncertainty, Refinement: f.Refinement,
 	}
 	if w.Landmarks.Excluded == nil {
 		w.Landmarks.Excluded = []string{}
@@ -321,7 +327,7 @@ func unmarshalLimited(name string, data []byte, limit int) (*File, error) {
 	return &File{
 		Program: w.Program, Units: w.Units, SourceVoxel: w.SourceVoxel, TargetVoxel: w.TargetVoxel,
 		Landmarks: w.Landmarks, Transform: t, Smoothing: w.Smoothing,
-		Summary: w.Summary, Uncertainty: w.Uncertainty,
+		Summary: w.Summary, Uncertainty: w.Uncertainty, Refinement: w.Refinement,
 	}, nil
 }
 

@@ -46,6 +46,7 @@ Results are for research and must be checked by eye before tracing.`,
 		newWarpCommand(),
 		newSuggestCommand(),
 		newExportCommand(),
+		newRefineCommand(),
 	)
 	return root
 }

@@ -17,6 +17,7 @@ import (
 	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/register/outfile"
+	"ferry/register/refine"
 	"ferry/register/report"
 	"ferry/register/simulate"
 	"ferry/transform"
@@ -38,6 +39,9 @@ type Options struct {
 // Files are the paths the demo wrote.
 type Files struct {
 	simulate.Files
+	// Fitted is the landmark fit's transform file; Transform the one used
+	// after it, the refined one unless refine was refused.
+	Fitted                     string
 	Transform, Mapped, Matches string
 	// SourceStack and EMStack are the images review looks at;
 	// SourceVoxel the in vivo stack's voxel size (µm).
@@ -45,6 +49,7 @@ type Files struct {
 	// SourceVoxel and EMVoxel are the stacks' voxel sizes (µm), CellSD
 	// the cells' localisation error (µm per axis) that map and match used.
 	SourceVoxel, EMVoxel, CellSD transform.Vec
+	Pairs                        string
 	Extra                        []string
 }
 
@@ -83,6 +88,12 @@ type Outcome struct {
 	Warped string
 	// Export is what the export wrote and measured.
 	Export *export.Result
+	// Refined is the refinement with the somata; Fit is the landmark fit's
+	// mapping and matching against the truth, for comparison.
+	Refined       *refine.Result
+	RefineRecord  refine.Record
+	RefineRefused string
+	Fit           Scores
 	// flaggedVerdicts are the first check's verdicts on the landmarks it
 	// flagged.
 	flaggedVerdicts []register.LandmarkCheck
@@ -91,7 +102,16 @@ type Outcome struct {
 // FileNames are the names of the files Run writes into its folder, the
 // simulator's included.
 func FileNames() []string {
-	return append(simulate.FileNames(), "transform.json", "mapped.csv", "matches.csv", "overlay.png", "report.html")
+	return append(simulate.FileNames(), "transform.json", "refined.json", "soma_pairs.csv", "soma_pairs.csv.json",
+		"mapped.csv", "mapped.csv.json", "matches.csv", "matches.csv.json", "overlay.png", WarpedFile, WarpedFile+".json",
+		"em_stack.tif", "report.html")
+}
+
+// Scores are a mapping and a matching against the truth.
+type Scores struct {
+	MedianError, P95Error                 float64
+	Covered                               int
+	MatchedRight, MatchedWrong, Ambiguous int
 }
 
 // Run simulates the scenario into o.Dir and does the job on its files.
@@ -168,25 +188,110 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	f.Transform = filepath.Join(o.Dir, "transform.json")
-	if err := outfile.WriteBytes(ctx, f.Transform, data); err != nil {
+	f.Fitted = filepath.Join(o.Dir, "transform.json")
+	if err := outfile.WriteBytes(ctx, f.Fitted, data); err != nil {
 		return nil, err
 	}
 	// Read the file back, as map would: the demo uses what it wrote.
-	if tf, err = transform.ReadFile(f.Transform); err != nil {
+	if tf, err = transform.ReadFile(f.Fitted); err != nil {
 		return nil, err
 	}
-
-	step("mapping %d cells", len(scen.Cells))
+	f.Transform = f.Fitted
 	cells, pos, err := register.ReadCells(f.Cells, "cells", tf, false)
 	if err != nil {
 		return nil, err
 	}
-	mapper, err := register.NewMapper(tf)
+	cands, candPos, err := register.ReadCells(f.Candidates, "candidates", tf, true)
 	if err != nil {
 		return nil, err
 	}
 	cellSD := params.CellSDUM
+	trueCandidate := map[string]string{}
+	truth := map[string]simulate.Cell{}
+	for _, c := range scen.Cells {
+		trueCandidate[c.ID] = c.TrueCandidate
+		truth[c.ID] = c
+	}
+	score := func(mapped []register.Mapped, res []match.Result) Scores {
+		var sc Scores
+		var errs []float64
+		for i, c := range cells.Points {
+			e := mapped[i].Pos.Sub(truth[c.ID].TrueTargetUM).Norm()
+			errs = append(errs, e)
+			if e <= mapped[i].R95 {
+				sc.Covered++
+			}
+			switch res[i].Status {
+			case match.StatusMatched:
+				if cands.Points[res[i].Candidate].ID == trueCandidate[c.ID] {
+					sc.MatchedRight++
+				} else {
+					sc.MatchedWrong++
+				}
+			case match.StatusAmbiguous:
+				sc.Ambiguous++
+			}
+		}
+		sort.Float64s(errs)
+		sc.MedianError, sc.P95Error = quantile(errs, 0.5), quantile(errs, 0.95)
+		return sc
+	}
+	matchOpt := match.Options{Dim: cells.Dim, CellIDs: ids(cells), CandidateIDs: ids(cands)}
+
+	// The landmark fit alone, for the comparison.
+	fitMapper, err := register.NewMapper(tf)
+	if err != nil {
+		return nil, err
+	}
+	fitRes, err := match.Match(fitMapper, pos, &cellSD, candPos, matchOpt)
+	if err != nil {
+		return nil, err
+	}
+	out.Fit = score(fitMapper.MapAll(pos, &cellSD, false), fitRes)
+
+	step("refining the fit with %d somata and %d EM nuclei", len(pos), len(candPos))
+	rin := refine.Input{Landmarks: problem, Assessment: a, Somata: pos, SomaIDs: ids(cells), Candidates: candPos, CandidateIDs: ids(cands)}
+	ropt := refine.Options{Settings: settings, CellSD: &cellSD}
+	rres, err := refine.Refine(rin, ropt)
+	if err != nil {
+		return nil, err
+	}
+	out.Refined = rres
+	rinputs := []register.Input{{Path: f.Landmarks, SHA256: set.SHA256}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}}
+	out.RefineRecord = rres.Record(rin, ropt, rinputs)
+	if rres.Worse {
+		out.RefineRefused = rres.WorseReason
+	} else {
+		rf, err := rres.File(tf, out.RefineRecord)
+		if err != nil {
+			return nil, err
+		}
+		rdata, err := rf.Marshal()
+		if err != nil {
+			return nil, err
+		}
+		f.Transform = filepath.Join(o.Dir, "refined.json")
+		if err := outfile.WriteBytes(ctx, f.Transform, rdata); err != nil {
+			return nil, err
+		}
+		f.Pairs = filepath.Join(o.Dir, "soma_pairs.csv")
+		pprov := register.Provenance{Command: "refine", Inputs: rinputs,
+			Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
+		if err := outfile.Write(ctx, f.Pairs, func(w io.Writer) error {
+			return refine.WritePairs(w, pprov, out.RefineRecord, cells.Dim, vox)
+		}); err != nil {
+			return nil, err
+		}
+		if tf, err = transform.ReadFile(f.Transform); err != nil {
+			return nil, err
+		}
+	}
+
+	step("mapping %d cells", len(scen.Cells))
+	mapper, err := register.NewMapper(tf)
+	if err != nil {
+		return nil, err
+	}
 	mapped := mapper.MapAll(pos, &cellSD, false)
 	f.Mapped = filepath.Join(o.Dir, "mapped.csv")
 	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
@@ -197,13 +302,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	}
 
 	step("matching %d cells against %d EM nuclei", len(scen.Cells), len(scen.Candidates))
-	cands, candPos, err := register.ReadCells(f.Candidates, "candidates", tf, true)
-	if err != nil {
-		return nil, err
-	}
-	res, err := match.Match(mapper, pos, &cellSD, candPos, match.Options{
-		Dim: cells.Dim, CellIDs: ids(cells), CandidateIDs: ids(cands),
-	})
+	res, err := match.Match(mapper, pos, &cellSD, candPos, matchOpt)
 	if err != nil {
 		return nil, err
 	}
@@ -217,10 +316,6 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		Flags: mprov.Flags}
 	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.TargetVoxel); err != nil {
 		return nil, err
-	}
-	trueCandidate := map[string]string{}
-	for _, c := range scen.Cells {
-		trueCandidate[c.ID] = c.TrueCandidate
 	}
 	for i, r := range res {
 		want := trueCandidate[cells.Points[i].ID]
@@ -297,10 +392,6 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	f.Extra = append(f.Extra, exportDir)
 
 	// Against the truth.
-	truth := map[string]simulate.Cell{}
-	for _, c := range scen.Cells {
-		truth[c.ID] = c
-	}
 	var errs []float64
 	for i, c := range cells.Points {
 		m := mapped[i]
@@ -489,6 +580,8 @@ func (o *Outcome) Print(w io.Writer) {
 	fmt.Fprintf(w, "   Calibration: %d of %d landmarks (%.0f %%) inside their predicted 95 %% radius.\n",
 		a.Calibration.Inside, a.Calibration.N, 100*a.Calibration.Share())
 	fmt.Fprintln(w)
+	o.printRefinement(w)
+	fmt.Fprintln(w)
 	fmt.Fprintf(w, "3. %d imaged cells mapped into the EM volume: %s\n", o.Cells, register.FormatCounts(o.Statuses))
 	fmt.Fprintf(w, "   Against the truth: median error %.2f µm, 95th percentile %.2f µm.\n", o.MedianError, o.P95Error)
 	fmt.Fprintf(w, "   r95_um holds the true position for %d of %d cells (%.0f %%); for %d of %d cells with status ok (%.0f %%).\n",
@@ -522,8 +615,10 @@ func (o *Outcome) Print(w io.Writer) {
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))
-	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Transform, o.Files.Mapped, o.Files.Matches} {
-		fmt.Fprintf(w, "   %s\n", p)
+	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Fitted, o.Files.Transform, o.Files.Pairs, o.Files.Mapped, o.Files.Matches} {
+		if p != "" && (p != o.Files.Fitted || o.Files.Fitted != o.Files.Transform) {
+			fmt.Fprintf(w, "   %s\n", p)
+		}
 	}
 	for _, p := range o.Files.Extra {
 		fmt.Fprintf(w, "   %s\n", p)
@@ -585,4 +680,29 @@ func ReviewCommand(f Files) string {
 	return fmt.Sprintf("ferry review %s --transform %s --cells %s --candidates %s --cell-sd %g,%g,%g --source-stack %s --source-voxel %g,%g,%g --target-stack %s --target-voxel %g,%g,%g --decisions %s",
 		f.Matches, f.Transform, f.Cells, f.Candidates, c[0], c[1], c[2], f.SourceStack, v[0], v[1], v[2], f.EMStack, e[0], e[1], e[2],
 		filepath.Join(filepath.Dir(f.Matches), "decisions.csv"))
+}
+
+// printRefinement says what refine did and what it gained against the
+// truth, set against the landmark fit alone.
+func (o *Outcome) printRefinement(w io.Writer) {
+	r, rec := o.Refined, o.RefineRecord
+	if r == nil {
+		return
+	}
+	fmt.Fprintln(w, "2b. Refined with the somata themselves (ferry refine)")
+	fmt.Fprintf(w, "   %d rounds; %d cell–nucleus pairs used, %d of them as nodes of the spline.\n", len(r.Rounds), rec.PairsUsed, rec.PairNodes)
+	fmt.Fprintf(w, "   Landmark leave-one-out error: RMS %.2f µm before, %.2f µm after.\n", rec.LandmarkRMSBefore, rec.LandmarkRMSAfter)
+	if rec.PairsUsed > 0 {
+		fmt.Fprintf(w, "   The pairs' own leave-one-out error: median %.2f µm; %d of %d (%.0f %%) inside their 95 %% radius.\n",
+			rec.PairLOOMedian, rec.PairCalibration.Inside, rec.PairCalibration.N, 100*rec.PairCalibration.Share)
+	}
+	if o.RefineRefused != "" {
+		fmt.Fprintf(w, "   Refused: %s; the landmark fit is used.\n", o.RefineRefused)
+		return
+	}
+	b := o.Fit
+	fmt.Fprintf(w, "   Gained against the truth: median error %.2f → %.2f µm, 95th percentile %.2f → %.2f µm;\n",
+		b.MedianError, o.MedianError, b.P95Error, o.P95Error)
+	fmt.Fprintf(w, "   matched right %d → %d, matched wrong %d → %d, ambiguous %d → %d (landmark fit → refined).\n",
+		b.MatchedRight, o.MatchedRight, b.MatchedWrong, o.MatchedWrong, b.Ambiguous, len(o.Matches.AmbiguousCells))
 }

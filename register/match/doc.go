@@ -36,6 +36,10 @@
 //     k = 16: (k − 1) candidates, the counterpart left out, over the part
 //     of the ball of the 16th neighbour that lies inside the candidates'
 //     volume (its cap beyond the nearest face is cut off).
+//   - Reach. Only the candidates within the reach of some cell (the larger
+//     of its search radius and its 16th-neighbour distance) take part, so
+//     that an EM export larger than the imaged field changes nothing: far
+//     candidates would widen the volume and lower the estimated π.
 //   - Volume and c. The candidates' volume is their convex hull grown by
 //     half their median nearest-neighbour spacing (the outermost candidates
 //     lie about that far inside the searched volume), held as support

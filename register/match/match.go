@@ -188,8 +188,9 @@ func Match(m *register.Mapper, cells []transform.Vec, cellSD *transform.Vec, can
 	return matchMapped(mapped, cands, opt)
 }
 
-// matchMapped is Match of cells already mapped; opt has its defaults.
-func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) ([]Result, error) {
+// matchReachable is Match of cells already mapped against candidates they
+// can all reach; opt has its defaults.
+func matchReachable(mapped []register.Mapped, cands []transform.Vec, opt Options) ([]Result, error) {
 	if opt.Dim == 3 {
 		flat := len(mapped) > 0
 		for _, mp := range mapped {
