@@ -108,6 +108,11 @@ type Assessment struct {
 	Result *transform.Result
 	// Radii turns covariances into 95 % radii.
 	Radii *RadiusTable
+	// Field is the error model fitted to the clean landmarks (field.go),
+	// nil when the chosen model or the set does not support it; the
+	// landmarks' radii, the calibration and the map's radii then rest on
+	// the per-axis Scale instead.
+	Field *FieldParams
 }
 
 // Flagged returns the ids of the flagged landmarks.
@@ -167,17 +172,29 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	if model == "" {
 		model = mostFlexible(p)
 	}
-	flags, err := flagLandmarks(p, model, weights, s, a.Radii)
-	if err != nil {
-		return nil, err
-	}
-	if s.SourceSD == nil && s.TargetSD == nil {
-		// Without stated picking errors, let each kind of landmark speak
-		// for its own noise.
-		if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
+	var flags *flagResult
+	var field *fieldFit
+	if useField(p, s) {
+		var err error
+		if flags, field, err = flagByField(p, a.Radii); err != nil {
+			return nil, err
+		}
+		if w, noise := fieldWeights(p, &field.params); w != nil {
 			weights, a.KindNoise = w, noise
-			if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
-				return nil, err
+		}
+	} else {
+		var err error
+		if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
+			return nil, err
+		}
+		if s.SourceSD == nil && s.TargetSD == nil {
+			// Without stated picking errors, let each kind of landmark speak
+			// for its own noise.
+			if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
+				weights, a.KindNoise = w, noise
+				if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
+					return nil, err
+				}
 			}
 		}
 	}
@@ -202,6 +219,12 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	}
 	// The scale of the clean fit's errors, and the verdicts in its terms.
 	a.Scale = axisScale(clean.res, p.Dim)
+	if field != nil && (model == transform.Affine || model == transform.TPS) {
+		// The field's trend is affine: its variances hold for a model that
+		// reproduces affine maps, not for a rigid motion, which may miss
+		// part of the trend.
+		a.Field = &field.params
+	}
 	a.Landmarks = make([]LandmarkCheck, p.Len())
 	for i := range a.Landmarks {
 		a.Landmarks[i] = LandmarkCheck{ID: p.IDs[i], Kind: p.Kinds[i], Score: flags.score[i], Flag: flags.reason[i]}
@@ -209,8 +232,15 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	for k, i := range cleanIdx {
 		l := &a.Landmarks[i]
 		l.LOO = clean.res.LOO[k]
-		cov := looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
-		addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
+		var cov transform.Mat
+		if a.Field != nil {
+			// The error model's predictive variance of the landmark from
+			// the others.
+			cov = diagonal(field.looVar[k], p.Dim)
+		} else {
+			cov = looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
+			addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
+		}
 		l.R95 = a.Radii.Radius(cov)
 		a.Calibration.N++
 		if l.LOO.Norm() <= l.R95 {
@@ -595,7 +625,10 @@ func flagReason(loo transform.Vec, cov transform.Mat, r95 float64, dim int) stri
 	if dim == 3 && cov[2][2] > 0 {
 		total := standardised(loo, cov, dim)
 		zOnly := loo[2] * loo[2] / cov[2][2]
-		if zOnly > 0.8*total {
+		// Mostly along z in the standardised error, or in micrometres:
+		// the error model may know x and y so well that their few
+		// micrometres weigh more than the section's tens.
+		if zOnly > 0.8*total || loo[2]*loo[2] > 0.8*loo.Dot(loo) {
 			return reason + "; mostly in z: a wrong section?"
 		}
 	}

@@ -109,6 +109,12 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	if err := checkPoints("cell", cells, dim); err != nil {
 		return nil, err
 	}
+	// The search conditions on the fitted model's own kriging variance,
+	// so map's radii here are those of that model too.
+	f, err := register.WithoutField(f)
+	if err != nil {
+		return nil, err
+	}
 	u, err := register.ParseUncertaintyModel(f.Uncertainty, dim)
 	if err != nil {
 		return nil, err

@@ -1,0 +1,196 @@
+package register
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+
+	"ferry/landmarks"
+	"ferry/transform"
+)
+
+// fieldMethodName names the uncertainty model of field.go in the transform
+// file.
+const fieldMethodName = "gaussian displacement field, restricted maximum likelihood"
+
+// fieldMapper gives the variance of a fitted transform's error at any
+// point under the error model: the transform's cardinal weights on the
+// landmarks, combined by FieldParams.variance.
+type fieldMapper struct {
+	dim    int
+	params *FieldParams
+	src    []transform.Vec
+	d      []float64   // each landmark's kind noise D
+	corr   *mat.Dense  // the landmarks' correlations, N×N
+	newD   float64     // D of a mapped point (a cell)
+	weigh  func(xs []transform.Vec) (*mat.Dense, error)
+	rows   [][]float64 // corr's rows, for FieldParams.variance
+}
+
+// newFieldMapper prepares the variances of t, fitted to the landmarks of u.
+func newFieldMapper(t transform.Transform, u *UncertaintyModel) (*fieldMapper, error) {
+	if u.Field == nil {
+		return nil, errors.New("no error model")
+	}
+	n := len(u.Source)
+	f := &fieldMapper{dim: t.Dim(), params: u.Field, src: u.Source, d: make([]float64, n), newD: u.CellNoise}
+	if len(u.Kinds) != n {
+		return nil, fmt.Errorf("uncertainty model: %d landmarks with %d kinds", n, len(u.Kinds))
+	}
+	for i, k := range u.Kinds {
+		f.d[i] = u.Field.kindNoise(k)
+	}
+	f.corr = mat.NewDense(n, n, nil)
+	f.rows = make([][]float64, n)
+	for i := range n {
+		for j := range n {
+			f.corr.Set(i, j, u.Field.corr(u.Source[i].Sub(u.Source[j]).Norm()))
+		}
+		f.rows[i] = f.corr.RawRowView(i)
+	}
+	switch t := t.(type) {
+	case *transform.Spline:
+		f.weigh = t.CardinalWeights
+	case *transform.Linear:
+		if t.Kind() != transform.Affine {
+			return nil, fmt.Errorf("the error model needs a model that reproduces affine maps, not %s", t.Kind())
+		}
+		w, err := affineHat(u.Source, u.Weights, f.dim)
+		if err != nil {
+			return nil, err
+		}
+		f.weigh = w
+	default:
+		return nil, fmt.Errorf("the error model needs an affine map or a spline, not %s", t.Kind())
+	}
+	return f, nil
+}
+
+// affineHat returns the cardinal weights of a weighted least-squares affine
+// fit: a(x) = W·P·(PᵀWP)⁻¹·p(x), P the rows [1, x_j].
+func affineHat(src []transform.Vec, w []float64, dim int) (func([]transform.Vec) (*mat.Dense, error), error) {
+	n, m := len(src), dim+1
+	c := centroidOf(src)
+	row := func(x transform.Vec) []float64 {
+		r := make([]float64, m)
+		r[0] = 1
+		for l := range dim {
+			r[1+l] = x[l] - c[l]
+		}
+		return r
+	}
+	wp := mat.NewDense(n, m, nil)
+	ptwp := mat.NewSymDense(m, nil)
+	for j, x := range src {
+		r := row(x)
+		for a := range m {
+			wp.Set(j, a, w[j]*r[a])
+			for b := a; b < m; b++ {
+				ptwp.SetSym(a, b, ptwp.At(a, b)+w[j]*r[a]*r[b])
+			}
+		}
+	}
+	var chol mat.Cholesky
+	if !chol.Factorize(ptwp) {
+		return nil, errors.New("the landmarks do not span the volume")
+	}
+	return func(xs []transform.Vec) (*mat.Dense, error) {
+		px := mat.NewDense(m, len(xs), nil)
+		for i, x := range xs {
+			for a, v := range row(x) {
+				px.Set(a, i, v)
+			}
+		}
+		var sol mat.Dense
+		if err := chol.SolveTo(&sol, px); err != nil {
+			return nil, err
+		}
+		out := mat.NewDense(n, len(xs), nil)
+		out.Mul(wp, &sol)
+		return out, nil
+	}, nil
+}
+
+// variances returns each point's variance per axis (µm²) of the
+// transform's error, picking noise of the point itself not included.
+func (f *fieldMapper) variances(xs []transform.Vec) []transform.Vec {
+	out := make([]transform.Vec, len(xs))
+	const block = 256
+	transform.ParallelRanges((len(xs)+block-1)/block, 1, func(lo, hi int) {
+		for b := lo; b < hi; b++ {
+			s, e := b*block, min((b+1)*block, len(xs))
+			a, err := f.weigh(xs[s:e])
+			if err != nil {
+				for i := s; i < e; i++ {
+					out[i] = transform.Vec{math.NaN(), math.NaN(), math.NaN()}
+				}
+				continue
+			}
+			var ra mat.Dense
+			ra.Mul(f.corr, a)
+			n := len(f.src)
+			for i := s; i < e; i++ {
+				c := i - s
+				rho, aRa, ada := 0.0, 0.0, 0.0
+				for j := range n {
+					aj := a.At(j, c)
+					rho += aj * f.params.corr(xs[i].Sub(f.src[j]).Norm())
+					aRa += aj * ra.At(j, c)
+					ada += aj * aj * f.d[j]
+				}
+				for k := range f.dim {
+					out[i][k] = f.params.Amplitude[k] * math.Max(1-2*rho+aRa+f.params.Noise[k]*ada, 0)
+				}
+			}
+		}
+	})
+	return out
+}
+
+// noise is the picking noise of a mapped point (µm² per axis): that of a
+// landmark of the cells' kind.
+func (f *fieldMapper) noise() transform.Vec {
+	var v transform.Vec
+	for k := range f.dim {
+		v[k] = f.params.Amplitude[k] * f.params.Noise[k] * f.newD
+	}
+	return v
+}
+
+// cellNoiseOf is the relative noise D of a mapped point: cells are somata,
+// so a soma landmark's when the set has them, else the landmarks' mean.
+func cellNoiseOf(kinds []landmarks.Kind, f *FieldParams) float64 {
+	if d, ok := f.Kinds[landmarks.KindSoma]; ok {
+		return d
+	}
+	sum := 0.0
+	for _, k := range kinds {
+		sum += f.kindNoise(k)
+	}
+	return sum / float64(max(len(kinds), 1))
+}
+
+// WithoutField returns a copy of f whose uncertainty model has the error
+// model of field.go taken out, leaving the fitted model's own kriging
+// variance calibrated by the per-axis scale: the model suggest conditions
+// on when it adds landmarks (its cross-covariances after a new landmark are
+// those of the spline or the affine fit). f itself is left as it was.
+func WithoutField(f *transform.File) (*transform.File, error) {
+	u, err := ParseUncertaintyModel(f.Uncertainty, f.Transform.Dim())
+	if err != nil {
+		return nil, err
+	}
+	if u.Field == nil {
+		return f, nil
+	}
+	u.Method, u.Field, u.Kinds, u.CellNoise = methodName, nil, nil, 0
+	raw, err := u.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	g := *f
+	g.Uncertainty = raw
+	return &g, nil
+}

@@ -1,0 +1,46 @@
+package transform
+
+import (
+	"fmt"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// CardinalWeights returns the weights by which the spline's prediction at
+// each of xs combines the landmarks' targets: f(x) = Σ_j A[j][i]·q_j, where
+// column i of A (N×len(xs)) is the top block of M⁻¹·[k(x_i); p(x_i)] (see
+// splineSystem). Each column reproduces affine maps exactly (Σ_j A_ji = 1,
+// Σ_j A_ji·p_j = x_i), so the error of the prediction does not depend on the
+// affine part of the true map, and its variance under any model of the
+// remaining displacement follows from A alone (register's error model).
+//
+// The fitted function is the same in normalised coordinates as in
+// micrometres (see the top of tps.go), hence so are its cardinal functions:
+// they are computed in the normalised system. It costs a factorisation and
+// O(N²) a point.
+func (s *Spline) CardinalWeights(xs []Vec) (*mat.Dense, error) {
+	sys, err := s.system()
+	if err != nil {
+		return nil, fmt.Errorf("thin-plate spline: %w", err)
+	}
+	N, m := len(sys.nodes), sys.m
+	f := mat.NewDense(N, max(len(xs), 1), nil)
+	g := mat.NewDense(m, max(len(xs), 1), nil)
+	k := make([]float64, N)
+	for i, x := range xs {
+		u := x.Sub(sys.centre).Scale(1 / sys.scale)
+		sys.kernelVector(u, k)
+		for j := range N {
+			f.Set(j, i, k[j])
+		}
+		g.Set(0, i, 1)
+		for l := range sys.dim {
+			g.Set(1+l, i, u[l])
+		}
+	}
+	c, _ := sys.solve(f, g)
+	if len(xs) == 0 {
+		return nil, nil
+	}
+	return c, nil
+}
