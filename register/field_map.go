@@ -22,9 +22,9 @@ type fieldMapper struct {
 	dim    int
 	params *FieldParams
 	src    []transform.Vec
-	d      []float64   // each landmark's kind noise D
-	corr   *mat.Dense  // the landmarks' correlations, N×N
-	newD   float64     // D of a mapped point (a cell)
+	d      []float64  // each landmark's kind noise D
+	corr   *mat.Dense // the landmarks' correlations, N×N
+	newD   float64    // D of a mapped point (a cell)
 	weigh  func(xs []transform.Vec) (*mat.Dense, error)
 	rows   [][]float64 // corr's rows, for FieldParams.variance
 }
