@@ -108,6 +108,10 @@ type Assessment struct {
 	Result *transform.Result
 	// Radii turns covariances into 95 % radii.
 	Radii *RadiusTable
+	// Warnings are the standing warnings of the fit (flagged landmarks in
+	// it, a registration that cannot resolve cells), kept in the
+	// transform file and repeated by map, match and report.
+	Warnings []string
 	// Field is the error model fitted to the clean landmarks (field.go),
 	// nil when the chosen model or the set does not support it; the
 	// landmarks' radii, the calibration and the map's radii then rest on
@@ -268,6 +272,7 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	if err := a.finite(); err != nil {
 		return nil, err
 	}
+	a.Warnings = a.standingWarnings()
 	return a, nil
 }
 

@@ -81,6 +81,7 @@ func NewUncertaintyModel(p *Problem, a *Assessment, s Settings) *UncertaintyMode
 	if a.Chosen == transform.TPS {
 		u.NoiseFactor = a.Smoothing
 	}
+	u.Warnings = a.Warnings
 	if a.Field != nil {
 		u.Method, u.Field = fieldMethodName, a.Field
 		u.Kinds = append([]landmarks.Kind(nil), p.Kinds...)

@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"os"
 	"strings"
 
@@ -17,6 +18,7 @@ import (
 // modelFlags are the flags that fit, check and suggest share.
 type modelFlags struct {
 	model, smoothing, exclude string
+	keepFlagged               bool
 	sourceVoxel, targetVoxel  string
 	sourceSD, targetSD        string
 	noMirror                  bool
@@ -90,6 +92,32 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 		return nil, err
 	}
 	return &job, nil
+}
+
+// registerKeep adds --keep-flagged, for the commands that fit.
+func (f *modelFlags) registerKeep(cmd *cobra.Command) {
+	cmd.Flags().BoolVar(&f.keepFlagged, "keep-flagged", false, "keep the landmarks the check flags in the fit (by default they are left out)")
+}
+
+// assessForFit loads the landmark file and checks it as fit does: the
+// flagged landmarks left out unless --keep-flagged, and said so on w.
+func (f *modelFlags) assessForFit(path string, w io.Writer) (*landmarkJob, *register.Assessment, error) {
+	job, err := f.load(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	fj, err := register.CheckAndFit(job.set, job.exclude, job.voxels, job.settings, f.keepFlagged)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	job.problem, job.exclude = fj.Problem, fj.Exclude
+	if len(fj.LeftOut) > 0 {
+		fmt.Fprintf(w, "Left out %d landmark(s) that look wrong (keep them with --keep-flagged):\n", len(fj.LeftOut))
+		for _, l := range fj.LeftOut {
+			fmt.Fprintf(w, "  %s (%s): %s\n", l.ID, l.Kind, l.Flag)
+		}
+	}
+	return job, fj.Assessment, nil
 }
 
 // assess loads the landmark file with the flags and runs the check on it.

@@ -46,7 +46,7 @@ See docs/suggest.md.`,
 			if n < 1 {
 				return fmt.Errorf("--n: want a positive number of landmarks, got %d", n)
 			}
-			job, a, err := flags.assess(args[0])
+			job, a, err := flags.assessForFit(args[0], cmd.OutOrStdout())
 			if err != nil {
 				return err
 			}
@@ -100,6 +100,7 @@ See docs/suggest.md.`,
 		},
 	}
 	flags.register(cmd)
+	flags.registerKeep(cmd)
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "suggestions to write (CSV)")
 	fl.IntVar(&n, "n", suggest.DefaultN, "how many landmarks to suggest")
