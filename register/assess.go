@@ -75,6 +75,13 @@ type Calibration struct {
 	Inside, N int
 }
 
+func (c *Calibration) add(inside bool) {
+	c.N++
+	if inside {
+		c.Inside++
+	}
+}
+
 // Share is Inside/N.
 func (c Calibration) Share() float64 {
 	if c.N == 0 {
@@ -103,6 +110,13 @@ type Assessment struct {
 	// estimated from the unflagged landmarks' leave-one-out errors.
 	Scale       transform.Vec
 	Calibration Calibration
+	// CalibrationByStatus splits Calibration by the status each landmark
+	// would have on the map when predicted from the others: StatusOK
+	// inside their hull, StatusExtrapolated outside.
+	CalibrationByStatus map[string]Calibration
+	// FlagLimit is the most landmarks the check could flag: 0 when the set
+	// is too small for any to be told wrong.
+	FlagLimit int
 	// Result is the chosen model fitted to every landmark of the problem,
 	// flagged ones included, with leave-one-out.
 	Result *transform.Result
@@ -202,6 +216,7 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 			}
 		}
 	}
+	a.FlagLimit = flags.limit
 	cleanIdx := indices(p.Len(), func(i int) bool { return !flags.flagged[i] })
 	cleanSet := p.subset(func(i int) bool { return !flags.flagged[i] })
 	if s.Model == "" {
@@ -233,6 +248,8 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	for i := range a.Landmarks {
 		a.Landmarks[i] = LandmarkCheck{ID: p.IDs[i], Kind: p.Kinds[i], Score: flags.score[i], Flag: flags.reason[i]}
 	}
+	status := looStatus(cleanSet.Source, p.Dim)
+	a.CalibrationByStatus = map[string]Calibration{}
 	for k, i := range cleanIdx {
 		l := &a.Landmarks[i]
 		l.LOO = clean.res.LOO[k]
@@ -246,10 +263,12 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 			addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
 		}
 		l.R95 = a.Radii.Radius(cov)
-		a.Calibration.N++
-		if l.LOO.Norm() <= l.R95 {
-			a.Calibration.Inside++
-		}
+		in := l.LOO.Norm() <= l.R95
+		a.Calibration.add(in)
+		st := status[k]
+		c := a.CalibrationByStatus[st]
+		c.add(in)
+		a.CalibrationByStatus[st] = c
 	}
 	for i, loo := range flags.loo {
 		l := &a.Landmarks[i]
@@ -483,6 +502,8 @@ type flagResult struct {
 	// and their 95 % radii.
 	loo map[int]transform.Vec
 	r95 map[int]float64
+	// limit is the most landmarks the check could set aside.
+	limit int
 }
 
 // flagLandmarks finds the landmarks that look wrong by sequential deletion.
@@ -507,6 +528,7 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 	if n-limit < transform.MinPairs(model, p.Dim)+3 {
 		limit = max(0, n-transform.MinPairs(model, p.Dim)-3)
 	}
+	out.limit = limit
 	var setAside []int
 	for {
 		keep := func(i int) bool { return !out.flagged[i] }

@@ -43,6 +43,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		loo: map[int]transform.Vec{}, r95: map[int]float64{},
 	}
 	limit := min(int(maxFlagShare*float64(n)), n-fieldMinLandmarks)
+	out.limit = limit
 	// The field's length, smoothness and kind noises from the landmarks
 	// that fit well enough (a trimmed likelihood: a wrong landmark would
 	// otherwise pass for noise of its kind and hide).

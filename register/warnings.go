@@ -2,9 +2,11 @@ package register
 
 import (
 	"fmt"
+	"math"
 	"strings"
 
 	"ferry/landmarks"
+	"ferry/transform"
 )
 
 // SomaDiameterUM is the diameter of a cortical neuron's cell body, the
@@ -101,3 +103,36 @@ func CheckAndFit(set *landmarks.PairSet, exclude []string, vox Voxels, s Setting
 // Warnings are the standing warnings of the transform file the mapper was
 // built from.
 func (m *Mapper) Warnings() []string { return m.u.Warnings }
+
+// looStatus is the map status each landmark would have when predicted from
+// the others: StatusExtrapolated when it lies outside their hull (the
+// support planes of supportHull), StatusOK otherwise. It lets the check's
+// calibration be split as map's cells are.
+func looStatus(src []transform.Vec, dim int) []string {
+	out := make([]string, len(src))
+	for i := range out {
+		out[i] = StatusOK
+	}
+	if len(src) < dim+2 {
+		return out
+	}
+	h := newSupportHull(src, dim)
+	for _, d := range h.dirs {
+		// The largest and second largest reach along d, and who holds the
+		// largest.
+		top, second, who := math.Inf(-1), math.Inf(-1), -1
+		for j, x := range src {
+			v := d.Dot(x)
+			switch {
+			case v > top:
+				top, second, who = v, top, j
+			case v > second:
+				second = v
+			}
+		}
+		if who >= 0 && top > second+h.tol {
+			out[who] = StatusExtrapolated
+		}
+	}
+	return out
+}
