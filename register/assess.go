@@ -238,11 +238,18 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 	}
 	// The scale of the clean fit's errors, and the verdicts in its terms.
 	a.Scale = axisScale(clean.res, p.Dim)
+	var fieldLOOVar []transform.Vec
 	if field != nil && (model == transform.Affine || model == transform.TPS) {
 		// The field's trend is affine: its variances hold for a model that
 		// reproduces affine maps, not for a rigid motion, which may miss
 		// part of the trend.
-		a.Field = &field.params
+		d := make([]float64, len(cleanIdx))
+		for k, i := range cleanIdx {
+			d[k] = field.params.kindNoise(p.Kinds[i])
+		}
+		if f, v, err := calibrateField(clean.res, cleanSet.Source, pick(weights, cleanIdx), d, &field.params, p.Dim); err == nil {
+			a.Field, fieldLOOVar = f, v
+		}
 	}
 	a.Landmarks = make([]LandmarkCheck, p.Len())
 	for i := range a.Landmarks {
@@ -255,9 +262,9 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		l.LOO = clean.res.LOO[k]
 		var cov transform.Mat
 		if a.Field != nil {
-			// The error model's predictive variance of the landmark from
-			// the others.
-			cov = diagonal(field.looVar[k], p.Dim)
+			// The error model's variance of the fitted model's
+			// leave-one-out error.
+			cov = diagonal(fieldLOOVar[k], p.Dim)
 		} else {
 			cov = looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
 			addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)

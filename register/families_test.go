@@ -141,7 +141,8 @@ func TestFamiliesReport(t *testing.T) {
 	}
 }
 
-// fitProblem is the landmark set `ferry fit` fits by default.
+// fitProblem is the landmark set `ferry fit` fits by default: the flagged
+// landmarks left out (CheckAndFit).
 func fitProblem(s *families.Scenario, a *Assessment) *Problem {
-	return familyProblem(s, nil)
+	return familyProblem(s, func(i int) bool { return a.Landmarks[i].Flag == "" })
 }

@@ -316,7 +316,7 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		kinds0 := map[landmarks.Kind]float64{}
 		var lengths []float64
 		for e := 0; e < 6; e++ {
-			l := math.Max(spacing, 0.02*extent) * math.Pow(4*extent/math.Max(spacing, 0.02*extent), float64(e)/5)
+			l := math.Max(spacing, 0.02*extent) * math.Pow(2*extent/math.Max(spacing, 0.02*extent), float64(e)/5)
 			lengths = append(lengths, l)
 		}
 		for _, nu := range []float64{0.5, 1.5, 2.5} {
@@ -329,7 +329,10 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 			}
 		}
 		// The kinds' relative noise, one kind at a time, where each kind
-		// has enough landmarks to speak for itself.
+		// has enough landmarks to speak for itself. Variance ratios from
+		// 1/4 to 4: kinds picked in the same volumes differ by about as
+		// much, and a wider range lets a few dozen landmarks trade one
+		// kind's noise against the field.
 		counts := map[landmarks.Kind]int{}
 		for _, k := range kinds {
 			counts[k]++
@@ -346,7 +349,7 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		if enough {
 			for _, k := range ks[1:] {
 				base := best
-				for _, r := range []float64{1.0 / 16, 1.0 / 8, 1.0 / 4, 1.0 / 2, 2, 4, 8, 16} {
+				for _, r := range []float64{1.0 / 4, 1.0 / 2, 2, 4} {
 					kn := map[landmarks.Kind]float64{}
 					for kk, v := range base.kn {
 						kn[kk] = v

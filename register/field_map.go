@@ -162,7 +162,13 @@ func (f *fieldMapper) noise() transform.Vec {
 // cellNoiseOf is the relative noise D of a mapped point: cells are somata,
 // so a soma landmark's when the set has them, else the landmarks' mean.
 func cellNoiseOf(kinds []landmarks.Kind, f *FieldParams) float64 {
-	if d, ok := f.Kinds[landmarks.KindSoma]; ok {
+	somata := 0
+	for _, k := range kinds {
+		if k == landmarks.KindSoma {
+			somata++
+		}
+	}
+	if d, ok := f.Kinds[landmarks.KindSoma]; ok && somata >= minPerKind {
 		return d
 	}
 	sum := 0.0

@@ -52,9 +52,9 @@ type CheckJSON struct {
 	// CalibrationByStatus splits the calibration by the map status each
 	// landmark has when predicted from the others (ok, extrapolated).
 	CalibrationByStatus map[string]CalibrationJSON `json:"calibration_by_status,omitempty"`
-	Models      []ModelJSON     `json:"models"`
-	Landmarks   []LandmarkJSON  `json:"landmarks"`
-	Provenance  string          `json:"provenance,omitempty"`
+	Models              []ModelJSON                `json:"models"`
+	Landmarks           []LandmarkJSON             `json:"landmarks"`
+	Provenance          string                     `json:"provenance,omitempty"`
 }
 
 // CalibrationJSON is the calibration of the check.

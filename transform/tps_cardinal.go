@@ -44,3 +44,34 @@ func (s *Spline) CardinalWeights(xs []Vec) (*mat.Dense, error) {
 	}
 	return c, nil
 }
+
+// LeaveOneOutWeights returns B (N×N) whose row i gives the spline's exact
+// leave-one-out error at landmark i as a combination of the targets:
+// e_i = Σ_j B_ij·q_j, q_i minus the prediction at node i of the spline
+// fitted to the other nodes with the same smoothing and weights. Row i is
+// row i of G, the top-left N×N block of the bordered system's inverse,
+// divided by G_ii (the identity behind Result.LOO), and so it annihilates
+// affine maps. Its scale does not matter, so the normalised system serves.
+func (s *Spline) LeaveOneOutWeights() (*mat.Dense, error) {
+	sys, err := s.system()
+	if err != nil {
+		return nil, fmt.Errorf("thin-plate spline: %w", err)
+	}
+	N := len(sys.nodes)
+	id := mat.NewDense(N, N, nil)
+	for i := range N {
+		id.Set(i, i, 1)
+	}
+	g, _ := sys.solve(id, nil)
+	for i := range N {
+		d := g.At(i, i)
+		if !(d > 0) {
+			return nil, fmt.Errorf("thin-plate spline: node %d has no leave-one-out error", i)
+		}
+		row := g.RawRowView(i)
+		for j := range row {
+			row[j] /= d
+		}
+	}
+	return g, nil
+}

@@ -61,3 +61,33 @@ func TestCardinalWeights(t *testing.T) {
 		}
 	}
 }
+
+// The leave-one-out weights reproduce the fit's exact leave-one-out errors.
+func TestLeaveOneOutWeights(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 3))
+	var src, dst []Vec
+	for range 20 {
+		x := Vec{rng.Float64() * 400, rng.Float64() * 300, rng.Float64() * 200}
+		src = append(src, x)
+		dst = append(dst, Vec{x[0] + 4*math.Sin(x[1]/60), x[1] + rng.NormFloat64(), 0.8 * x[2]})
+	}
+	for _, sm := range []float64{0, 20} {
+		res, err := Fit(TPS, 3, src, dst, Options{Smoothing: sm, LeaveOneOut: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := res.Transform.(*Spline).LeaveOneOutWeights()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range src {
+			var e Vec
+			for j := range src {
+				e = e.Add(dst[j].Scale(b.At(i, j)))
+			}
+			if d := e.Sub(res.LOO[i]).Norm(); d > 1e-6*(1+res.LOO[i].Norm()) {
+				t.Errorf("S=%g landmark %d: weights give %v, fit %v", sm, i, e, res.LOO[i])
+			}
+		}
+	}
+}
