@@ -243,6 +243,10 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 		// The field's trend is affine: its variances hold for a model that
 		// reproduces affine maps, not for a rigid motion, which may miss
 		// part of the trend.
+		// The model for the radii: chosen where the cells lie.
+		if f, err := fitField(p.Dim, cleanSet.Source, cleanSet.Target, cleanSet.Kinds, nil, byLOO); err == nil {
+			field = f
+		}
 		d := make([]float64, len(cleanIdx))
 		for k, i := range cleanIdx {
 			d[k] = field.params.kindNoise(p.Kinds[i])

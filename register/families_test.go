@@ -3,7 +3,9 @@ package register
 import (
 	"fmt"
 	"math"
+	"os"
 	"sort"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -108,20 +110,44 @@ func (o familyOutcome) String() string {
 	return b.String()
 }
 
-// TestFamiliesReport prints the outcome on every family scenario; run with
-// -v -run FamiliesReport to see the figures docs/error-model.md records.
-func TestFamiliesReport(t *testing.T) {
+// familySeeds are the seeds of TestFamilies: 1, or the list in
+// FERRY_FAMILY_SEEDS (comma-separated) for the figures of
+// docs/error-model.md.
+func familySeeds(t *testing.T) []uint64 {
+	env := os.Getenv("FERRY_FAMILY_SEEDS")
+	if env == "" {
+		return []uint64{1}
+	}
+	var seeds []uint64
+	for _, f := range strings.Split(env, ",") {
+		v, err := strconv.ParseUint(strings.TrimSpace(f), 10, 64)
+		if err != nil {
+			t.Fatalf("FERRY_FAMILY_SEEDS: %v", err)
+		}
+		seeds = append(seeds, v)
+	}
+	return seeds
+}
+
+// TestFamilies runs the check, fit and map on every scenario of
+// register/internal/families (six clean sets, ten with two planted
+// mistakes each) and holds them to what docs/error-model.md records: few
+// good landmarks flagged, the planted mistakes found, the cells' error no
+// worse than with the mistakes removed by hand, and r95 coverage near 95 %.
+// Run with -v to see the table.
+func TestFamilies(t *testing.T) {
 	if testing.Short() {
 		t.Skip("Monte Carlo over the families")
 	}
-	seeds := []uint64{1, 2}
+	seeds := familySeeds(t)
+	type pooled struct{ inside, total int }
 	for _, group := range []struct {
 		name  string
 		specs []families.Spec
 	}{{"clean", families.Clean()}, {"mistakes", families.Mistakes()}} {
 		falseFl, found, wrong := 0, 0, 0
-		worst := 1.0
-		worstHi := 0.0
+		pool := map[string]*pooled{StatusOK: {}, StatusExtrapolated: {}}
+		var covs []float64
 		for _, seed := range seeds {
 			for _, spec := range group.specs {
 				o := evaluateFamily(t, families.Draw(spec, seed))
@@ -129,15 +155,45 @@ func TestFamiliesReport(t *testing.T) {
 				falseFl += o.falseFl
 				found += o.found
 				wrong += o.wrong
-				for _, st := range []string{StatusOK, StatusExtrapolated} {
+				for st, p := range pool {
+					p.inside += o.inside[st]
+					p.total += o.total[st]
 					if c := o.coverage(st); !math.IsNaN(c) {
-						worst = math.Min(worst, c)
-						worstHi = math.Max(worstHi, c)
+						covs = append(covs, c)
 					}
+				}
+				if o.found == o.wrong && o.p95 > 1.05*o.p95Hand+0.1 {
+					t.Errorf("%s: the cells' 95th-percentile error %.2f µm, with the mistakes removed by hand %.2f µm", o.name, o.p95, o.p95Hand)
 				}
 			}
 		}
-		t.Logf("%s over seeds %v: %d false flags, %d of %d mistakes found, coverage %.3f to %.3f", group.name, seeds, falseFl, found, wrong, worst, worstHi)
+		sort.Float64s(covs)
+		t.Logf("%s over seeds %v: %d good landmarks flagged, %d of %d mistakes found; r95 coverage per scenario and status from %.3f to %.3f, median %.3f",
+			group.name, seeds, falseFl, found, wrong, covs[0], covs[len(covs)-1], covs[len(covs)/2])
+		runs := len(seeds)
+		switch group.name {
+		// The bounds are what docs/error-model.md records for seeds 1 and
+		// 2, per seed: the targets (one flag over six clean sets,
+		// every mistake found) are not met.
+		case "clean":
+			if falseFl > 2*runs {
+				t.Errorf("%d good landmarks flagged over %d clean sets, want at most %d", falseFl, 6*runs, 2*runs)
+			}
+		case "mistakes":
+			if found < wrong-2*runs || falseFl > 3*runs {
+				t.Errorf("%d of %d mistakes found and %d good landmarks flagged over %d scenarios", found, wrong, falseFl, 10*runs)
+			}
+		}
+		for st, p := range pool {
+			c := float64(p.inside) / float64(p.total)
+			t.Logf("  %s cells: %.3f of %d inside r95", st, c, p.total)
+			if c < 0.88 || c > 0.99 {
+				t.Errorf("%s: %.3f of the %s cells inside r95 pooled over the scenarios, want 0.88 to 0.99", group.name, c, st)
+			}
+		}
+		if med := covs[len(covs)/2]; med < 0.90 || med > 0.99 {
+			t.Errorf("%s: median coverage per scenario %.3f, want 0.90 to 0.99", group.name, med)
+		}
 	}
 }
 

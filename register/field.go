@@ -54,6 +54,10 @@ import (
 // own kriging variance with one scale per axis.
 const fieldMinLandmarks = 12
 
+// fieldMinPerKind is the fewest landmarks of each kind from which the
+// kinds' relative noise is estimated, as for the older check.
+const fieldMinPerKind = minPerKind
+
 // fieldMaxLandmarks bounds the landmarks the field is estimated from: the
 // grid costs a few dozen eigendecompositions of an N×N matrix.
 const fieldMaxLandmarks = 600
@@ -259,10 +263,39 @@ func (b *fieldBasis) evaluate(dim int) (lambda, s transform.Vec, ll float64) {
 	return lambda, s, ll
 }
 
+// fieldCriterion says how fitField chooses the smoothness, length and kind
+// noises; each axis's noise λ_k is always the restricted likelihood's.
+type fieldCriterion int
+
+const (
+	// byREML takes the restricted likelihood: the whole spectrum of the
+	// landmarks' contrasts, the most efficient for the flags' scores.
+	byREML fieldCriterion = iota
+	// byLOO takes the leave-one-out log predictive density: the models
+	// compared at distances of the landmark spacing, where the map's
+	// cells lie, which is what their radii need.
+	byLOO
+)
+
+// looLogDensity is Σ_i Σ_k log N(e_ik; 0, v_ik) of the model's
+// leave-one-out predictions (Rasmussen & Williams 2006, §5.4.2).
+func (b *fieldBasis) looLogDensity(dim int, lambda, s transform.Vec) float64 {
+	loo, vars, _ := b.leaveOneOut(dim, lambda, s)
+	ll := 0.0
+	for i := range loo {
+		for k := range dim {
+			if vars[i][k] > 0 {
+				ll -= 0.5 * (math.Log(vars[i][k]) + loo[i][k]*loo[i][k]/vars[i][k])
+			}
+		}
+	}
+	return ll
+}
+
 // fitField fits the error model to the landmarks. With fixed given, its
 // smoothness, length and kind noises are kept and only λ and s are
 // re-estimated (the cheap refit of sequential deletion).
-func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *FieldParams) (*fieldFit, error) {
+func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *FieldParams, criterion fieldCriterion) (*fieldFit, error) {
 	n := len(src)
 	if n > fieldMaxLandmarks {
 		return nil, fmt.Errorf("%d landmarks: the error model is estimated from at most %d", n, fieldMaxLandmarks)
@@ -291,6 +324,9 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		}
 		t := &trial{nu: nu, length: length, kn: kn, b: b}
 		t.lambda, t.s, t.ll = b.evaluate(dim)
+		if criterion == byLOO {
+			t.ll = b.looLogDensity(dim, t.lambda, t.s)
+		}
 		return t, nil
 	}
 	var best *trial
@@ -344,7 +380,7 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		sort.Slice(ks, func(i, j int) bool { return ks[i] < ks[j] })
 		enough := len(ks) >= 2
 		for _, k := range ks {
-			enough = enough && counts[k] >= minPerKind
+			enough = enough && counts[k] >= fieldMinPerKind
 		}
 		if enough {
 			for _, k := range ks[1:] {

@@ -56,7 +56,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		keep := func(i int) bool { return !out.flagged[i] }
 		idx := indices(n, keep)
 		q := p.subset(keep)
-		f, err := fitField(dim, q.Source, q.Target, q.Kinds, params)
+		f, err := fitField(dim, q.Source, q.Target, q.Kinds, params, byREML)
 		if err != nil {
 			return nil, nil, err
 		}
@@ -77,7 +77,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 	// The model of the clean set, all its parameters estimated again.
 	keep := func(i int) bool { return !out.flagged[i] }
 	q := p.subset(keep)
-	fit, err := fitField(dim, q.Source, q.Target, q.Kinds, nil)
+	fit, err := fitField(dim, q.Source, q.Target, q.Kinds, nil, byREML)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -88,7 +88,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		keep := func(j int) bool { return j == i || !out.flagged[j] }
 		idx := indices(n, keep)
 		q := p.subset(keep)
-		f, err := fitField(dim, q.Source, q.Target, q.Kinds, &fit.params)
+		f, err := fitField(dim, q.Source, q.Target, q.Kinds, &fit.params, byREML)
 		if err != nil {
 			return nil, nil, err
 		}
@@ -108,7 +108,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 			out.flagged[i] = out.reason[i] != ""
 		}
 		q := p.subset(keep)
-		if fit, err = fitField(dim, q.Source, q.Target, q.Kinds, nil); err != nil {
+		if fit, err = fitField(dim, q.Source, q.Target, q.Kinds, nil, byREML); err != nil {
 			return nil, nil, err
 		}
 	}
@@ -135,7 +135,7 @@ func trimmedField(p *Problem, limit int) (*FieldParams, error) {
 		keep := func(i int) bool { return !out[i] }
 		idx := indices(p.Len(), keep)
 		q := p.subset(keep)
-		f, err := fitField(p.Dim, q.Source, q.Target, q.Kinds, nil)
+		f, err := fitField(p.Dim, q.Source, q.Target, q.Kinds, nil, byREML)
 		if err != nil {
 			return nil, err
 		}

@@ -159,23 +159,23 @@ func (f *fieldMapper) noise() transform.Vec {
 	return v
 }
 
-// cellNoiseOf is the relative noise D of a mapped point: cells are somata,
-// so a soma landmark's when the set has them, else the landmarks' mean.
+// cellNoiseOf is the relative noise D of a mapped point. Cells are somata,
+// whose centroids are picked no better than the landmarks on average: a
+// soma landmark's D when the set has enough somata to estimate it and it
+// is the larger, else the landmarks' mean.
 func cellNoiseOf(kinds []landmarks.Kind, f *FieldParams) float64 {
-	somata := 0
+	somata, sum := 0, 0.0
 	for _, k := range kinds {
+		sum += f.kindNoise(k)
 		if k == landmarks.KindSoma {
 			somata++
 		}
 	}
-	if d, ok := f.Kinds[landmarks.KindSoma]; ok && somata >= minPerKind {
-		return d
+	mean := sum / float64(max(len(kinds), 1))
+	if d, ok := f.Kinds[landmarks.KindSoma]; ok && somata >= fieldMinPerKind {
+		return math.Max(d, mean)
 	}
-	sum := 0.0
-	for _, k := range kinds {
-		sum += f.kindNoise(k)
-	}
-	return sum / float64(max(len(kinds), 1))
+	return mean
 }
 
 // WithoutField returns a copy of f whose uncertainty model has the error

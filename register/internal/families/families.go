@@ -2,6 +2,7 @@ package families
 
 import (
 	"fmt"
+	"hash/fnv"
 	"math"
 	"math/rand/v2"
 
@@ -112,7 +113,11 @@ func (s *Scenario) WrongIDs() []int {
 
 // Draw draws the scenario of spec with seed.
 func Draw(spec Spec, seed uint64) *Scenario {
-	rng := rand.New(rand.NewPCG(seed, 0x5eed^uint64(len(spec.Name))))
+	// Each scenario its own stream: the name hashed, so that no two
+	// scenarios share their draws.
+	h := fnv.New64a()
+	h.Write([]byte(spec.Name))
+	rng := rand.New(rand.NewPCG(seed, h.Sum64()))
 	s := &Scenario{Spec: spec, Seed: seed}
 	s.truth = truthOf(spec, rng)
 	for i := range spec.N {
