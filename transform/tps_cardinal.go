@@ -19,13 +19,39 @@ import (
 // they are computed in the normalised system. It costs a factorisation and
 // O(N²) a point.
 func (s *Spline) CardinalWeights(xs []Vec) (*mat.Dense, error) {
+	c, err := s.Cardinal()
+	if err != nil {
+		return nil, err
+	}
+	return c.Weights(xs), nil
+}
+
+// Cardinal holds the factorised fit of a spline for computing cardinal
+// weights at many points: the factorisation is paid once. It is safe for
+// concurrent use.
+type Cardinal struct {
+	sys *splineSystem
+}
+
+// Cardinal factorises the spline's fit for CardinalWeights.
+func (s *Spline) Cardinal() (*Cardinal, error) {
 	sys, err := s.system()
 	if err != nil {
 		return nil, fmt.Errorf("thin-plate spline: %w", err)
 	}
+	return &Cardinal{sys: sys}, nil
+}
+
+// Weights returns the cardinal weights at xs (N×len(xs); nil for no
+// points), as Spline.CardinalWeights.
+func (c *Cardinal) Weights(xs []Vec) *mat.Dense {
+	if len(xs) == 0 {
+		return nil
+	}
+	sys := c.sys
 	N, m := len(sys.nodes), sys.m
-	f := mat.NewDense(N, max(len(xs), 1), nil)
-	g := mat.NewDense(m, max(len(xs), 1), nil)
+	f := mat.NewDense(N, len(xs), nil)
+	g := mat.NewDense(m, len(xs), nil)
 	k := make([]float64, N)
 	for i, x := range xs {
 		u := x.Sub(sys.centre).Scale(1 / sys.scale)
@@ -38,11 +64,8 @@ func (s *Spline) CardinalWeights(xs []Vec) (*mat.Dense, error) {
 			g.Set(1+l, i, u[l])
 		}
 	}
-	c, _ := sys.solve(f, g)
-	if len(xs) == 0 {
-		return nil, nil
-	}
-	return c, nil
+	w, _ := sys.solve(f, g)
+	return w
 }
 
 // LeaveOneOutWeights returns B (N×N) whose row i gives the spline's exact
