@@ -109,8 +109,12 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	if err := checkPoints("cell", cells, dim); err != nil {
 		return nil, err
 	}
-	// The search conditions on the fitted model's own kriging variance,
-	// so map's radii here are those of that model too.
+	// With the error model the search ranks by it and reports map's radii
+	// after refitting; without, it conditions on the fitted model's own
+	// kriging variance.
+	if g, err := register.NewFieldGain(f); err == nil {
+		return suggestField(f, g, cells, n, opt)
+	}
 	f, err := register.WithoutField(f)
 	if err != nil {
 		return nil, err
