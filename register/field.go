@@ -230,19 +230,20 @@ func (b *fieldBasis) logLik(k int, lambda float64) (float64, float64) {
 	return -0.5 * (dof*math.Log(s) + logdet + dof), s
 }
 
-// The grid of λ: from nearly exact interpolation to nearly all noise.
-var fieldLambdas = func() []float64 {
+// fieldLambdas is the grid of λ: from nearly exact interpolation to nearly
+// all noise, eight steps a decade.
+func fieldLambdas() []float64 {
 	var out []float64
-	for e := -6.0; e <= 3.0001; e += 0.125 {
-		out = append(out, math.Pow(10, e))
+	for e := -48; e <= 24; e++ {
+		out = append(out, math.Pow(10, float64(e)/8))
 	}
 	return out
-}()
+}
 
 // bestLambda maximises axis k's likelihood over the grid.
 func (b *fieldBasis) bestLambda(k int) (lambda, s, ll float64) {
 	ll = math.Inf(-1)
-	for _, l := range fieldLambdas {
+	for _, l := range fieldLambdas() {
 		v, sc := b.logLik(k, l)
 		if v > ll {
 			lambda, s, ll = l, sc, v
