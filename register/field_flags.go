@@ -52,6 +52,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		return nil, nil, err
 	}
 	var setAside []int
+	var last *fieldFit
 	for {
 		keep := func(i int) bool { return !out.flagged[i] }
 		idx := indices(n, keep)
@@ -60,6 +61,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		if err != nil {
 			return nil, nil, err
 		}
+		last = f
 		threshold := studentisedThreshold(dim, f.dof, n)
 		worst, worstScore := -1, threshold
 		for k, i := range idx {
@@ -74,12 +76,15 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		out.flagged[worst] = true
 		setAside = append(setAside, worst)
 	}
-	// The model of the clean set, all its parameters estimated again.
+	// The model of the clean set, all its parameters estimated again when
+	// landmarks were set aside (else the trimmed estimate stands).
 	keep := func(i int) bool { return !out.flagged[i] }
 	q := p.subset(keep)
-	fit, err := fitField(dim, q.Source, q.Target, q.Kinds, nil, byREML)
-	if err != nil {
-		return nil, nil, err
+	fit := last
+	if len(setAside) > 0 {
+		if fit, err = fitField(dim, q.Source, q.Target, q.Kinds, nil, byREML); err != nil {
+			return nil, nil, err
+		}
 	}
 	// Each set-aside landmark against the clean set.
 	sort.Ints(setAside)
