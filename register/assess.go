@@ -77,6 +77,13 @@ type Calibration struct {
 	Inside, N int
 }
 
+func (c *Calibration) add(inside bool) {
+	c.N++
+	if inside {
+		c.Inside++
+	}
+}
+
 // Share is Inside/N.
 func (c Calibration) Share() float64 {
 	if c.N == 0 {
@@ -105,11 +112,27 @@ type Assessment struct {
 	// estimated from the unflagged landmarks' leave-one-out errors.
 	Scale       transform.Vec
 	Calibration Calibration
+	// CalibrationByStatus splits Calibration by the status each landmark
+	// would have on the map when predicted from the others: StatusOK
+	// inside their hull, StatusExtrapolated outside.
+	CalibrationByStatus map[string]Calibration
+	// FlagLimit is the most landmarks the check could flag: 0 when the set
+	// is too small for any to be told wrong.
+	FlagLimit int
 	// Result is the chosen model fitted to every landmark of the problem,
 	// flagged ones included, with leave-one-out.
 	Result *transform.Result
 	// Radii turns covariances into 95 % radii.
 	Radii *RadiusTable
+	// Warnings are the standing warnings of the fit (flagged landmarks in
+	// it, a registration that cannot resolve cells), kept in the
+	// transform file and repeated by map, match and report.
+	Warnings []string
+	// Field is the error model fitted to the clean landmarks (field.go),
+	// nil when the chosen model or the set does not support it; the
+	// landmarks' radii, the calibration and the map's radii then rest on
+	// the per-axis Scale instead.
+	Field *FieldParams
 }
 
 // Flagged returns the ids of the flagged landmarks.
@@ -189,20 +212,33 @@ func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, er
 			return nil, err
 		}
 	}
-	flags, err := flagLandmarks(p, model, weights, s, a.Radii)
-	if err != nil {
-		return nil, err
-	}
-	if s.SourceSD == nil && s.TargetSD == nil {
-		// Without stated picking errors, let each kind of landmark speak
-		// for its own noise.
-		if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
+	var flags *flagResult
+	var field *fieldFit
+	if useField(p, s) {
+		var err error
+		if flags, field, err = flagByField(p, a.Radii); err != nil {
+			return nil, err
+		}
+		if w, noise := fieldWeights(p, &field.params); w != nil {
 			weights, a.KindNoise = w, noise
-			if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
-				return nil, err
+		}
+	} else {
+		var err error
+		if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
+			return nil, err
+		}
+		if s.SourceSD == nil && s.TargetSD == nil {
+			// Without stated picking errors, let each kind of landmark speak
+			// for its own noise.
+			if w, noise := kindWeights(p, flags.score, flags.flagged); w != nil {
+				weights, a.KindNoise = w, noise
+				if flags, err = flagLandmarks(p, model, weights, s, a.Radii); err != nil {
+					return nil, err
+				}
 			}
 		}
 	}
+	a.FlagLimit = flags.limit
 	cleanIdx := indices(p.Len(), func(i int) bool { return !flags.flagged[i] })
 	cleanSet := p.subset(func(i int) bool { return !flags.flagged[i] })
 	if s.Model == "" {
@@ -224,20 +260,48 @@ func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, er
 	}
 	// The scale of the clean fit's errors, and the verdicts in its terms.
 	a.Scale = axisScale(clean.res, p.Dim)
+	var fieldLOOVar []transform.Vec
+	if field != nil && (model == transform.Affine || model == transform.TPS) {
+		// The field's trend is affine: its variances hold for a model that
+		// reproduces affine maps, not for a rigid motion, which may miss
+		// part of the trend.
+		// The model for the radii: chosen where the cells lie.
+		if f, err := fitField(p.Dim, cleanSet.Source, cleanSet.Target, cleanSet.Kinds, nil, byLOO); err == nil {
+			field = f
+		}
+		d := make([]float64, len(cleanIdx))
+		for k, i := range cleanIdx {
+			d[k] = field.params.kindNoise(p.Kinds[i])
+		}
+		if f, v, err := calibrateField(clean.res, cleanSet.Source, pick(weights, cleanIdx), d, &field.params, p.Dim); err == nil {
+			a.Field, fieldLOOVar = f, v
+		}
+	}
 	a.Landmarks = make([]LandmarkCheck, p.Len())
 	for i := range a.Landmarks {
 		a.Landmarks[i] = LandmarkCheck{ID: p.IDs[i], Kind: p.Kinds[i], Score: flags.score[i], Flag: flags.reason[i]}
 	}
+	status := looStatus(cleanSet.Source, p.Dim)
+	a.CalibrationByStatus = map[string]Calibration{}
 	for k, i := range cleanIdx {
 		l := &a.Landmarks[i]
 		l.LOO = clean.res.LOO[k]
-		cov := looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
-		addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
-		l.R95 = a.Radii.Radius(cov)
-		a.Calibration.N++
-		if l.LOO.Norm() <= l.R95 {
-			a.Calibration.Inside++
+		var cov transform.Mat
+		if a.Field != nil {
+			// The error model's variance of the fitted model's
+			// leave-one-out error.
+			cov = diagonal(fieldLOOVar[k], p.Dim)
+		} else {
+			cov = looCovariance(a.Scale, clean.res.LOOFactor[k], p.Dim)
+			addPickNoise(&cov, s, clean.res.Transform.Jacobian(p.Source[i]), p.Dim)
 		}
+		l.R95 = a.Radii.Radius(cov)
+		in := l.LOO.Norm() <= l.R95
+		a.Calibration.add(in)
+		st := status[k]
+		c := a.CalibrationByStatus[st]
+		c.add(in)
+		a.CalibrationByStatus[st] = c
 	}
 	for i, loo := range flags.loo {
 		l := &a.Landmarks[i]
@@ -260,6 +324,7 @@ func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, er
 	if err := a.finite(); err != nil {
 		return nil, err
 	}
+	a.Warnings = a.standingWarnings()
 	return a, nil
 }
 
@@ -482,6 +547,8 @@ type flagResult struct {
 	// and their 95 % radii.
 	loo map[int]transform.Vec
 	r95 map[int]float64
+	// limit is the most landmarks the check could set aside.
+	limit int
 }
 
 // flagLandmarks finds the landmarks that look wrong by sequential deletion.
@@ -506,6 +573,7 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 	if n-limit < transform.MinPairs(model, p.Dim)+3 {
 		limit = max(0, n-transform.MinPairs(model, p.Dim)-3)
 	}
+	out.limit = limit
 	var setAside []int
 	for {
 		keep := func(i int) bool { return !out.flagged[i] }
@@ -629,7 +697,10 @@ func flagReason(loo transform.Vec, cov transform.Mat, r95 float64, dim int) stri
 	if dim == 3 && cov[2][2] > 0 {
 		total := standardised(loo, cov, dim)
 		zOnly := loo[2] * loo[2] / cov[2][2]
-		if zOnly > 0.8*total {
+		// Mostly along z in the standardised error, or in micrometres:
+		// the error model may know x and y so well that their few
+		// micrometres weigh more than the section's tens.
+		if zOnly > 0.8*total || loo[2]*loo[2] > 0.8*loo.Dot(loo) {
 			return reason + "; mostly in z: a wrong section?"
 		}
 	}

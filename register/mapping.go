@@ -53,6 +53,9 @@ type Mapper struct {
 	// heldOut are the held-out predictions of the cells a refined
 	// transform was fitted to, by exact source position (see HeldOut).
 	heldOut map[transform.Vec]HeldOut
+	// field, when the transform file carries the error model, gives the
+	// variances in place of pred.
+	field *fieldMapper
 }
 
 // NewMapper prepares the mapping of points through the transform of a
@@ -66,12 +69,17 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 	if err != nil {
 		return nil, err
 	}
-	pred, err := transform.NewPredictor(f.Transform, u.Source, u.Weights)
-	if err != nil {
+	var pred transform.Predictor
+	var field *fieldMapper
+	if u.Field != nil {
+		if field, err = newFieldMapper(f.Transform, u); err != nil {
+			return nil, fmt.Errorf("uncertainty model: %v", err)
+		}
+	} else if pred, err = transform.NewPredictor(f.Transform, u.Source, u.Weights); err != nil {
 		return nil, fmt.Errorf("uncertainty model: %v", err)
 	}
 	m := &Mapper{
-		t: f.Transform, pred: pred, u: u, dim: dim,
+		t: f.Transform, pred: pred, u: u, dim: dim, field: field,
 		hull:  newSupportHull(u.Source, dim),
 		tree:  newPointTree(u.Source),
 		radii: Radius95(dim),
@@ -93,7 +101,16 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 // own localisation error (µm per axis, one standard deviation), in the space
 // it is given in.
 func (m *Mapper) Map(x transform.Vec, cellSD *transform.Vec) Mapped {
-	return m.finishForward(x, m.pred.Factor(x), cellSD)
+	return m.finishForward(x, m.factor(x), cellSD)
+}
+
+// factor is the predictor's factor at x, or with the error model the
+// diagonal of the transform's error variance there (µm²).
+func (m *Mapper) factor(x transform.Vec) transform.Mat {
+	if m.field != nil {
+		return diagonal(m.field.variances([]transform.Vec{x}, false)[0], m.dim)
+	}
+	return m.pred.Factor(x)
 }
 
 func (m *Mapper) finishForward(x transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
@@ -120,7 +137,7 @@ func (m *Mapper) MapInverse(q transform.Vec, cellSD *transform.Vec) Mapped {
 	if err != nil {
 		return Mapped{Status: StatusNoInverse}
 	}
-	return m.finishInverse(x, m.pred.Factor(x), cellSD)
+	return m.finishInverse(x, m.factor(x), cellSD)
 }
 
 func (m *Mapper) finishInverse(x transform.Vec, factor transform.Mat, cellSD *transform.Vec) Mapped {
@@ -131,7 +148,11 @@ func (m *Mapper) finishInverse(x transform.Vec, factor transform.Mat, cellSD *tr
 	}
 	cov := m.covariance(factor, jac, nil)
 	if cellSD != nil {
-		cov = subtractPickNoise(cov, m.u.landmarkNoise(jac, m.dim), m.dim)
+		noise := m.u.landmarkNoise(jac, m.dim)
+		if m.field != nil {
+			noise = diagonal(m.field.noise(), m.dim)
+		}
+		cov = subtractPickNoise(cov, noise, m.dim)
 		for k := range m.dim {
 			cov[k][k] += cellSD[k] * cellSD[k]
 		}
@@ -163,6 +184,28 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 // same with the landmarks' picking noise replaced by the cell's own,
 // carried through the Jacobian.
 func (m *Mapper) covariance(f transform.Mat, jac transform.Mat, cellSD *transform.Vec) transform.Mat {
+	if m.field != nil {
+		// f is the transform's error variance; the cell's own error is
+		// the picking noise of a landmark of its kind, or the one given.
+		if cellSD == nil {
+			noise := m.field.noise()
+			for k := range m.dim {
+				f[k][k] += noise[k]
+			}
+			return f
+		}
+		var d transform.Mat
+		for k := range m.dim {
+			d[k][k] = cellSD[k] * cellSD[k]
+		}
+		own := jac.Mul(d).Mul(jac.T())
+		for i := range m.dim {
+			for j := range m.dim {
+				f[i][j] += own[i][j]
+			}
+		}
+		return f
+	}
 	if cellSD == nil {
 		return m.u.Covariance(f, nil, m.dim)
 	}
@@ -306,6 +349,12 @@ func (m *Mapper) nearestLandmark(x transform.Vec) float64 {
 // The predictor's factors are computed for all points together, which for a
 // large spline is several times faster than point by point.
 func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool) []Mapped {
+	return m.mapAll(xs, cellSD, inverse, len(xs) > fieldGridNodes)
+}
+
+// mapAll is MapAll with the choice of the error model's interpolated
+// variances (onGrid) made by the caller, for the whole job.
+func (m *Mapper) mapAll(xs []transform.Vec, cellSD *transform.Vec, inverse, onGrid bool) []Mapped {
 	out := make([]Mapped, len(xs))
 	src := make([]transform.Vec, len(xs))
 	ok := make([]bool, len(xs))
@@ -318,7 +367,11 @@ func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool)
 		}
 	})
 	factors := make([]transform.Mat, len(xs))
-	if bp, isBatch := m.pred.(transform.BatchPredictor); isBatch {
+	if m.field != nil {
+		for i, v := range m.field.variances(src, onGrid) {
+			factors[i] = diagonal(v, m.dim)
+		}
+	} else if bp, isBatch := m.pred.(transform.BatchPredictor); isBatch {
 		bp.FactorAll(src, factors)
 	} else {
 		each(len(xs), func(i int) { factors[i] = m.pred.Factor(src[i]) })
@@ -350,7 +403,7 @@ func (m *Mapper) MapAllContext(ctx context.Context, xs []transform.Vec, cellSD *
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		out = append(out, m.MapAll(xs[lo:min(lo+mapBlock, len(xs))], cellSD, inverse)...)
+		out = append(out, m.mapAll(xs[lo:min(lo+mapBlock, len(xs))], cellSD, inverse, len(xs) > fieldGridNodes)...)
 	}
 	return out, nil
 }

@@ -25,3 +25,17 @@ func BenchmarkMap(b *testing.B) {
 	}
 	b.ReportMetric(float64(len(cells))*float64(b.N)/b.Elapsed().Seconds(), "cells/s")
 }
+
+// BenchmarkAssess runs the check on 300 landmarks with the error model:
+// the field's grid of lengths and smoothnesses, the flags, the model
+// comparison and the calibration. The figure goes into docs/benchmarks.md.
+func BenchmarkAssess(b *testing.B) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	p := synthetic(rng, 300, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	s := Settings{Smoothing: Smoothing{Auto: true}}
+	for b.Loop() {
+		if _, err := Assess(p, s); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

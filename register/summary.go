@@ -49,9 +49,12 @@ type CheckJSON struct {
 	MaxUM       float64         `json:"loo_max_um"`
 	Flagged     []string        `json:"flagged"`
 	Calibration CalibrationJSON `json:"calibration"`
-	Models      []ModelJSON     `json:"models"`
-	Landmarks   []LandmarkJSON  `json:"landmarks"`
-	Provenance  string          `json:"provenance,omitempty"`
+	// CalibrationByStatus splits the calibration by the map status each
+	// landmark has when predicted from the others (ok, extrapolated).
+	CalibrationByStatus map[string]CalibrationJSON `json:"calibration_by_status,omitempty"`
+	Models              []ModelJSON                `json:"models"`
+	Landmarks           []LandmarkJSON             `json:"landmarks"`
+	Provenance          string                     `json:"provenance,omitempty"`
 }
 
 // CalibrationJSON is the calibration of the check.
@@ -74,6 +77,12 @@ func (a *Assessment) JSON() CheckJSON {
 	}
 	if a.Calibration.N > 0 {
 		out.Calibration.Share = a.Calibration.Share()
+	}
+	for st, c := range a.CalibrationByStatus {
+		if out.CalibrationByStatus == nil {
+			out.CalibrationByStatus = map[string]CalibrationJSON{}
+		}
+		out.CalibrationByStatus[st] = CalibrationJSON{Inside: c.Inside, N: c.N, Share: round6(c.Share()), Expected: 0.95}
 	}
 	var errs []float64
 	for _, l := range a.Landmarks {
@@ -232,12 +241,20 @@ func WriteCheckTable(w io.Writer, a *Assessment) {
 	tw.Flush()
 	c := a.Calibration
 	if c.N > 0 {
-		fmt.Fprintf(w, "\nCalibration: %d of %d landmarks (%.0f %%) have their leave-one-out error inside the predicted 95 %% radius.\n",
+		fmt.Fprintf(w, "\nCalibration: %d of %d landmarks (%.0f %%) have their leave-one-out error inside the predicted 95 %% radius",
 			c.Inside, c.N, 100*c.Share())
+		for _, st := range []string{StatusOK, StatusExtrapolated} {
+			if bc, ok := a.CalibrationByStatus[st]; ok && bc.N > 0 {
+				fmt.Fprintf(w, "; %s: %d of %d (%.0f %%)", st, bc.Inside, bc.N, 100*bc.Share())
+			}
+		}
+		fmt.Fprintln(w, ".")
 	}
 	if ids := a.Flagged(); len(ids) > 0 {
 		fmt.Fprintf(w, "%d landmark(s) look wrong: check them in both volumes, correct or refit with --exclude %s\n",
 			len(ids), strings.Join(ids, ","))
+	} else if a.FlagLimit == 0 {
+		fmt.Fprintf(w, "Too few landmarks (%d) for the check to tell a wrong one from the others: none could be flagged.\n", len(a.Landmarks))
 	} else {
 		fmt.Fprintln(w, "No landmark looks wrong.")
 	}

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/spatial/kdtree"
 
+	"ferry/landmarks"
 	"ferry/transform"
 )
 
@@ -47,6 +48,18 @@ type UncertaintyModel struct {
 	// 95 % radius.
 	CalibrationInside int `json:"calibration_inside"`
 	CalibrationN      int `json:"calibration_n"`
+	// Field is the fitted error model (field.go) when the method is
+	// fieldMethodName: map's variances then come from it, and Kinds are
+	// the landmarks' kinds, CellNoise the relative noise D of a mapped
+	// cell. Scale and NoiseFactor remain the per-axis calibration of the
+	// fitted model's own kriging variance, which suggest conditions on.
+	Field     *FieldParams     `json:"field,omitempty"`
+	Kinds     []landmarks.Kind `json:"landmark_kinds,omitempty"`
+	CellNoise float64          `json:"cell_noise,omitempty"`
+	// Warnings are the check's standing warnings about the fit (flagged
+	// landmarks kept in, too few landmarks), repeated by every command
+	// that reads the transform file.
+	Warnings []string `json:"warnings,omitempty"`
 }
 
 const (
@@ -68,6 +81,21 @@ func NewUncertaintyModel(p *Problem, a *Assessment, s Settings) *UncertaintyMode
 	if a.Chosen == transform.TPS {
 		u.NoiseFactor = a.Smoothing
 	}
+	u.Warnings = a.Warnings
+	if a.Field != nil {
+		u.Method, u.Field = fieldMethodName, a.Field
+		u.Kinds = append([]landmarks.Kind(nil), p.Kinds...)
+		u.CellNoise = cellNoiseOf(p.Kinds, a.Field)
+	}
+	return u
+}
+
+// WithoutField is u with the leave-one-out calibrated predictive covariance
+// in place of the error model: for a transform whose nodes are not the
+// landmarks the model was fitted to (refine adds soma pairs, and calibrates
+// the per-axis scale on them itself).
+func (u UncertaintyModel) WithoutField() UncertaintyModel {
+	u.Method, u.Field, u.Kinds, u.CellNoise = methodName, nil, nil, 0
 	return u
 }
 
@@ -83,7 +111,7 @@ func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, err
 	if err := json.Unmarshal(raw, &u); err != nil {
 		return nil, fmt.Errorf("uncertainty model: %v", err)
 	}
-	if u.Method != methodName {
+	if u.Method != methodName && u.Method != fieldMethodName {
 		return nil, fmt.Errorf("uncertainty model %q is not one this program knows", u.Method)
 	}
 	if len(u.Source) == 0 || len(u.Weights) != len(u.Source) {
@@ -102,7 +130,40 @@ func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, err
 			return nil, fmt.Errorf("uncertainty model: landmark %d is not finite or has no weight", i+1)
 		}
 	}
+	if u.Method == fieldMethodName {
+		if err := u.checkField(dim); err != nil {
+			return nil, err
+		}
+	}
 	return &u, nil
+}
+
+// checkField checks the error model's parameters as read from a file.
+func (u *UncertaintyModel) checkField(dim int) error {
+	f := u.Field
+	if f == nil {
+		return errors.New("uncertainty model: the error model's parameters are missing")
+	}
+	if f.Smoothness != 0.5 && f.Smoothness != 1.5 && f.Smoothness != 2.5 {
+		return fmt.Errorf("uncertainty model: smoothness %v is not 0.5, 1.5 or 2.5", f.Smoothness)
+	}
+	if !(f.Length > 0) || math.IsInf(f.Length, 0) || !(u.CellNoise > 0) || math.IsInf(u.CellNoise, 0) {
+		return errors.New("uncertainty model: the field's length or the cells' noise is not a positive finite number")
+	}
+	for k := range dim {
+		if !(f.Amplitude[k] >= 0) || math.IsInf(f.Amplitude[k], 0) || !(f.Noise[k] >= 0) || math.IsInf(f.Noise[k], 0) {
+			return fmt.Errorf("uncertainty model: field amplitude %v or noise %v is not a finite number ≥ 0", f.Amplitude, f.Noise)
+		}
+	}
+	for k, d := range f.Kinds {
+		if !(d > 0) || math.IsInf(d, 0) {
+			return fmt.Errorf("uncertainty model: the noise of kind %q is not a positive finite number", k)
+		}
+	}
+	if len(u.Kinds) != len(u.Source) {
+		return fmt.Errorf("uncertainty model: %d landmarks with %d kinds", len(u.Source), len(u.Kinds))
+	}
+	return nil
 }
 
 // nearestSpacing is the median nearest-neighbour distance of points.

@@ -51,7 +51,7 @@ noise): the cell's source position and the candidate's target position.`,
 					return match.AddDecidedLandmarks(set, d, cells, cands)
 				}
 			}
-			job, a, err := flags.assess(cmd, args[0])
+			job, a, err := flags.assessForFit(cmd, args[0], summaryWriter(cmd, out))
 			if err != nil {
 				if cmd.Context().Err() != nil {
 					return fmt.Errorf("%s not written: %w", out, cmd.Context().Err())
@@ -79,14 +79,18 @@ noise): the cell's source position and the candidate's target position.`,
 			fmt.Fprintf(w, "Leave-one-out error of the %s model: RMS %.2f µm, max %.2f µm over %d landmarks.\n",
 				a.Chosen, a.JSON().RMSUM, a.JSON().MaxUM, len(a.Landmarks))
 			if ids := a.Flagged(); len(ids) > 0 {
-				fmt.Fprintf(w, "Warning: %d landmark(s) look wrong and are still in the fit: %s. Run ferry check, then correct them or refit with --exclude %s\n",
-					len(ids), strings.Join(ids, ", "), strings.Join(ids, ","))
+				fmt.Fprintf(w, "Warning: %d landmark(s) look wrong and are still in the fit (--keep-flagged): %s. Run ferry check, then correct them or refit without --keep-flagged\n",
+					len(ids), strings.Join(ids, ", "))
+			}
+			if u := a.Unresolved(0); u != "" {
+				fmt.Fprintf(w, "Warning: %s\n", u)
 			}
 			fmt.Fprintf(w, "Wrote %s\n", outputName(out))
 			return nil
 		},
 	}
 	flags.register(cmd)
+	flags.registerKeep(cmd)
 	cmd.Flags().StringVarP(&out, "output", "o", "", "transform file to write (JSON)")
 	cmd.Flags().StringVar(&decisions, "decisions", "", "decisions file from review: its accepted pairs join the landmarks (needs --cells and --candidates)")
 	cmd.Flags().StringVar(&cellsPath, "cells", "", "the cells the decisions name (source, in the landmarks' units)")
@@ -104,7 +108,8 @@ func newCheckCommand() *cobra.Command {
 		Long: `check predicts every landmark from all the others, flags the ones that look
 wrong, and reports the errors per landmark and per kind with the calibration of
 the predicted 95 % radii. Exit status 3 when a landmark is flagged or a
-leave-one-out error exceeds --max-error.`,
+leave-one-out error exceeds --max-error, and when the median leave-one-out
+error exceeds a soma's diameter (10 µm): the registration cannot resolve cells.`,
 		Args: exactArgs("LANDMARKS"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cmd.Flags().Changed("max-error") && !(maxError > 0 && !math.IsInf(maxError, 1)) {
@@ -132,6 +137,12 @@ leave-one-out error exceeds --max-error.`,
 				failed = true
 				if !asJSON {
 					fmt.Fprintf(w, "A leave-one-out error of %.2f µm exceeds --max-error %.2f µm.\n", a.MaxLOO(), maxError)
+				}
+			}
+			if u := a.Unresolved(0); u != "" {
+				failed = true
+				if !asJSON {
+					fmt.Fprintln(w, u)
 				}
 			}
 			if failed {

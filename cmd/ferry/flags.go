@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"os"
 	"strconv"
 	"strings"
@@ -19,6 +20,7 @@ import (
 // modelFlags are the flags that fit, check and suggest share.
 type modelFlags struct {
 	model, smoothing, exclude string
+	keepFlagged               bool
 	sourceVoxel, targetVoxel  string
 	sourceSD, targetSD        string
 	noMirror                  bool
@@ -102,24 +104,64 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 	return &job, nil
 }
 
-// assess loads the landmark file with the flags and runs the check on it.
-// A job that needs more memory than the machine has is refused before it
-// starts, and one that takes long is announced on stderr, with the way to
-// make it smaller.
-func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *register.Assessment, error) {
+// registerKeep adds --keep-flagged, for the commands that fit.
+func (f *modelFlags) registerKeep(cmd *cobra.Command) {
+	cmd.Flags().BoolVar(&f.keepFlagged, "keep-flagged", false, "keep the landmarks the check flags in the fit (by default they are left out)")
+}
+
+// assessForFit loads the landmark file and checks it as fit does: the
+// flagged landmarks left out unless --keep-flagged, and said so on w.
+func (f *modelFlags) assessForFit(cmd *cobra.Command, path string, w io.Writer) (*landmarkJob, *register.Assessment, error) {
 	job, err := f.load(path)
 	if err != nil {
 		return nil, nil, err
 	}
+	settings, err := sizedSettings(cmd, path, job)
+	if err != nil {
+		return nil, nil, err
+	}
+	fj, err := register.CheckAndFit(cmd.Context(), job.set, job.exclude, job.voxels, settings, f.keepFlagged)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	job.problem, job.exclude = fj.Problem, fj.Exclude
+	if len(fj.LeftOut) > 0 {
+		fmt.Fprintf(w, "Left out %d landmark(s) that look wrong (keep them with --keep-flagged):\n", len(fj.LeftOut))
+		for _, l := range fj.LeftOut {
+			fmt.Fprintf(w, "  %s (%s): %s\n", l.ID, l.Kind, l.Flag)
+		}
+	}
+	return job, fj.Assessment, nil
+}
+
+// sizedSettings are the job's settings with progress on the terminal, once
+// the job is known to fit the machine: one that needs more memory than the
+// machine has is refused before it starts, and one that takes long is
+// announced on stderr, with the way to make it smaller.
+func sizedSettings(cmd *cobra.Command, path string, job *landmarkJob) (register.Settings, error) {
 	est := register.EstimateJob(job.problem, job.settings)
 	if err := est.CheckMemory(register.AvailableMemory()); err != nil {
-		return nil, nil, fmt.Errorf("%s: %w", path, err)
+		return register.Settings{}, fmt.Errorf("%s: %w", path, err)
 	}
 	if est.Announce() {
 		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: %s: %s; Ctrl-C stops it. To make it smaller: %s.\n", path, est, est.WayOut())
 	}
 	settings := job.settings
 	settings.Progress = progress.Terminal(os.Stderr)
+	return settings, nil
+}
+
+// assess loads the landmark file with the flags and runs the check on it,
+// once the job is known to fit the machine (sizedSettings).
+func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *register.Assessment, error) {
+	job, err := f.load(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	settings, err := sizedSettings(cmd, path, job)
+	if err != nil {
+		return nil, nil, err
+	}
 	a, err := register.AssessContext(cmd.Context(), job.problem, settings)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", path, err)

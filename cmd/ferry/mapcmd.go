@@ -32,6 +32,9 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			if err != nil {
 				return err
 			}
+			for _, warning := range job.mapper.Warnings() {
+				fmt.Fprintf(cmd.ErrOrStderr(), "Warning from %s: %s\n", args[0], warning)
+			}
 			file, cells := job.file, job.cells
 			mapped, err := job.mapper.MapAllContext(cmd.Context(), job.pos, job.cellSD, inverse)
 			if err != nil {

@@ -52,6 +52,9 @@ the nearest one. See docs/matching.md for the method.`,
 			if err != nil {
 				return err
 			}
+			for _, warning := range job.mapper.Warnings() {
+				fmt.Fprintf(cmd.ErrOrStderr(), "Warning from %s: %s\n", args[0], warning)
+			}
 			cells := job.cells
 			cands, candPos, err := register.ReadCells(args[2], "candidates", job.file, true)
 			if err != nil {

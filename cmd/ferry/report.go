@@ -86,6 +86,7 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 		},
 	}
 	flags.register(cmd)
+	flags.registerKeep(cmd)
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "report to write (HTML)")
 	fl.StringVar(&transformPath, "transform", "", "transform file to report on (default: fit one from LANDMARKS)")
@@ -97,7 +98,7 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 // reportFromLandmarks checks and fits the landmarks with the flags, as fit
 // does, for a report without a transform file.
 func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags, path string) error {
-	job, a, err := flags.assess(cmd, path)
+	job, a, err := flags.assessForFit(cmd, path, cmd.OutOrStdout())
 	if err != nil {
 		return err
 	}

@@ -48,7 +48,7 @@ See docs/suggest.md.`,
 			if n < 1 {
 				return fmt.Errorf("--n: want a positive number of landmarks, got %d", n)
 			}
-			job, a, err := flags.assess(cmd, args[0])
+			job, a, err := flags.assessForFit(cmd, args[0], summaryWriter(cmd, out))
 			if err != nil {
 				return err
 			}
@@ -107,6 +107,7 @@ See docs/suggest.md.`,
 		},
 	}
 	flags.register(cmd)
+	flags.registerKeep(cmd)
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "suggestions to write (CSV)")
 	fl.IntVar(&n, "n", suggest.DefaultN, "how many landmarks to suggest")

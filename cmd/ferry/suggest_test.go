@@ -88,8 +88,11 @@ func TestSuggestCommand(t *testing.T) {
 			if got := strings.Join(header, ","); got != tc.header {
 				t.Errorf("header\n%s\nwant\n%s", got, tc.header)
 			}
-			if len(rows) != tc.rows {
-				t.Fatalf("%d rows, want %d", len(rows), tc.rows)
+			// Under the error model a candidate that would not lower the
+			// cells' median r95 is not suggested, so there may be fewer
+			// rows than asked for, never none here.
+			if len(rows) < 1 || len(rows) > tc.rows {
+				t.Fatalf("%d rows, want 1 to %d", len(rows), tc.rows)
 			}
 			var js struct {
 				R95Before   float64          `json:"r95_before_um"`

@@ -176,7 +176,10 @@ func (r *refiner) fit(pairs []Pair, hint [2]float64, wide bool) (*fitState, erro
 	}
 	st.scale = axisScale(st.loo, st.looFactor, r.dim, clean)
 
-	u := *r.base
+	// The error model was fitted to the landmarks alone; with the pairs
+	// as nodes the refined spline's radii rest on the kriging variance,
+	// scaled per axis by the calibration on the pairs.
+	u := r.base.WithoutField()
 	u.Scale = st.scale
 	u.NoiseFactor = st.smoothing[0] * meanW
 	u.Source = st.src

@@ -267,6 +267,11 @@ func (d *pageData) summarise(in *Input) {
 	c := ck.Calibration
 	d.CalibrationShare = fmt.Sprintf("%d of %d landmarks (%s) have their leave-one-out error inside their predicted 95 %% radius",
 		c.Inside, c.N, share(c.Inside, c.N))
+	for _, st := range []string{"ok", "extrapolated"} {
+		if bc, found := ck.CalibrationByStatus[st]; found && bc.N > 0 {
+			d.CalibrationShare += fmt.Sprintf("; %s (as map would call it, predicted from the others): %d of %d (%s)", st, bc.Inside, bc.N, share(bc.Inside, bc.N))
+		}
+	}
 	for _, i := range byError(ck.Landmarks) {
 		l := ck.Landmarks[i]
 		comp := make([]string, len(l.LOOUM))

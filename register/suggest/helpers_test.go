@@ -38,6 +38,10 @@ func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*transform
 	if err != nil {
 		t.Fatal(err)
 	}
+	// suggest conditions on the fitted model's own kriging variance.
+	if f, err = register.WithoutField(f); err != nil {
+		t.Fatal(err)
+	}
 	return f, a
 }
 

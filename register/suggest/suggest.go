@@ -113,6 +113,16 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	if err := checkPoints("cell", cells, dim); err != nil {
 		return nil, err
 	}
+	// With the error model the search ranks by it and reports map's radii
+	// after refitting; without, it conditions on the fitted model's own
+	// kriging variance.
+	if g, err := register.NewFieldGain(f); err == nil {
+		return suggestField(f, g, cells, n, opt)
+	}
+	f, err := register.WithoutField(f)
+	if err != nil {
+		return nil, err
+	}
 	u, err := register.ParseUncertaintyModel(f.Uncertainty, dim)
 	if err != nil {
 		return nil, err

@@ -1,0 +1,204 @@
+package register
+
+import (
+	"fmt"
+	"math"
+	"os"
+	"sort"
+	"strconv"
+	"strings"
+	"testing"
+
+	"ferry/register/internal/families"
+	"ferry/transform"
+)
+
+// familyOutcome is what one scenario of register/internal/families gives.
+type familyOutcome struct {
+	name                  string
+	wrong, found, falseFl int
+	// inside and total per map status of the held-out cells.
+	inside, total map[string]int
+	p90, p95      float64
+	// p95Hand is the cells' 95th-percentile error with the true mistakes
+	// removed by hand.
+	p95Hand float64
+}
+
+func (o familyOutcome) coverage(status string) float64 {
+	if o.total[status] == 0 {
+		return math.NaN()
+	}
+	return float64(o.inside[status]) / float64(o.total[status])
+}
+
+func familyProblem(s *families.Scenario, keep func(i int) bool) *Problem {
+	p := &Problem{Dim: 3}
+	for i := range s.IDs {
+		if keep != nil && !keep(i) {
+			continue
+		}
+		p.IDs = append(p.IDs, s.IDs[i])
+		p.Kinds = append(p.Kinds, s.Kind[i])
+		p.Source = append(p.Source, s.Source[i])
+		p.Target = append(p.Target, s.Target[i])
+	}
+	return p
+}
+
+// mapCells maps the scenario's cells through the fit of p and returns the
+// errors and the coverage counts per status.
+func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (errs []float64, inside, total map[string]int) {
+	m, _ := mapperFor(t, p, set)
+	xs := make([]transform.Vec, len(s.Cells))
+	for i, c := range s.Cells {
+		xs[i] = c.Source
+	}
+	inside, total = map[string]int{}, map[string]int{}
+	for i, got := range m.MapAll(xs, nil, false) {
+		e := got.Pos.Sub(s.Cells[i].Truth).Norm()
+		errs = append(errs, e)
+		total[got.Status]++
+		if e <= got.R95 {
+			inside[got.Status]++
+		}
+	}
+	return errs, inside, total
+}
+
+func evaluateFamily(t testing.TB, s *families.Scenario) familyOutcome {
+	set := Settings{Smoothing: Smoothing{Auto: true}}
+	o := familyOutcome{name: fmt.Sprintf("%s/%d", s.Spec.Name, s.Seed)}
+	a, err := Assess(familyProblem(s, nil), set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, l := range a.Landmarks {
+		switch {
+		case s.Wrong[i]:
+			o.wrong++
+			if l.Flag != "" {
+				o.found++
+			}
+		case l.Flag != "":
+			o.falseFl++
+		}
+	}
+	// The cells as the user would map them: the fit that fit writes.
+	errs, in, tot := mapCells(t, s, fitProblem(s, a), set)
+	o.inside, o.total = in, tot
+	o.p90, o.p95 = quantile(errs, 0.90), quantile(errs, 0.95)
+	hand, _, _ := mapCells(t, s, familyProblem(s, func(i int) bool { return !s.Wrong[i] }), set)
+	o.p95Hand = quantile(hand, 0.95)
+	return o
+}
+
+func quantile(v []float64, q float64) float64 {
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	return s[min(len(s)-1, int(q*float64(len(s))))]
+}
+
+func (o familyOutcome) String() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%-26s found %d/%d false %d  p95 %.2f (hand %.2f)", o.name, o.found, o.wrong, o.falseFl, o.p95, o.p95Hand)
+	for _, st := range []string{StatusOK, StatusIsolated, StatusExtrapolated} {
+		if o.total[st] > 0 {
+			fmt.Fprintf(&b, "  %s %.3f (%d)", st, o.coverage(st), o.total[st])
+		}
+	}
+	return b.String()
+}
+
+// familySeeds are the seeds of TestFamilies: 1, or the list in
+// FERRY_FAMILY_SEEDS (comma-separated) for the figures of
+// docs/error-model.md.
+func familySeeds(t *testing.T) []uint64 {
+	env := os.Getenv("FERRY_FAMILY_SEEDS")
+	if env == "" {
+		return []uint64{1}
+	}
+	var seeds []uint64
+	for _, f := range strings.Split(env, ",") {
+		v, err := strconv.ParseUint(strings.TrimSpace(f), 10, 64)
+		if err != nil {
+			t.Fatalf("FERRY_FAMILY_SEEDS: %v", err)
+		}
+		seeds = append(seeds, v)
+	}
+	return seeds
+}
+
+// TestFamilies runs the check, fit and map on every scenario of
+// register/internal/families (six clean sets, ten with two planted
+// mistakes each) and holds them to what docs/error-model.md records: few
+// good landmarks flagged, the planted mistakes found, the cells' error no
+// worse than with the mistakes removed by hand, and r95 coverage near 95 %.
+// Run with -v to see the table.
+func TestFamilies(t *testing.T) {
+	if testing.Short() {
+		t.Skip("Monte Carlo over the families")
+	}
+	seeds := familySeeds(t)
+	type pooled struct{ inside, total int }
+	for _, group := range []struct {
+		name  string
+		specs []families.Spec
+	}{{"clean", families.Clean()}, {"mistakes", families.Mistakes()}} {
+		falseFl, found, wrong := 0, 0, 0
+		pool := map[string]*pooled{StatusOK: {}, StatusExtrapolated: {}}
+		var covs []float64
+		for _, seed := range seeds {
+			for _, spec := range group.specs {
+				o := evaluateFamily(t, families.Draw(spec, seed))
+				t.Log(o)
+				falseFl += o.falseFl
+				found += o.found
+				wrong += o.wrong
+				for st, p := range pool {
+					p.inside += o.inside[st]
+					p.total += o.total[st]
+					if c := o.coverage(st); !math.IsNaN(c) {
+						covs = append(covs, c)
+					}
+				}
+				if o.found == o.wrong && o.p95 > 1.05*o.p95Hand+0.1 {
+					t.Errorf("%s: the cells' 95th-percentile error %.2f µm, with the mistakes removed by hand %.2f µm", o.name, o.p95, o.p95Hand)
+				}
+			}
+		}
+		sort.Float64s(covs)
+		t.Logf("%s over seeds %v: %d good landmarks flagged, %d of %d mistakes found; r95 coverage per scenario and status from %.3f to %.3f, median %.3f",
+			group.name, seeds, falseFl, found, wrong, covs[0], covs[len(covs)-1], covs[len(covs)/2])
+		runs := len(seeds)
+		switch group.name {
+		// The bounds are what docs/error-model.md records for seeds 1 and
+		// 2, per seed: the issue's targets (one flag over six clean sets,
+		// every mistake found) are not met.
+		case "clean":
+			if falseFl > 2*runs {
+				t.Errorf("%d good landmarks flagged over %d clean sets, want at most %d", falseFl, 6*runs, 2*runs)
+			}
+		case "mistakes":
+			if found < wrong-2*runs || falseFl > 3*runs {
+				t.Errorf("%d of %d mistakes found and %d good landmarks flagged over %d scenarios", found, wrong, falseFl, 10*runs)
+			}
+		}
+		for st, p := range pool {
+			c := float64(p.inside) / float64(p.total)
+			t.Logf("  %s cells: %.3f of %d inside r95", st, c, p.total)
+			if c < 0.88 || c > 0.99 {
+				t.Errorf("%s: %.3f of the %s cells inside r95 pooled over the scenarios, want 0.88 to 0.99", group.name, c, st)
+			}
+		}
+		if med := covs[len(covs)/2]; med < 0.90 || med > 0.99 {
+			t.Errorf("%s: median coverage per scenario %.3f, want 0.90 to 0.99", group.name, med)
+		}
+	}
+}
+
+// fitProblem is the landmark set `ferry fit` fits by default: the flagged
+// landmarks left out (CheckAndFit).
+func fitProblem(s *families.Scenario, a *Assessment) *Problem {
+	return familyProblem(s, func(i int) bool { return a.Landmarks[i].Flag == "" })
+}
