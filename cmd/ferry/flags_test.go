@@ -32,7 +32,7 @@ func TestFlagValidation(t *testing.T) {
 		args []string
 		want []string
 	}{
-		{"unknown model", fit("--model", "bspline"), []string{"--model", `"bspline"`, "affine"}},
+		{"unknown model", fit("--model", "bspline"), []string{"--model", `"bspline"`, "want auto, translation", "affine"}},
 		{"empty model", fit("--model", ""), []string{"--model"}},
 		{"check: unknown model", check("--model", "quadratic"), []string{"--model", `"quadratic"`}},
 		{"negative smoothing", fit("--smoothing", "-1"), []string{"--smoothing", "-1 is negative"}},
@@ -155,6 +155,9 @@ func TestUsageLine(t *testing.T) {
 	}{
 		{[]string{"check"}, "ferry: check: missing LANDMARKS", "usage: ferry check LANDMARKS [flags]"},
 		{[]string{"match", "t.json"}, "ferry: match: missing CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES -o MATCHES.csv [flags]"},
+		{[]string{"match"}, "ferry: match: missing TRANSFORM, CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES"},
+		{[]string{"warp"}, "ferry: warp: missing TRANSFORM and SOURCE_STACK", "usage: ferry warp TRANSFORM SOURCE_STACK -o OUT.tif --voxel X,Y,Z"},
+		{[]string{"warp", "t.json", "s.tif", "-o", "w.tif"}, "ferry: warp: --voxel: the output voxel size X,Y,Z in µm is required", "usage: ferry warp TRANSFORM SOURCE_STACK"},
 		{[]string{"export"}, "ferry: export: missing TRANSFORM", "usage: ferry export TRANSFORM -o DIR"},
 		{[]string{"fit", "a.csv", "b.csv"}, "ferry: fit: 2 arguments given (a.csv b.csv), want 1 (LANDMARKS)", "usage: ferry fit LANDMARKS"},
 		{[]string{"fit", "a.csv", "--smooth", "1"}, "ferry: fit: unknown flag: --smooth", "usage: ferry fit LANDMARKS"},

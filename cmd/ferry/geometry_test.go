@@ -131,7 +131,7 @@ func TestWarpCommand(t *testing.T) {
 		args []string
 		want string
 	}{
-		{"bounds the stack does not reach", []string{"--voxel", "5,5,5", "--bounds", "5000,5000,5000,5100,5100,5100"}, "does not reach --bounds"},
+		{"bounds the stack does not reach", []string{"--voxel", "5,5,5", "--bounds", "5000,5000,5000,5100,5100,5100"}, "check the voxel sizes, --bounds and the transform"},
 		{"no voxel size", nil, "--voxel"},
 		{"bounds of five numbers", []string{"--voxel", "5,5,5", "--bounds", "0,0,0,1,1"}, "want 6 numbers"},
 	} {

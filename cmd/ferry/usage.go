@@ -19,7 +19,7 @@ func exactArgs(names ...string) cobra.PositionalArgs {
 	return func(cmd *cobra.Command, args []string) error {
 		switch {
 		case len(args) < len(names):
-			return usageError(cmd, "missing %s", strings.Join(names[len(args):], " and "))
+			return usageError(cmd, "missing %s", listed(names[len(args):]))
 		case len(args) > len(names):
 			return usageError(cmd, "%d arguments given (%s), want %d (%s)", len(args), strings.Join(args, " "), len(names), strings.Join(names, " "))
 		}
@@ -48,4 +48,12 @@ func noArgs(cmd *cobra.Command, args []string) error {
 // flagError adds the usage line to a flag that cobra could not parse.
 func flagError(cmd *cobra.Command, err error) error {
 	return usageError(cmd, "%v", err)
+}
+
+// listed joins names as a person writes a list: "A", "A and B", "A, B and C".
+func listed(names []string) string {
+	if len(names) < 2 {
+		return strings.Join(names, "")
+	}
+	return strings.Join(names[:len(names)-1], ", ") + " and " + names[len(names)-1]
 }

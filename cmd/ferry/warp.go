@@ -34,7 +34,7 @@ frame, voxel size, origin, interpolation and provenance). The stack is read
 and written page by page, so a stack larger than memory works; the input
 stack's geometry comes from its file or the voxel and origin flags, as for
 resample.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args[0], args[1]); err != nil {
 				return err
@@ -44,7 +44,7 @@ resample.`,
 				return err
 			}
 			if voxel == "" {
-				return fmt.Errorf("--voxel: the output voxel size X,Y,Z in µm is required")
+				return usageError(cmd, "--voxel: the output voxel size X,Y,Z in µm is required")
 			}
 			opt := imaging.WarpOptions{Inverse: inverse, MemoryBytes: int64(memoryGiB * (1 << 30))}
 			var err error

@@ -26,14 +26,14 @@ type Pages interface {
 func OpenPages(path string) (Pages, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
 		return openFolderPages(path)
 	}
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	head := make([]byte, 8)
 	n, _ := f.ReadAt(head, 0)

@@ -196,8 +196,14 @@ func NoOverlap(stack *Stack, g Geometry, t transform.Transform, inverse bool, ou
 	if ok {
 		where = "x " + span(lo[0], hi[0]) + ", y " + span(lo[1], hi[1]) + ", z " + span(lo[2], hi[2]) + " µm"
 	}
-	return fmt.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, --target-z and the transform",
-		stack.name(), g.Describe(), out, where, out, span(outLo[0], outHi[0]), span(outLo[1], outHi[1]), span(outLo[2], outHi[2]))
+	// The flag that placed the output is the one to check: warp's
+	// --bounds, or the page (--target-z) of resample's and overlay's plane.
+	placed := "--target-z"
+	if out == "--bounds" {
+		placed = "--bounds"
+	}
+	return fmt.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, %s and the transform",
+		stack.name(), g.Describe(), out, where, out, span(outLo[0], outHi[0]), span(outLo[1], outHi[1]), span(outLo[2], outHi[2]), placed)
 }
 
 func span(a, b float64) string {

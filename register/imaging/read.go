@@ -3,11 +3,13 @@ package imaging
 import (
 	"bytes"
 	"cmp"
+	"errors"
 	"fmt"
 	"image"
 	"image/color"
 	"image/png"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
@@ -39,7 +41,7 @@ var pngSignature = []byte("\x89PNG\r\n\x1a\n")
 func ReadStack(path string) (*Stack, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
 		return readFolder(path)
@@ -58,7 +60,7 @@ func ReadStack(path string) (*Stack, error) {
 func ReadPlane(path string) (*Stack, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
 		return nil, fmt.Errorf("imaging: %s: is a folder; want one TIFF or PNG plane", path)
@@ -70,7 +72,7 @@ func ReadPlane(path string) (*Stack, error) {
 func readFile(path string, onePlane bool) (*Stack, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	defer f.Close()
 	info, err := f.Stat()
@@ -268,3 +270,14 @@ func naturalCompare(a, b string) int {
 }
 
 func isDigit(c byte) bool { return '0' <= c && c <= '9' }
+
+// openError says that the file at path could not be opened, as the other
+// input readers say it: the path first, then the reason without the
+// system call's name.
+func openError(path string, err error) error {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		err = pe.Err
+	}
+	return fmt.Errorf("%s: cannot open: %w", path, err)
+}
