@@ -156,6 +156,7 @@ func TestUsageLine(t *testing.T) {
 		{[]string{"check"}, "ferry: check: missing LANDMARKS", "usage: ferry check LANDMARKS [flags]"},
 		{[]string{"match", "t.json"}, "ferry: match: missing CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES -o MATCHES.csv [flags]"},
 		{[]string{"match"}, "ferry: match: missing TRANSFORM, CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES"},
+		{[]string{"export", "t.json", "-o", "d", "--bounds", "0,0,0,1,1,1", "--margin", "3"}, "ferry: export: --bounds and --margin: give one (--bounds is the field's whole box)", "usage: ferry export TRANSFORM -o DIR"},
 		{[]string{"warp"}, "ferry: warp: missing TRANSFORM and SOURCE_STACK", "usage: ferry warp TRANSFORM SOURCE_STACK -o OUT.tif --voxel X,Y,Z"},
 		{[]string{"warp", "t.json", "s.tif", "-o", "w.tif"}, "ferry: warp: --voxel: the output voxel size X,Y,Z in µm is required", "usage: ferry warp TRANSFORM SOURCE_STACK"},
 		{[]string{"export"}, "ferry: export: missing TRANSFORM", "usage: ferry export TRANSFORM -o DIR"},
