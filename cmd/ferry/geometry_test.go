@@ -147,3 +147,24 @@ func TestWarpCommand(t *testing.T) {
 		})
 	}
 }
+
+// The overlay's printout names each mark colour with its status and count,
+// the good statuses first.
+func TestMarkKey(t *testing.T) {
+	for _, tc := range []struct {
+		statuses []string
+		want     string
+	}{
+		{nil, ""},
+		{[]string{"extrapolated", "ok", "ok"}, "; marks: yellow ok (2), vermillion extrapolated (1)"},
+		{[]string{"folded", "ambiguous", "isolated", "matched"}, "; marks: yellow matched (1), reddish purple ambiguous (1), vermillion folded (1), vermillion isolated (1)"},
+	} {
+		var marks []imaging.Mark
+		for _, st := range tc.statuses {
+			marks = append(marks, imaging.Mark{Status: st})
+		}
+		if got := markKey(marks); got != tc.want {
+			t.Errorf("markKey(%v) = %q, want %q", tc.statuses, got, tc.want)
+		}
+	}
+}

@@ -1,8 +1,10 @@
 package main
 
 import (
+	"cmp"
 	"fmt"
 	"io"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -240,6 +242,7 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", job.describe(rep), len(marks), f.out)
+			fprintf(cmd.OutOrStdout(), "In the image: %s sky blue, %s orange, pale where both are bright%s.\n", job.planePath, job.stack.Path, markKey(marks))
 			return nil
 		},
 	}
@@ -300,4 +303,43 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 		}
 	}
 	return imaging.PlaneMarks(pos, reach, states, job.grid), nil
+}
+
+// markKey says which colour marks which status, with the count of each,
+// the good statuses first: "; marks: yellow ok (30), vermillion
+// extrapolated (26)", or "" without marks.
+func markKey(marks []imaging.Mark) string {
+	names := map[imaging.Colour]string{imaging.Yellow: "yellow", imaging.ReddishPurple: "reddish purple", imaging.Vermillion: "vermillion"}
+	var order []string
+	count := map[string]int{}
+	for _, m := range marks {
+		if count[m.Status] == 0 {
+			order = append(order, m.Status)
+		}
+		count[m.Status]++
+	}
+	if len(order) == 0 {
+		return ""
+	}
+	rank := func(st string) int {
+		switch imaging.MarkColour(st) {
+		case imaging.Yellow:
+			return 0
+		case imaging.ReddishPurple:
+			return 1
+		}
+		return 2
+	}
+	slices.SortStableFunc(order, func(a, b string) int {
+		return cmp.Or(cmp.Compare(rank(a), rank(b)), strings.Compare(a, b))
+	})
+	parts := make([]string, len(order))
+	for i, st := range order {
+		label := st
+		if label == "" {
+			label = "no status"
+		}
+		parts[i] = fmt.Sprintf("%s %s (%d)", names[imaging.MarkColour(st)], label, count[st])
+	}
+	return "; marks: " + strings.Join(parts, ", ")
 }
