@@ -10,7 +10,27 @@ import (
 // usageError is a mistake on the command line: its message, then the
 // command's usage line, so that the user sees at once what to type.
 func usageError(cmd *cobra.Command, format string, a ...any) error {
+	if !cmd.HasParent() {
+		// ferry itself: the message is already prefixed "ferry: ".
+		return fmt.Errorf("%s\n%s", fmt.Sprintf(format, a...), rootUsage)
+	}
 	return fmt.Errorf("%s: %s\nusage: %s", cmd.Name(), fmt.Sprintf(format, a...), cmd.UseLine())
+}
+
+// rootUsage is the usage line of ferry itself.
+const rootUsage = "usage: ferry COMMAND [flags] (ferry --help lists the commands)"
+
+// rootArgs refuses a word that names no command, with the commands it
+// may have meant: ferry itself takes no arguments.
+func rootArgs(cmd *cobra.Command, args []string) error {
+	if len(args) == 0 {
+		return nil
+	}
+	msg := fmt.Sprintf("unknown command %q", args[0])
+	if near := cmd.SuggestionsFor(args[0]); len(near) > 0 {
+		msg += fmt.Sprintf(": did you mean %s?", strings.ReplaceAll(listed(near), " and ", " or "))
+	}
+	return usageError(cmd, "%s", msg)
 }
 
 // exactArgs takes exactly the arguments named, and names the missing ones
