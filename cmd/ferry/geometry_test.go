@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -166,5 +167,53 @@ func TestMarkKey(t *testing.T) {
 		if got := markKey(marks); got != tc.want {
 			t.Errorf("markKey(%v) = %q, want %q", tc.statuses, got, tc.want)
 		}
+	}
+}
+
+// warp reads a folder of planes as it reads the multi-page TIFF they came
+// from, and its record names the folder with a checksum of its planes
+// (a folder once made warp write the image and then fail on the record).
+func TestWarpFolderOfPlanes(t *testing.T) {
+	sc := newScenarioFixture(t)
+	s, err := imaging.ReadStack(sc.stack)
+	if err != nil {
+		t.Fatal(err)
+	}
+	folder := filepath.Join(t.TempDir(), "planes")
+	if err := os.Mkdir(folder, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	for k := range s.Depth {
+		page, err := s.Page(k)
+		if err != nil {
+			t.Fatal(err)
+		}
+		page.Geometry, page.Path = imaging.Geometry{}, ""
+		// Natural order: z2 before z10.
+		if err := imaging.WriteTIFF(filepath.Join(folder, "z"+itoa(k)+".tif"), page); err != nil {
+			t.Fatal(err)
+		}
+	}
+	dir := t.TempDir()
+	fromFile, fromFolder := filepath.Join(dir, "file.tif"), filepath.Join(dir, "folder.tif")
+	mustSucceed(t, "warp", sc.transform, sc.stack, "--voxel", "6,6,10", "-o", fromFile)
+	mustSucceed(t, "warp", sc.transform, folder, "--voxel", "6,6,10", "--source-voxel", sc.sourceVox, "-o", fromFolder)
+	a, err := imaging.ReadStack(fromFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := imaging.ReadStack(fromFolder)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Width != b.Width || a.Height != b.Height || a.Depth != b.Depth || !slices.Equal(a.Data, b.Data) {
+		t.Errorf("the folder's warp (%d × %d × %d) differs from the file's (%d × %d × %d)", b.Width, b.Height, b.Depth, a.Width, a.Height, a.Depth)
+	}
+	rec, err := os.ReadFile(fromFolder + ".json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(rec), folder+" sha256:") {
+		t.Errorf("the record does not name the folder with its checksum:\n%s", rec)
 	}
 }

@@ -92,15 +92,23 @@ resample.`,
 			if err := grid.CheckWritable(out, h.Bits); err != nil {
 				return err
 			}
+			// The inputs are read for the record before anything is
+			// written, so that an unreadable one leaves no image behind.
+			inputs, err := inputsOf(args[0])
+			if err != nil {
+				return err
+			}
+			stack, err := stackInput(args[1])
+			if err != nil {
+				return err
+			}
+			inputs = append(inputs, stack)
 			rep, err := imaging.Warp(cmd.Context(), out, file.Transform, pages, geom, grid, opt, progress.Terminal(os.Stderr))
 			if err != nil {
 				return err
 			}
-			inputs, err := inputsOf(args[0], args[1])
-			if err == nil {
-				prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
-				err = imaging.WriteWarpRecord(cmd.Context(), sidecar, imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line()))
-			}
+			prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
+			err = imaging.WriteWarpRecord(cmd.Context(), sidecar, imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line()))
 			if err != nil {
 				// OUT.tif is whole and records its own geometry; a
 				// record left from an earlier run would describe

@@ -96,7 +96,30 @@ type folderPages struct {
 	header *Stack
 }
 
-func openFolderPages(dir string) (Pages, error) {
+// StackFiles are the files a stack is read from: path itself, or for a
+// folder its .tif, .tiff and .png files in natural name order (the pages'
+// order), so that a caller can record what the stack was made of.
+func StackFiles(path string) ([]string, error) {
+	info, err := os.Stat(path)
+	if err != nil {
+		return nil, openError(path, err)
+	}
+	if !info.IsDir() {
+		return []string{path}, nil
+	}
+	names, err := planeNames(path)
+	if err != nil {
+		return nil, err
+	}
+	files := make([]string, len(names))
+	for i, n := range names {
+		files[i] = filepath.Join(path, n)
+	}
+	return files, nil
+}
+
+// planeNames are the names of a folder's plane files in natural order.
+func planeNames(dir string) ([]string, error) {
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("imaging: %w", err)
@@ -113,6 +136,14 @@ func openFolderPages(dir string) (Pages, error) {
 		return nil, fmt.Errorf("imaging: %s: the folder holds no .tif, .tiff or .png files", dir)
 	}
 	slices.SortFunc(names, naturalCompare)
+	return names, nil
+}
+
+func openFolderPages(dir string) (Pages, error) {
+	names, err := planeNames(dir)
+	if err != nil {
+		return nil, err
+	}
 	p0, err := readFile(filepath.Join(dir, names[0]), true)
 	if err != nil {
 		return nil, err
