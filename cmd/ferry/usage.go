@@ -1,10 +1,12 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"strings"
 
 	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
 )
 
 // usageError is a mistake on the command line: its message, then the
@@ -65,8 +67,22 @@ func noArgs(cmd *cobra.Command, args []string) error {
 	return nil
 }
 
-// flagError adds the usage line to a flag that cobra could not parse.
+// flagError adds the usage line to a flag that cobra could not parse. A
+// value of the wrong kind is said in the user's terms, not strconv's.
 func flagError(cmd *cobra.Command, err error) error {
+	var bad *pflag.InvalidValueError
+	if errors.As(err, &bad) {
+		want := map[string]string{
+			"float64": "a number",
+			"int":     "a whole number",
+			"uint64":  "a whole number, 0 or more",
+			"bool":    "true or false",
+		}[bad.GetFlag().Value.Type()]
+		if want == "" {
+			want = "a " + bad.GetFlag().Value.Type()
+		}
+		return usageError(cmd, "--%s %q: want %s", bad.GetFlag().Name, bad.GetValue(), want)
+	}
 	return usageError(cmd, "%v", err)
 }
 

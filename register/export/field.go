@@ -170,7 +170,7 @@ func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t 
 	n := g.Samples() * g.Dim
 	fd := &Field{Grid: g, Affine: NewHomogeneous(a, t), Total: make([]float32, n), Residual: make([]float32, n)}
 	rep = progress.Of(rep)
-	rep.Step("sampling the displacement field", g.Size[1]*g.Size[2])
+	rep.Step("sampling the displacement field: rows", g.Size[1]*g.Size[2])
 	defer rep.Finish()
 	rows := g.Size[1] * g.Size[2]
 	transform.ParallelRanges(rows, 1, func(lo, hi int) {

@@ -242,7 +242,7 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 	}
 
 	pr = progress.Of(pr)
-	pr.Step("warping", grid.Size[2])
+	pr.Step("warping: output pages", grid.Size[2])
 	defer pr.Finish()
 	err := outfile.Write(ctx, path, func(fw io.Writer) error {
 		tw, err := newTIFFWriter(fw, l)
