@@ -37,7 +37,7 @@ func TestImageGeometryFromFiles(t *testing.T) {
 	dir := t.TempDir()
 	out := filepath.Join(dir, "overlay.png")
 	o := mustSucceed(t, "overlay", sc.transform, sc.stack, sc.plane, "-o", out)
-	for _, w := range []string{"voxels 3 × 3 × 5 µm (ImageJ metadata)", "voxels 1 × 1 × 1 µm (ImageJ metadata)"} {
+	for _, w := range []string{"voxels 3 × 3 × 5 µm from ImageJ metadata", "voxels 1 × 1 × 1 µm from ImageJ metadata"} {
 		if !strings.Contains(o.stdout, w) {
 			t.Errorf("stdout %q does not say %q", o.stdout, w)
 		}

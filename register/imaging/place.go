@@ -78,7 +78,8 @@ func (g Geometry) Describe() string {
 		s = fmt.Sprintf("pixels %s × %s µm", num(v[0]), num(v[1]))
 	}
 	if g.From != "" {
-		s += " (" + g.From + ")"
+		// No parentheses: the commands put the whole description in some.
+		s += " from " + g.From
 	}
 	if o := g.OriginUM; o != (transform.Vec{}) {
 		s += fmt.Sprintf(", voxel (0, 0, 0) at (%s, %s, %s) µm", num(o[0]), num(o[1]), num(o[2]))
