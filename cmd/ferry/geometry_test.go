@@ -217,3 +217,20 @@ func TestWarpFolderOfPlanes(t *testing.T) {
 		t.Errorf("the record does not name the folder with its checksum:\n%s", rec)
 	}
 }
+
+// A plane that the stack reaches only in a corner is drawn, with a warning
+// on stderr naming what to check; a plane it covers draws no warning.
+func TestOverlayWarnsWhenMostlyOutside(t *testing.T) {
+	sc := newScenarioFixture(t)
+	dir := t.TempDir()
+	good := ferry(t, "overlay", sc.transform, sc.stack, sc.plane, "-o", filepath.Join(dir, "good.png"))
+	if good.code != exitOK || good.stderr != "" {
+		t.Errorf("the scenario's own overlay: %v", good)
+	}
+	// Pixels ten times too large: the plane grows tenfold along x and y,
+	// and the stack covers about 1 % of it.
+	o := ferry(t, "overlay", sc.transform, sc.stack, sc.plane, "--target-voxel", "10,10,1", "-o", filepath.Join(dir, "large.png"))
+	if o.code != exitOK || !strings.Contains(o.stderr, "ferry: warning: ") || !strings.Contains(o.stderr, "% of the plane lies outside the stack") {
+		t.Errorf("a plane mostly outside the stack: %v", o)
+	}
+}

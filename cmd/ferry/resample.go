@@ -196,6 +196,7 @@ where the stack maps.`,
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", job.describe(rep), f.out)
+			warnMostlyOutside(cmd, rep)
 			return nil
 		},
 	}
@@ -243,6 +244,7 @@ marked, coloured by status. Voxel sizes, origins and --target-z as for resample.
 			}
 			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", job.describe(rep), len(marks), f.out)
 			fprintf(cmd.OutOrStdout(), "In the image: %s sky blue, %s orange, pale where both are bright%s.\n", job.planePath, job.stack.Path, markKey(marks))
+			warnMostlyOutside(cmd, rep)
 			return nil
 		},
 	}
@@ -342,4 +344,17 @@ func markKey(marks []imaging.Mark) string {
 		parts[i] = fmt.Sprintf("%s %s (%d)", names[imaging.MarkColour(st)], label, count[st])
 	}
 	return "; marks: " + strings.Join(parts, ", ")
+}
+
+// mostlyOutside is the share of a plane outside the stack from which the
+// result is more likely a wrong voxel size or page than a real edge.
+const mostlyOutside = 0.9
+
+// warnMostlyOutside says on stderr when the stack reached only a sliver of
+// the plane: no pixel at all is refused (NoOverlap), but a nearly empty
+// image deserves a word too.
+func warnMostlyOutside(cmd *cobra.Command, rep imaging.ResampleReport) {
+	if share := rep.OutsideShare(); share > mostlyOutside {
+		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %.1f %% of the plane lies outside the stack; if that is unexpected, check the voxel sizes, origins and --target-z\n", 100*share)
+	}
 }
