@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 
 	"ferry/progress"
@@ -213,6 +214,9 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		m.Files = append(m.Files, PointsFile, register.SidecarPath(PointsFile))
 	}
 	res.Files = m.Files
+	if err := refuseStale(dir, m.Files); err != nil {
+		return nil, err
+	}
 	err = outfile.WriteDir(ctx, dir, func(tmp string) error {
 		manifest, err := json.MarshalIndent(m, "", "  ")
 		if err != nil {
@@ -252,6 +256,23 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		return nil, err
 	}
 	return res, nil
+}
+
+// refuseStale refuses to write into a folder that holds one of the files
+// an export can write but this one does not: left beside the new files, an
+// earlier export's displacement field or point list would pass for this
+// one's. Nothing is removed without the user's word.
+func refuseStale(dir string, writing []string) error {
+	all := []string{ManifestFile, AffineUMFile, AffineVoxelFile, FieldTIFFFile, FieldZarrFile, PointsFile, register.SidecarPath(PointsFile)}
+	for _, name := range all {
+		if slices.Contains(writing, name) {
+			continue
+		}
+		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
+			return fmt.Errorf("%s holds %s, which this export does not write: left beside the new files it would pass for part of them; remove it or export into another folder", dir, name)
+		}
+	}
+	return nil
 }
 
 func sideUnits(side string, voxel *transform.Vec) string {
