@@ -50,7 +50,7 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			for _, m := range mapped {
 				counts[m.Status]++
 			}
-			fmt.Fprintf(cmd.OutOrStdout(), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), out)
+			fmt.Fprintf(cmd.OutOrStdout(), "Mapped %d cells: %s. Wrote %s and %s\n", len(mapped), register.FormatCounts(counts), out, register.SidecarPath(out))
 			return nil
 		},
 	}
