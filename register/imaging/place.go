@@ -131,8 +131,15 @@ func PlaneGrid(like *Stack, g Geometry, targetZ *int) (Grid, int, error) {
 			return grid, 0, fmt.Errorf("--target-z %d: %s is the section at page %s (z = %s µm, %s µm sections), not page %d; leave --target-z out or give the image of page %d",
 				*targetZ, like.name(), num(first), num(g.OriginUM[2]), num(vz), *targetZ, *targetZ)
 		}
-		return grid, 0, fmt.Errorf("--target-z %d is outside %s, which holds pages %s to %s (z = %s to %s µm)",
-			*targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz))
+		// Pages are counted in the volume, from z = 0, not in the file:
+		// say so where the two differ, or "pages 1 to 69" of a 69-page
+		// file reads as a mistake.
+		counted := ""
+		if first != 0 {
+			counted = fmt.Sprintf("; --target-z counts %s µm sections from z = 0, so the file's first page is page %s", num(vz), num(first))
+		}
+		return grid, 0, fmt.Errorf("--target-z %d is outside %s, which holds pages %s to %s (z = %s to %s µm%s)",
+			*targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz), counted)
 	}
 	grid.Origin[2] += float64(k) * vz
 	return grid, k, nil
