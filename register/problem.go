@@ -99,7 +99,8 @@ func ParseModel(s string) (transform.Kind, error) {
 	}
 	k, err := transform.ParseKind(strings.ToLower(strings.TrimSpace(s)))
 	if err != nil {
-		return "", fmt.Errorf("--model: %v", err)
+		// The command line also takes auto, which transform does not know.
+		return "", fmt.Errorf("--model: unknown model %q (want auto, translation, rigid, similarity, affine or tps)", s)
 	}
 	return k, nil
 }

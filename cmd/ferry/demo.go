@@ -71,8 +71,9 @@ landmarks were spoiled). See docs/simulation.md.`,
 			for _, p := range []string{files.Landmarks, files.Cells, files.Candidates, files.TruthCells, files.TruthLandmarks, files.Scenario} {
 				fprintf(w, "  %s\n", p)
 			}
-			fprintf(w, "  %s (in vivo stack, %g×%g×%g µm voxels)\n", stack, ip.SourceVoxelUM[0], ip.SourceVoxelUM[1], ip.SourceVoxelUM[2])
-			fprintf(w, "  %s (EM section at target page %d of %g µm pixels)\n", plane, ip.TargetZ, ip.TargetVoxelUM[0])
+			fprintf(w, "  %s (in vivo stack, voxels %g × %g × %g µm)\n", stack, ip.SourceVoxelUM[0], ip.SourceVoxelUM[1], ip.SourceVoxelUM[2])
+			v := ip.TargetVoxelUM
+			fprintf(w, "  %s (one EM section at z = %g µm, page %d of the EM volume's %g × %g × %g µm voxels)\n", plane, float64(ip.TargetZ)*v[2], ip.TargetZ, v[0], v[1], v[2])
 			return nil
 		},
 	}

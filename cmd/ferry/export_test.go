@@ -27,6 +27,12 @@ func TestExportCommand(t *testing.T) {
 			t.Errorf("%s: %v", f, err)
 		}
 	}
+	// --bounds sets the field's box: from its lower corner, past its upper.
+	boxed := filepath.Join(t.TempDir(), "boxed")
+	o = mustSucceed(t, "export", tps, "--bounds", "-50,-40,-30,450,350,250", "--spacing", "25", "-o", boxed)
+	if !strings.Contains(o.stdout, "21 × 17 × 13 samples, spacing 25 × 25 × 25 µm, over source x -50.0 to 450.0, y -40.0 to 360.0, z -30.0 to 270.0 µm") {
+		t.Errorf("export --bounds printed\n%s", o.stdout)
+	}
 	// Without a target voxel size anywhere the point list cannot be made.
 	dir := t.TempDir()
 	for _, tc := range []struct {
@@ -40,6 +46,8 @@ func TestExportCommand(t *testing.T) {
 		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--mapped", mapped}, []string{"--target-voxel"}},
 		{[]string{"export", tps, "-o", tps}, []string{"is a file, want a folder"}},
 		{[]string{"export", tps}, []string{"-o", "required"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--bounds", "0,0,0,10,10"}, []string{"--bounds", "6 numbers"}},
+		{[]string{"export", tps, "-o", filepath.Join(dir, "e"), "--bounds", "0,0,10,10,10,0"}, []string{"--bounds", "upper corner"}},
 	} {
 		before := snapshot(t, dir)
 		oneLine(t, ferry(t, tc.args...), tc.want...)

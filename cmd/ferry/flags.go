@@ -1,6 +1,8 @@
 package main
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"fmt"
 	"io"
 	"os"
@@ -13,6 +15,7 @@ import (
 	"ferry/landmarks"
 	"ferry/progress"
 	"ferry/register"
+	"ferry/register/imaging"
 	"ferry/register/outfile"
 	"ferry/transform"
 )
@@ -221,6 +224,33 @@ func inputsOf(paths ...string) ([]register.Input, error) {
 		in = append(in, register.Input{Path: p, SHA256: sum})
 	}
 	return in, nil
+}
+
+// stackInput records an image stack as an input: a file by its SHA-256, a
+// folder of planes by the SHA-256 of its plane files' bytes one after the
+// other in the stack's page order.
+func stackInput(path string) (register.Input, error) {
+	files, err := imaging.StackFiles(path)
+	if err != nil {
+		return register.Input{}, err
+	}
+	h := sha256.New()
+	for _, name := range files {
+		if err := copyFile(h, name); err != nil {
+			return register.Input{}, fmt.Errorf("cannot read %s: %w", name, err)
+		}
+	}
+	return register.Input{Path: path, SHA256: hex.EncodeToString(h.Sum(nil))}, nil
+}
+
+func copyFile(w io.Writer, path string) error {
+	f, err := os.Open(path)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	_, err = io.Copy(w, f)
+	return err
 }
 
 // requireOutput checks the -o flag: given, and not one of the inputs.

@@ -32,7 +32,7 @@ func TestFlagValidation(t *testing.T) {
 		args []string
 		want []string
 	}{
-		{"unknown model", fit("--model", "bspline"), []string{"--model", `"bspline"`, "affine"}},
+		{"unknown model", fit("--model", "bspline"), []string{"--model", `"bspline"`, "want auto, translation", "affine"}},
 		{"empty model", fit("--model", ""), []string{"--model"}},
 		{"check: unknown model", check("--model", "quadratic"), []string{"--model", `"quadratic"`}},
 		{"negative smoothing", fit("--smoothing", "-1"), []string{"--smoothing", "-1 is negative"}},
@@ -155,6 +155,16 @@ func TestUsageLine(t *testing.T) {
 	}{
 		{[]string{"check"}, "ferry: check: missing LANDMARKS", "usage: ferry check LANDMARKS [flags]"},
 		{[]string{"match", "t.json"}, "ferry: match: missing CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES -o MATCHES.csv [flags]"},
+		{[]string{"match"}, "ferry: match: missing TRANSFORM, CELLS and CANDIDATES", "usage: ferry match TRANSFORM CELLS CANDIDATES"},
+		{[]string{"export", "t.json", "-o", "d", "--bounds", "0,0,0,1,1,1", "--margin", "3"}, "ferry: export: --bounds and --margin: give one (--bounds is the field's whole box)", "usage: ferry export TRANSFORM -o DIR"},
+		{[]string{"wrap", "t.json"}, `ferry: unknown command "wrap": did you mean map or warp?`, "usage: ferry COMMAND [flags] (ferry --help lists the commands)"},
+		{[]string{"frobnicate"}, `ferry: unknown command "frobnicate"`, "usage: ferry COMMAND [flags]"},
+		{[]string{"--bogus"}, "ferry: unknown flag: --bogus", "usage: ferry COMMAND [flags]"},
+		{[]string{"warp", "t.json", "s.tif", "--memory-gib", "abc"}, `ferry: warp: --memory-gib "abc": want a number`, "usage: ferry warp TRANSFORM"},
+		{[]string{"export", "t.json", "--seed", "-1"}, `ferry: export: --seed "-1": want a whole number, 0 or more`, "usage: ferry export TRANSFORM"},
+		{[]string{"overlay", "t.json", "s.tif", "p.tif", "--target-z", "2.5"}, `ferry: overlay: --target-z "2.5": want a whole number`, "usage: ferry overlay TRANSFORM"},
+		{[]string{"warp"}, "ferry: warp: missing TRANSFORM and SOURCE_STACK", "usage: ferry warp TRANSFORM SOURCE_STACK -o OUT.tif --voxel X,Y,Z"},
+		{[]string{"warp", "t.json", "s.tif", "-o", "w.tif"}, "ferry: warp: --voxel: the output voxel size X,Y,Z in µm is required", "usage: ferry warp TRANSFORM SOURCE_STACK"},
 		{[]string{"export"}, "ferry: export: missing TRANSFORM", "usage: ferry export TRANSFORM -o DIR"},
 		{[]string{"fit", "a.csv", "b.csv"}, "ferry: fit: 2 arguments given (a.csv b.csv), want 1 (LANDMARKS)", "usage: ferry fit LANDMARKS"},
 		{[]string{"fit", "a.csv", "--smooth", "1"}, "ferry: fit: unknown flag: --smooth", "usage: ferry fit LANDMARKS"},
@@ -164,6 +174,9 @@ func TestUsageLine(t *testing.T) {
 		if o.code != exitError || len(lines) != 2 || lines[0] != tc.msg || !strings.HasPrefix(lines[1], tc.line) {
 			t.Errorf("ferry %s: exit %d, stderr\n%s\nwant exit 1 with\n%s\n%s…", strings.Join(tc.args, " "), o.code, o.stderr, tc.msg, tc.line)
 		}
+	}
+	if o := ferry(t); o.code != exitOK || !strings.Contains(o.stdout, "Available Commands") {
+		t.Errorf("ferry alone: exit %d, stdout %q; want its help", o.code, o.stdout)
 	}
 	v, w := ferry(t, "--version"), ferry(t, "version")
 	if v.code != exitOK || v.stdout != w.stdout || !strings.HasPrefix(v.stdout, "ferry ") {

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -36,7 +37,7 @@ func TestImageGeometryFromFiles(t *testing.T) {
 	dir := t.TempDir()
 	out := filepath.Join(dir, "overlay.png")
 	o := mustSucceed(t, "overlay", sc.transform, sc.stack, sc.plane, "-o", out)
-	for _, w := range []string{"voxels 3 × 3 × 5 µm (ImageJ metadata)", "voxels 1 × 1 × 1 µm (ImageJ metadata)"} {
+	for _, w := range []string{"voxels 3 × 3 × 5 µm from ImageJ metadata", "voxels 1 × 1 × 1 µm from ImageJ metadata"} {
 		if !strings.Contains(o.stdout, w) {
 			t.Errorf("stdout %q does not say %q", o.stdout, w)
 		}
@@ -131,7 +132,7 @@ func TestWarpCommand(t *testing.T) {
 		args []string
 		want string
 	}{
-		{"bounds the stack does not reach", []string{"--voxel", "5,5,5", "--bounds", "5000,5000,5000,5100,5100,5100"}, "does not reach --bounds"},
+		{"bounds the stack does not reach", []string{"--voxel", "5,5,5", "--bounds", "5000,5000,5000,5100,5100,5100"}, "check the voxel sizes, --bounds and the transform"},
 		{"no voxel size", nil, "--voxel"},
 		{"bounds of five numbers", []string{"--voxel", "5,5,5", "--bounds", "0,0,0,1,1"}, "want 6 numbers"},
 	} {
@@ -145,5 +146,91 @@ func TestWarpCommand(t *testing.T) {
 				t.Errorf("a refused warp wrote %d files", len(entries))
 			}
 		})
+	}
+}
+
+// The overlay's printout names each mark colour with its status and count,
+// the good statuses first.
+func TestMarkKey(t *testing.T) {
+	for _, tc := range []struct {
+		statuses []string
+		want     string
+	}{
+		{nil, ""},
+		{[]string{"extrapolated", "ok", "ok"}, "; marks: yellow ok (2), vermillion extrapolated (1)"},
+		{[]string{"folded", "ambiguous", "isolated", "matched"}, "; marks: yellow matched (1), reddish purple ambiguous (1), vermillion folded (1), vermillion isolated (1)"},
+	} {
+		var marks []imaging.Mark
+		for _, st := range tc.statuses {
+			marks = append(marks, imaging.Mark{Status: st})
+		}
+		if got := markKey(marks); got != tc.want {
+			t.Errorf("markKey(%v) = %q, want %q", tc.statuses, got, tc.want)
+		}
+	}
+}
+
+// warp reads a folder of planes as it reads the multi-page TIFF they came
+// from, and its record names the folder with a checksum of its planes
+// (a folder once made warp write the image and then fail on the record).
+func TestWarpFolderOfPlanes(t *testing.T) {
+	sc := newScenarioFixture(t)
+	s, err := imaging.ReadStack(sc.stack)
+	if err != nil {
+		t.Fatal(err)
+	}
+	folder := filepath.Join(t.TempDir(), "planes")
+	if err := os.Mkdir(folder, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	for k := range s.Depth {
+		page, err := s.Page(k)
+		if err != nil {
+			t.Fatal(err)
+		}
+		page.Geometry, page.Path = imaging.Geometry{}, ""
+		// Natural order: z2 before z10.
+		if err := imaging.WriteTIFF(filepath.Join(folder, "z"+itoa(k)+".tif"), page); err != nil {
+			t.Fatal(err)
+		}
+	}
+	dir := t.TempDir()
+	fromFile, fromFolder := filepath.Join(dir, "file.tif"), filepath.Join(dir, "folder.tif")
+	mustSucceed(t, "warp", sc.transform, sc.stack, "--voxel", "6,6,10", "-o", fromFile)
+	mustSucceed(t, "warp", sc.transform, folder, "--voxel", "6,6,10", "--source-voxel", sc.sourceVox, "-o", fromFolder)
+	a, err := imaging.ReadStack(fromFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := imaging.ReadStack(fromFolder)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Width != b.Width || a.Height != b.Height || a.Depth != b.Depth || !slices.Equal(a.Data, b.Data) {
+		t.Errorf("the folder's warp (%d × %d × %d) differs from the file's (%d × %d × %d)", b.Width, b.Height, b.Depth, a.Width, a.Height, a.Depth)
+	}
+	rec, err := os.ReadFile(fromFolder + ".json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(rec), folder+" sha256:") {
+		t.Errorf("the record does not name the folder with its checksum:\n%s", rec)
+	}
+}
+
+// A plane that the stack reaches only in a corner is drawn, with a warning
+// on stderr naming what to check; a plane it covers draws no warning.
+func TestOverlayWarnsWhenMostlyOutside(t *testing.T) {
+	sc := newScenarioFixture(t)
+	dir := t.TempDir()
+	good := ferry(t, "overlay", sc.transform, sc.stack, sc.plane, "-o", filepath.Join(dir, "good.png"))
+	if good.code != exitOK || good.stderr != "" {
+		t.Errorf("the scenario's own overlay: %v", good)
+	}
+	// Pixels ten times too large: the plane grows tenfold along x and y,
+	// and the stack covers about 1 % of it.
+	o := ferry(t, "overlay", sc.transform, sc.stack, sc.plane, "--target-voxel", "10,10,1", "-o", filepath.Join(dir, "large.png"))
+	if o.code != exitOK || !strings.Contains(o.stderr, "ferry: warning: ") || !strings.Contains(o.stderr, "% of the plane lies outside the stack") {
+		t.Errorf("a plane mostly outside the stack: %v", o)
 	}
 }

@@ -10,6 +10,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/outfile"
 	"ferry/transform"
 )
 
@@ -62,7 +63,11 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			for _, m := range mapped {
 				counts[m.Status]++
 			}
-			fmt.Fprintf(summaryWriter(cmd, out), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), outputName(out))
+			wrote := outputName(out)
+			if out != stdoutName && !outfile.IsStream(out) {
+				wrote += " and " + register.SidecarPath(out)
+			}
+			fmt.Fprintf(summaryWriter(cmd, out), "Mapped %d cells: %s. Wrote %s\n", len(mapped), register.FormatCounts(counts), wrote)
 			return nil
 		},
 	}

@@ -1,11 +1,13 @@
 package main
 
 import (
+	"cmp"
 	"encoding/csv"
 	"fmt"
 	"io"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -209,6 +211,7 @@ where the stack maps.`,
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Resampled %s. Wrote %s\n", job.describe(rep), f.out)
+			warnMostlyOutside(cmd, rep)
 			return nil
 		},
 	}
@@ -263,6 +266,8 @@ scale bar in µm is drawn. Voxel sizes, origins and --target-z as for resample.`
 				return err
 			}
 			fprintf(cmd.OutOrStdout(), "Overlay of %s, %d cells marked. Wrote %s\n", job.describe(rep), len(marks), f.out)
+			fprintf(cmd.OutOrStdout(), "In the image: %s sky blue, %s orange, pale where both are bright%s.\n", job.planePath, job.stack.Path, markKey(marks))
+			warnMostlyOutside(cmd, rep)
 			return nil
 		},
 	}
@@ -417,4 +422,56 @@ func imageFormat(out, def string, allowed ...string) (string, error) {
 		names = append(names, map[string]string{"tiff": ".tif or .tiff", "png": ".png"}[a])
 	}
 	return "", fmt.Errorf("-o %s: this command writes %s images: name the output %s", out, strings.Join(kinds, " or "), strings.Join(names, " or "))
+}
+
+// markKey says which colour marks which status, with the count of each,
+// the good statuses first: "; marks: yellow ok (30), vermillion
+// extrapolated (26)", or "" without marks.
+func markKey(marks []imaging.Mark) string {
+	names := map[imaging.Colour]string{imaging.Yellow: "yellow", imaging.ReddishPurple: "reddish purple", imaging.Vermillion: "vermillion"}
+	var order []string
+	count := map[string]int{}
+	for _, m := range marks {
+		if count[m.Status] == 0 {
+			order = append(order, m.Status)
+		}
+		count[m.Status]++
+	}
+	if len(order) == 0 {
+		return ""
+	}
+	rank := func(st string) int {
+		switch imaging.MarkColour(st) {
+		case imaging.Yellow:
+			return 0
+		case imaging.ReddishPurple:
+			return 1
+		}
+		return 2
+	}
+	slices.SortStableFunc(order, func(a, b string) int {
+		return cmp.Or(cmp.Compare(rank(a), rank(b)), strings.Compare(a, b))
+	})
+	parts := make([]string, len(order))
+	for i, st := range order {
+		label := st
+		if label == "" {
+			label = "no status"
+		}
+		parts[i] = fmt.Sprintf("%s %s (%d)", names[imaging.MarkColour(st)], label, count[st])
+	}
+	return "; marks: " + strings.Join(parts, ", ")
+}
+
+// mostlyOutside is the share of a plane outside the stack from which the
+// result is more likely a wrong voxel size or page than a real edge.
+const mostlyOutside = 0.9
+
+// warnMostlyOutside says on stderr when the stack reached only a sliver of
+// the plane: no pixel at all is refused (NoOverlap), but a nearly empty
+// image deserves a word too.
+func warnMostlyOutside(cmd *cobra.Command, rep imaging.ResampleReport) {
+	if share := rep.OutsideShare(); share > mostlyOutside {
+		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %.1f %% of the plane lies outside the stack; if that is unexpected, check the voxel sizes, origins and --target-z\n", 100*share)
+	}
 }

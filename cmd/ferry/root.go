@@ -20,9 +20,14 @@ matches them to candidate somata. Coordinates are micrometres unless voxel
 sizes are given; every error is in micrometres.
 
 Results are for research and must be checked by eye before tracing.`,
-		SilenceUsage:  true,
-		SilenceErrors: true,
-		Version:       register.Version,
+		// A word that names no command is a usage mistake (rootArgs); with
+		// none, ferry prints its help.
+		Args:                       rootArgs,
+		SuggestionsMinimumDistance: 2,
+		RunE:                       func(cmd *cobra.Command, _ []string) error { return cmd.Help() },
+		SilenceUsage:               true,
+		SilenceErrors:              true,
+		Version:                    register.Version,
 	}
 	// --version prints what the version command prints.
 	root.SetVersionTemplate("ferry {{.Version}}\n")

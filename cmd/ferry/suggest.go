@@ -134,7 +134,7 @@ func writeSuggestions(w io.Writer, res *suggest.Result, out suggest.Output, path
 	}
 	fmt.Fprintf(w, "Median r95 of the cells now: %.2f µm.\n", res.R95Before)
 	if len(res.Suggestions) == 0 {
-		fmt.Fprintf(w, "No location lowers it. Wrote %s\n", path)
+		fmt.Fprintf(w, "No location lowers it. Wrote %s and %s\n", path, register.SidecarPath(path))
 		return
 	}
 	srcUnit, tgtUnit := "µm", "µm"
@@ -158,5 +158,5 @@ func writeSuggestions(w io.Writer, res *suggest.Result, out suggest.Output, path
 		}
 		fmt.Fprintf(w, "%4d  %-28s  %-30s  %12.2f  %8.3f  %12.2f  %s\n", s.Rank, src, dst, s.R95AfterUM, s.GainUM, s.TargetR95UM, s.Status)
 	}
-	fmt.Fprintf(w, "Wrote %s\n", path)
+	fmt.Fprintf(w, "Wrote %s and %s\n", path, register.SidecarPath(path))
 }

@@ -34,7 +34,7 @@ frame, voxel size, origin, interpolation and provenance). The stack is read
 and written page by page, so a stack larger than memory works; the input
 stack's geometry comes from its file or the voxel and origin flags, as for
 resample.`,
-		Args: cobra.ExactArgs(2),
+		Args: exactArgs("TRANSFORM", "SOURCE_STACK"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := requireOutput(out, args[0], args[1]); err != nil {
 				return err
@@ -47,7 +47,7 @@ resample.`,
 				return err
 			}
 			if voxel == "" {
-				return fmt.Errorf("--voxel: the output voxel size X,Y,Z in µm is required")
+				return usageError(cmd, "--voxel: the output voxel size X,Y,Z in µm is required")
 			}
 			opt := imaging.WarpOptions{Inverse: inverse, MemoryBytes: int64(memoryGiB * (1 << 30))}
 			var err error
@@ -95,15 +95,23 @@ resample.`,
 			if err := grid.CheckWritable(out, h.Bits); err != nil {
 				return err
 			}
+			// The inputs are read for the record before anything is
+			// written, so that an unreadable one leaves no image behind.
+			inputs, err := inputsOf(args[0])
+			if err != nil {
+				return err
+			}
+			stack, err := stackInput(args[1])
+			if err != nil {
+				return err
+			}
+			inputs = append(inputs, stack)
 			rep, err := imaging.Warp(cmd.Context(), out, file.Transform, pages, geom, grid, opt, progress.Terminal(os.Stderr))
 			if err != nil {
 				return err
 			}
-			inputs, err := inputsOf(args[0], args[1])
-			if err == nil {
-				prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
-				err = imaging.WriteWarpRecord(cmd.Context(), sidecar, imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line()))
-			}
+			prov := register.Provenance{Command: "warp", Inputs: inputs, Flags: setFlags(cmd)}
+			err = imaging.WriteWarpRecord(cmd.Context(), sidecar, imaging.NewWarpRecord(out, h, geom, grid, opt, rep, prov.Line()))
 			if err != nil {
 				// OUT.tif is whole and records its own geometry; a
 				// record left from an earlier run would describe

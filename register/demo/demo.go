@@ -381,11 +381,17 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	step("exporting the transform for other programs")
 	exportDir := filepath.Join(o.Dir, "export")
 	tv := ip.TargetVoxelUM
+	// The field covers the whole in vivo stack with 10 µm to spare, as
+	// docs/usage.md's walk-through asks, so that a program warping the
+	// stack, or a cell, with it finds a displacement everywhere.
+	fu := scen.Params.FieldUM
+	box := [2]transform.Vec{{-10, -10, -10}, {fu[0] + 10, fu[1] + 10, fu[2] + 10}}
 	if out.Export, err = export.Write(ctx, exportDir, tf, export.Options{
-		Mapped: f.Mapped, TargetVoxel: &tv, Grid: export.GridOptions{Margin: -1}, Seed: 1,
+		Mapped: f.Mapped, TargetVoxel: &tv, Grid: export.GridOptions{Margin: -1, Bounds: &box}, Seed: 1,
 		Provenance: register.Provenance{Command: "export", Inputs: []register.Input{
 			{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Mapped, SHA256: sha(f.Mapped)}},
-			Flags: []string{"--mapped=" + f.Mapped, fmt.Sprintf("--target-voxel=%g,%g,%g", tv[0], tv[1], tv[2])}},
+			Flags: []string{"--mapped=" + f.Mapped, fmt.Sprintf("--target-voxel=%g,%g,%g", tv[0], tv[1], tv[2]),
+				fmt.Sprintf("--bounds=%g,%g,%g,%g,%g,%g", box[0][0], box[0][1], box[0][2], box[1][0], box[1][1], box[1][2])}},
 	}); err != nil {
 		return nil, err
 	}
@@ -606,19 +612,27 @@ func (o *Outcome) Print(w io.Writer) {
 		fmt.Fprintf(w, "5. Exported for other programs into %s: the affine part as 4×4 matrices", e.Dir)
 		if e.Field != nil {
 			g := e.Field.Grid
-			fmt.Fprintf(w, ", the spline's displacement field on %d × %d × %d samples as a TIFF and an OME-Zarr store", g.Size[0], g.Size[1], g.Size[2])
+			end := g.End()
+			fmt.Fprintf(w, ", the spline's displacement field on %d × %d × %d samples over the in vivo stack (source x %.0f to %.0f, y %.0f to %.0f, z %.0f to %.0f µm) as a TIFF and an OME-Zarr store",
+				g.Size[0], g.Size[1], g.Size[2], g.Origin[0], end[0], g.Origin[1], end[1], g.Origin[2], end[2])
 		}
 		fmt.Fprintf(w, ", %d mapped cells as a target-voxel point list.\n", e.Points)
 		if e.Field != nil {
 			fmt.Fprintf(w, "   Sampling error of the field against the spline: %s.\n", e.SequenceError)
 		}
+		for _, n := range e.Notes {
+			fmt.Fprintf(w, "   Note: %s.\n", n)
+		}
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintf(w, "Files in %s:\n", filepath.Dir(o.Files.Transform))
-	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Fitted, o.Files.Transform, o.Files.Pairs, o.Files.Mapped, o.Files.Matches} {
+	for _, p := range []string{o.Files.Landmarks, o.Files.Cells, o.Files.Candidates, o.Files.Fitted, o.Files.Transform, o.Files.Pairs} {
 		if p != "" && (p != o.Files.Fitted || o.Files.Fitted != o.Files.Transform) {
 			fmt.Fprintf(w, "   %s\n", p)
 		}
+	}
+	for _, p := range []string{o.Files.Mapped, o.Files.Matches} {
+		fmt.Fprintf(w, "   %s (what made it: %s)\n", p, filepath.Base(register.SidecarPath(p)))
 	}
 	for _, p := range o.Files.Extra {
 		fmt.Fprintf(w, "   %s\n", p)

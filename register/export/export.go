@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 
 	"ferry/progress"
@@ -184,6 +185,11 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 			n = DefaultCheckPoints
 		}
 		res.TotalError, res.SequenceError = res.Field.Errors(s, g.RandomPoints(n, opt.Seed))
+		if points != nil {
+			if note := points.outsideNote(s, g); note != "" {
+				res.Notes = append(res.Notes, note)
+			}
+		}
 		names, _ := ngffAxes(dim)
 		m.Field = &FieldRecord{
 			OriginUM: g.Origin, SpacingUM: g.Spacing, Size: g.Size,
@@ -208,6 +214,9 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		m.Files = append(m.Files, PointsFile, register.SidecarPath(PointsFile))
 	}
 	res.Files = m.Files
+	if err := refuseStale(dir, m.Files); err != nil {
+		return nil, err
+	}
 	err = outfile.WriteDir(ctx, dir, func(tmp string) error {
 		manifest, err := json.MarshalIndent(m, "", "  ")
 		if err != nil {
@@ -247,6 +256,23 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		return nil, err
 	}
 	return res, nil
+}
+
+// refuseStale refuses to write into a folder that holds one of the files
+// an export can write but this one does not: left beside the new files, an
+// earlier export's displacement field or point list would pass for this
+// one's. Nothing is removed without the user's word.
+func refuseStale(dir string, writing []string) error {
+	all := []string{ManifestFile, AffineUMFile, AffineVoxelFile, FieldTIFFFile, FieldZarrFile, PointsFile, register.SidecarPath(PointsFile)}
+	for _, name := range all {
+		if slices.Contains(writing, name) {
+			continue
+		}
+		if _, err := os.Stat(filepath.Join(dir, name)); err == nil {
+			return fmt.Errorf("%s holds %s, which this export does not write: left beside the new files it would pass for part of them; remove it or export into another folder", dir, name)
+		}
+	}
+	return nil
 }
 
 func sideUnits(side string, voxel *transform.Vec) string {
@@ -306,6 +332,43 @@ func readPoints(path string, fileVoxel, vox *transform.Vec) (*pointList, error) 
 		pl.rows = append(pl.rows, c)
 	}
 	return pl, nil
+}
+
+// outsideNote counts the cells whose source position, t⁻¹ of their mapped
+// position, lies outside the field's grid, where a program applying the
+// field has no displacement to interpolate, and says how to cover them;
+// "" when every cell is inside.
+func (pl *pointList) outsideNote(t transform.Transform, g Grid) string {
+	end := g.End()
+	outside := 0
+	for _, c := range pl.rows {
+		p, err := t.Invert(c.Target)
+		if err != nil {
+			outside++
+			continue
+		}
+		for k := range g.Dim {
+			if !(p[k] >= g.Origin[k]-1e-9 && p[k] <= end[k]+1e-9) {
+				outside++
+				break
+			}
+		}
+	}
+	if outside == 0 {
+		return ""
+	}
+	box := fmt.Sprintf("x %.1f to %.1f, y %.1f to %.1f", g.Origin[0], end[0], g.Origin[1], end[1])
+	flag := "X0,Y0,X1,Y1"
+	if g.Dim == 3 {
+		box += fmt.Sprintf(", z %.1f to %.1f", g.Origin[2], end[2])
+		flag = "X0,Y0,Z0,X1,Y1,Z1"
+	}
+	verb := "lie"
+	if outside == 1 {
+		verb = "lies"
+	}
+	return fmt.Sprintf("%d of the %d mapped cells %s outside the displacement field's box (source %s µm), where a program applying the field finds no displacement; give --bounds %s in source µm (the in vivo stack's box, say) to cover them",
+		outside, len(pl.rows), verb, box, flag)
 }
 
 // PointColumns are the point list's columns in dim dimensions.

@@ -12,6 +12,8 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/landmarks"
+	"ferry/register"
 	"ferry/transform"
 )
 
@@ -204,5 +206,84 @@ func TestWriteZarrLayout(t *testing.T) {
 		if got != want {
 			t.Errorf("sample (%d,%d,%d) component %d: chunk holds %g, field %g", i, j, k, c, got, want)
 		}
+	}
+}
+
+// With Bounds the grid starts at the lower corner and ends at the first
+// sample at or beyond the upper one, whatever the landmarks; a box without
+// room along an axis is refused.
+func TestFieldGridBounds(t *testing.T) {
+	s := testSpline(t, 3)
+	for _, tc := range []struct {
+		name    string
+		lo, hi  transform.Vec
+		spacing float64
+		size    [3]int
+	}{
+		{"the stack's box", transform.Vec{0, 0, 0}, transform.Vec{603, 603, 400}, 20, [3]int{32, 32, 21}},
+		{"whole multiples", transform.Vec{-100, 50, 10}, transform.Vec{100, 150, 30}, 10, [3]int{21, 11, 3}},
+		{"smaller than the landmarks' box", transform.Vec{100, 100, 50}, transform.Vec{105, 101, 51}, 2, [3]int{4, 2, 2}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			b := [2]transform.Vec{tc.lo, tc.hi}
+			g, err := FieldGrid(s, GridOptions{Bounds: &b, Margin: 50, Spacing: transform.Vec{tc.spacing, tc.spacing, tc.spacing}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if g.Origin != tc.lo || g.Size != tc.size {
+				t.Errorf("grid from %v with %v samples, want from %v with %v (the margin does not apply)", g.Origin, g.Size, tc.lo, tc.size)
+			}
+			end := g.End()
+			for k := range 3 {
+				if end[k] < tc.hi[k] || end[k]-tc.spacing >= tc.hi[k] {
+					t.Errorf("axis %d ends at %g µm for an upper corner at %g", k, end[k], tc.hi[k])
+				}
+			}
+		})
+	}
+	flat := [2]transform.Vec{{0, 0, 5}, {10, 10, 5}}
+	if _, err := FieldGrid(s, GridOptions{Bounds: &flat}); err == nil || !strings.Contains(err.Error(), "bounds z") {
+		t.Errorf("a box without depth: error %v, want a refusal naming z", err)
+	}
+}
+
+// Cells whose source position lies outside the field's grid are counted
+// in a note that names --bounds; a box that holds them has no note.
+func TestWriteNotesCellsOutsideTheField(t *testing.T) {
+	s := testSpline(t, 3)
+	file := &transform.File{Transform: s}
+	dir := t.TempDir()
+	sources := []transform.Vec{{200, 150, 100}, {-300, 150, 100}, {200, 150, 600}}
+	cells := &landmarks.PointSet{Dim: 3}
+	var mapped []register.Mapped
+	for i, p := range sources {
+		cells.Points = append(cells.Points, landmarks.Point{ID: "c" + strconv.Itoa(i)})
+		mapped = append(mapped, register.Mapped{Pos: s.Apply(p), R95: 2, Status: register.StatusExtrapolated})
+	}
+	mappedPath := filepath.Join(dir, "mapped.csv")
+	if err := register.WriteMappedTable(context.Background(), mappedPath, register.Provenance{Command: "map"}, cells, mapped, register.FrameTarget, nil); err != nil {
+		t.Fatal(err)
+	}
+	tv := transform.Vec{1, 1, 1}
+	around := [2]transform.Vec{{-350, 0, 0}, {400, 300, 650}}
+	for _, tc := range []struct {
+		name   string
+		bounds *[2]transform.Vec
+		want   string
+	}{
+		{"landmarks' box", nil, "2 of the 3 mapped cells lie outside the displacement field's box"},
+		{"a box around them", &around, ""},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			res, err := Write(context.Background(), filepath.Join(t.TempDir(), "export"), file, Options{
+				Mapped: mappedPath, TargetVoxel: &tv, Grid: GridOptions{Margin: -1, Bounds: tc.bounds, Spacing: transform.Vec{25, 25, 25}}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			notes := strings.Join(res.Notes, "\n")
+			if tc.want == "" && notes != "" || tc.want != "" && (!strings.Contains(notes, tc.want) || !strings.Contains(notes, "--bounds")) {
+				t.Errorf("notes %q, want %q", notes, tc.want)
+			}
+		})
 	}
 }

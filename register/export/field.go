@@ -58,10 +58,16 @@ type GridOptions struct {
 	// Margin is added on every side of the landmarks' source bounding box,
 	// in µm; negative picks DefaultMarginShare of its longest side.
 	Margin float64
+	// Bounds, when not nil, is the field's box in source µm, lower corner
+	// then upper, in place of the landmarks' box and the margin: the box
+	// of the whole in vivo stack, say, so that a program warping the
+	// stack with the field finds a displacement everywhere in it. The
+	// first sample is at the lower corner; the last at or beyond the upper.
+	Bounds *[2]transform.Vec
 }
 
 // FieldGrid is the grid over the source bounding box of the spline's
-// landmarks (its nodes), widened by the margin. It refuses a grid of more
+// landmarks (its nodes), widened by the margin, or over opt.Bounds. It refuses a grid of more
 // than MaxSamples points, saying how to make it coarser.
 func FieldGrid(s *transform.Spline, opt GridOptions) (Grid, error) {
 	if len(s.Nodes) == 0 {
@@ -74,11 +80,19 @@ func FieldGrid(s *transform.Spline, opt GridOptions) (Grid, error) {
 			lo[k], hi[k] = math.Min(lo[k], p[k]), math.Max(hi[k], p[k])
 		}
 	}
+	margin := opt.Margin
+	if b := opt.Bounds; b != nil {
+		lo, hi, margin = b[0], b[1], 0
+		for k := range g.Dim {
+			if !(hi[k] > lo[k]) || math.IsInf(lo[k], 0) || math.IsInf(hi[k], 0) {
+				return Grid{}, fmt.Errorf("bounds %s %g to %g µm: want the lower corner first, each side longer than 0", "xyz"[k:k+1], lo[k], hi[k])
+			}
+		}
+	}
 	longest := 0.0
 	for k := range g.Dim {
 		longest = math.Max(longest, hi[k]-lo[k])
 	}
-	margin := opt.Margin
 	if margin < 0 {
 		margin = DefaultMarginShare * longest
 	}
@@ -101,8 +115,12 @@ func FieldGrid(s *transform.Spline, opt GridOptions) (Grid, error) {
 		n := math.Ceil((hi[k]+margin-g.Origin[k])/spacing[k]-1e-9) + 1
 		total *= math.Max(n, 2)
 		if total > MaxSamples {
-			return Grid{}, fmt.Errorf("a grid of spacing %g × %g × %g µm over %.0f µm would hold more than %d samples: give a larger --spacing or a smaller --margin",
-				spacing[0], spacing[1], spacing[2], longest+2*margin, MaxSamples)
+			smaller := "--margin"
+			if opt.Bounds != nil {
+				smaller = "--bounds"
+			}
+			return Grid{}, fmt.Errorf("a grid of spacing %g × %g × %g µm over %.0f µm would hold more than %d samples: give a larger --spacing or a smaller %s",
+				spacing[0], spacing[1], spacing[2], longest+2*margin, MaxSamples, smaller)
 		}
 		g.Size[k] = int(math.Max(n, 2))
 	}
@@ -152,7 +170,7 @@ func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t 
 	n := g.Samples() * g.Dim
 	fd := &Field{Grid: g, Affine: NewHomogeneous(a, t), Total: make([]float32, n), Residual: make([]float32, n)}
 	rep = progress.Of(rep)
-	rep.Step("sampling the displacement field", g.Size[1]*g.Size[2])
+	rep.Step("sampling the displacement field: rows", g.Size[1]*g.Size[2])
 	defer rep.Finish()
 	rows := g.Size[1] * g.Size[2]
 	transform.ParallelRanges(rows, 1, func(lo, hi int) {

@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"slices"
 	"strconv"
+	"strings"
 	"testing"
 
 	"ferry/landmarks"
@@ -98,5 +99,35 @@ func TestWrite(t *testing.T) {
 	}
 	if want := "1 0 0 1\n0 1 0 2\n0 0 1 3\n0 0 0 1\n"; string(txt[len(txt)-len(want):]) != want {
 		t.Errorf("affine_um.txt ends\n%s\nwant\n%s", txt, want)
+	}
+}
+
+// A folder holding files of an earlier export that this one would not
+// replace is refused with their name, and left as it was; files this
+// export replaces are no obstacle.
+func TestWriteRefusesStaleFiles(t *testing.T) {
+	s := testSpline(t, 3)
+	dir := filepath.Join(t.TempDir(), "export")
+	spline := &transform.File{Transform: s}
+	if _, err := Write(context.Background(), dir, spline, Options{Grid: GridOptions{Margin: -1, Spacing: transform.Vec{50, 50, 50}}}); err != nil {
+		t.Fatal(err)
+	}
+	// The same export again replaces its own files.
+	if _, err := Write(context.Background(), dir, spline, Options{Grid: GridOptions{Margin: -1, Spacing: transform.Vec{50, 50, 50}}}); err != nil {
+		t.Fatalf("exporting again into the same folder: %v", err)
+	}
+	// An affine model writes no field: the spline's would be left behind.
+	lin := &transform.File{Transform: &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}}
+	before, err := os.ReadFile(filepath.Join(dir, ManifestFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = Write(context.Background(), dir, lin, Options{})
+	if err == nil || !strings.Contains(err.Error(), FieldTIFFFile) || !strings.Contains(err.Error(), "another folder") {
+		t.Fatalf("error %v, want a refusal naming %s", err, FieldTIFFFile)
+	}
+	after, err := os.ReadFile(filepath.Join(dir, ManifestFile))
+	if err != nil || string(after) != string(before) {
+		t.Errorf("the refused export changed %s", ManifestFile)
 	}
 }

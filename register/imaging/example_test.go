@@ -115,7 +115,7 @@ func ExampleWarp() {
 	// Output:
 	//   0 10 20 30
 	//   0 15 25 35
-	// voxels 2 × 2 × 3 µm (ImageJ metadata)
+	// voxels 2 × 2 × 3 µm from ImageJ metadata
 }
 
 func ExampleOpenVolume() {

@@ -26,14 +26,14 @@ type Pages interface {
 func OpenPages(path string) (Pages, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
 		return openFolderPages(path)
 	}
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	head := make([]byte, 8)
 	n, _ := f.ReadAt(head, 0)
@@ -65,7 +65,7 @@ func OpenPages(path string) (Pages, error) {
 	}
 	if _, err := voxelCount(p0.width, p0.height, len(pages)); err != nil {
 		f.Close()
-		return nil, fmt.Errorf("imaging: %s: %w", path, err)
+		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	h := &Stack{Width: p0.width, Height: p0.height, Depth: len(pages), Bits: p0.bits, Path: path, Geometry: p0.calibration.geometry()}
 	return &tiffPages{file: f, tiff: t, pages: pages, header: h}, nil
@@ -84,7 +84,7 @@ func (p *tiffPages) Close() error   { return p.file.Close() }
 
 func (p *tiffPages) ReadPage(k int, dst []uint16) error {
 	if k < 0 || k >= len(p.pages) {
-		return fmt.Errorf("imaging: %s: page %d: the stack has pages 0 to %d", p.header.Path, k, len(p.pages)-1)
+		return fmt.Errorf("%s: page %d: the stack has pages 0 to %d", p.header.Path, k, len(p.pages)-1)
 	}
 	_, err := p.dec.decode(p.tiff, &p.pages[k], dst)
 	return err
@@ -96,10 +96,33 @@ type folderPages struct {
 	header *Stack
 }
 
-func openFolderPages(dir string) (Pages, error) {
+// StackFiles are the files a stack is read from: path itself, or for a
+// folder its .tif, .tiff and .png files in natural name order (the pages'
+// order), so that a caller can record what the stack was made of.
+func StackFiles(path string) ([]string, error) {
+	info, err := os.Stat(path)
+	if err != nil {
+		return nil, openError(path, err)
+	}
+	if !info.IsDir() {
+		return []string{path}, nil
+	}
+	names, err := planeNames(path)
+	if err != nil {
+		return nil, err
+	}
+	files := make([]string, len(names))
+	for i, n := range names {
+		files[i] = filepath.Join(path, n)
+	}
+	return files, nil
+}
+
+// planeNames are the names of a folder's plane files in natural order.
+func planeNames(dir string) ([]string, error) {
 	entries, err := os.ReadDir(dir)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(dir, err)
 	}
 	var names []string
 	for _, e := range entries {
@@ -110,15 +133,23 @@ func openFolderPages(dir string) (Pages, error) {
 		}
 	}
 	if len(names) == 0 {
-		return nil, fmt.Errorf("imaging: %s: the folder holds no .tif, .tiff or .png files", dir)
+		return nil, fmt.Errorf("%s: the folder holds no .tif, .tiff or .png files", dir)
 	}
 	slices.SortFunc(names, naturalCompare)
+	return names, nil
+}
+
+func openFolderPages(dir string) (Pages, error) {
+	names, err := planeNames(dir)
+	if err != nil {
+		return nil, err
+	}
 	p0, err := readFile(filepath.Join(dir, names[0]), true)
 	if err != nil {
 		return nil, err
 	}
 	if _, err := voxelCount(p0.Width, p0.Height, len(names)); err != nil {
-		return nil, fmt.Errorf("imaging: %s: %w", dir, err)
+		return nil, fmt.Errorf("%s: %w", dir, err)
 	}
 	h := &Stack{Width: p0.Width, Height: p0.Height, Depth: len(names), Bits: p0.Bits, Path: dir, Geometry: p0.Geometry}
 	h.Geometry.HasOrigin[2], h.Geometry.OriginUM[2] = false, 0
@@ -130,7 +161,7 @@ func (p *folderPages) Close() error   { return nil }
 
 func (p *folderPages) ReadPage(k int, dst []uint16) error {
 	if k < 0 || k >= len(p.names) {
-		return fmt.Errorf("imaging: %s: page %d: the stack has pages 0 to %d", p.dir, k, len(p.names)-1)
+		return fmt.Errorf("%s: page %d: the stack has pages 0 to %d", p.dir, k, len(p.names)-1)
 	}
 	path := filepath.Join(p.dir, p.names[k])
 	s, err := readFile(path, true)
@@ -139,7 +170,7 @@ func (p *folderPages) ReadPage(k int, dst []uint16) error {
 	}
 	h := p.header
 	if s.Width != h.Width || s.Height != h.Height || s.Bits != h.Bits {
-		return fmt.Errorf("imaging: %s: plane %d is %d × %d pixels of %d bits but %s is %d × %d pixels of %d bits; all planes of a stack must agree",
+		return fmt.Errorf("%s: plane %d is %d × %d pixels of %d bits but %s is %d × %d pixels of %d bits; all planes of a stack must agree",
 			path, k, s.Width, s.Height, s.Bits, p.names[0], h.Width, h.Height, h.Bits)
 	}
 	copy(dst, s.Data)
@@ -159,7 +190,7 @@ func (m memoryPages) Header() *Stack {
 func (m memoryPages) Close() error { return nil }
 func (m memoryPages) ReadPage(k int, dst []uint16) error {
 	if k < 0 || k >= m.s.Depth {
-		return fmt.Errorf("imaging: %s: page %d: the stack has pages 0 to %d", m.s.name(), k, m.s.Depth-1)
+		return fmt.Errorf("%s: page %d: the stack has pages 0 to %d", m.s.name(), k, m.s.Depth-1)
 	}
 	copy(dst, m.s.PageData(k))
 	return nil

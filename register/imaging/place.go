@@ -78,7 +78,8 @@ func (g Geometry) Describe() string {
 		s = fmt.Sprintf("pixels %s × %s µm", num(v[0]), num(v[1]))
 	}
 	if g.From != "" {
-		s += " (" + g.From + ")"
+		// No parentheses: the commands put the whole description in some.
+		s += " from " + g.From
 	}
 	if o := g.OriginUM; o != (transform.Vec{}) {
 		s += fmt.Sprintf(", voxel (0, 0, 0) at (%s, %s, %s) µm", num(o[0]), num(o[1]), num(o[2]))
@@ -130,8 +131,15 @@ func PlaneGrid(like *Stack, g Geometry, targetZ *int) (Grid, int, error) {
 			return grid, 0, fmt.Errorf("--target-z %d: %s is the section at page %s (z = %s µm, %s µm sections), not page %d; leave --target-z out or give the image of page %d",
 				*targetZ, like.name(), num(first), num(g.OriginUM[2]), num(vz), *targetZ, *targetZ)
 		}
-		return grid, 0, fmt.Errorf("--target-z %d is outside %s, which holds pages %s to %s (z = %s to %s µm)",
-			*targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz))
+		// Pages are counted in the volume, from z = 0, not in the file:
+		// say so where the two differ, or "pages 1 to 69" of a 69-page
+		// file reads as a mistake.
+		counted := ""
+		if first != 0 {
+			counted = fmt.Sprintf("; --target-z counts %s µm sections from z = 0, so the file's first page is page %s", num(vz), num(first))
+		}
+		return grid, 0, fmt.Errorf("--target-z %d is outside %s, which holds pages %s to %s (z = %s to %s µm%s)",
+			*targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz), counted)
 	}
 	grid.Origin[2] += float64(k) * vz
 	return grid, k, nil
@@ -196,8 +204,14 @@ func NoOverlap(stack *Stack, g Geometry, t transform.Transform, inverse bool, ou
 	if ok {
 		where = "x " + span(lo[0], hi[0]) + ", y " + span(lo[1], hi[1]) + ", z " + span(lo[2], hi[2]) + " µm"
 	}
-	return fmt.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, --target-z and the transform",
-		stack.name(), g.Describe(), out, where, out, span(outLo[0], outHi[0]), span(outLo[1], outHi[1]), span(outLo[2], outHi[2]))
+	// The flag that placed the output is the one to check: warp's
+	// --bounds, or the page (--target-z) of resample's and overlay's plane.
+	placed := "--target-z"
+	if out == "--bounds" {
+		placed = "--bounds"
+	}
+	return fmt.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, %s and the transform",
+		stack.name(), g.Describe(), out, where, out, span(outLo[0], outHi[0]), span(outLo[1], outHi[1]), span(outLo[2], outHi[2]), placed)
 }
 
 func span(a, b float64) string {

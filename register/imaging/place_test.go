@@ -71,8 +71,8 @@ func TestPlaneGrid(t *testing.T) {
 		{"a loose plane goes where it is told", plane, loose, z(7), 14, 0, ""},
 		{"a loose plane defaults to page 0", plane, loose, nil, 0, 0, ""},
 		{"a page of a stack", stack, placed, z(13), 26, 3, ""},
-		{"before the stack", stack, placed, z(9), 0, 0, "holds pages 10 to 14"},
-		{"after the stack", stack, loose, z(5), 0, 0, "holds pages 0 to 4"},
+		{"before the stack", stack, placed, z(9), 0, 0, "holds pages 10 to 14 (z = 20 to 28 µm; --target-z counts 2 µm sections from z = 0, so the file's first page is page 10)"},
+		{"after the stack", stack, loose, z(5), 0, 0, "holds pages 0 to 4 (z = 0 to 8 µm)"},
 		{"negative", stack, loose, z(-1), 0, 0, "negative"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {

@@ -3,11 +3,13 @@ package imaging
 import (
 	"bytes"
 	"cmp"
+	"errors"
 	"fmt"
 	"image"
 	"image/color"
 	"image/png"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
@@ -39,7 +41,7 @@ var pngSignature = []byte("\x89PNG\r\n\x1a\n")
 func ReadStack(path string) (*Stack, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
 		return readFolder(path)
@@ -58,10 +60,10 @@ func ReadStack(path string) (*Stack, error) {
 func ReadPlane(path string) (*Stack, error) {
 	info, err := os.Stat(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	if info.IsDir() {
-		return nil, fmt.Errorf("imaging: %s: is a folder; want one TIFF or PNG plane", path)
+		return nil, fmt.Errorf("%s: is a folder; want one TIFF or PNG plane", path)
 	}
 	return readFile(path, true)
 }
@@ -70,12 +72,12 @@ func ReadPlane(path string) (*Stack, error) {
 func readFile(path string, onePlane bool) (*Stack, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	defer f.Close()
 	info, err := f.Stat()
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(path, err)
 	}
 	s, err := decode(f, info.Size(), path, onePlane)
 	if err != nil {
@@ -96,7 +98,7 @@ func decode(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, erro
 	case bytes.HasPrefix(head, pngSignature):
 		return readPNG(r, size, name)
 	}
-	return nil, fmt.Errorf("imaging: %s: neither a TIFF nor a PNG file", name)
+	return nil, fmt.Errorf("%s: neither a TIFF nor a PNG file", name)
 }
 
 // readPNG reads a PNG plane. Its size is checked against the file length
@@ -105,7 +107,7 @@ func decode(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, erro
 func readPNG(r io.ReaderAt, size int64, name string) (*Stack, error) {
 	cfg, err := png.DecodeConfig(io.NewSectionReader(r, 0, size))
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %s: %w", name, err)
+		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	bits := 8
 	switch cfg.ColorModel {
@@ -113,14 +115,14 @@ func readPNG(r io.ReaderAt, size int64, name string) (*Stack, error) {
 		bits = 16
 	}
 	if cfg.Width < 1 || cfg.Height < 1 {
-		return nil, fmt.Errorf("imaging: %s: size %d × %d pixels: want at least 1 × 1", name, cfg.Width, cfg.Height)
+		return nil, fmt.Errorf("%s: size %d × %d pixels: want at least 1 × 1", name, cfg.Width, cfg.Height)
 	}
 	if int64(cfg.Width)*int64(cfg.Height) > maxExpansion*size+1024 {
-		return nil, fmt.Errorf("imaging: %s: %d × %d pixels cannot be held in %d bytes; the file is damaged", name, cfg.Width, cfg.Height, size)
+		return nil, fmt.Errorf("%s: %d × %d pixels cannot be held in %d bytes; the file is damaged", name, cfg.Width, cfg.Height, size)
 	}
 	img, err := png.Decode(io.NewSectionReader(r, 0, size))
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %s: %w", name, err)
+		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	s := &Stack{Width: cfg.Width, Height: cfg.Height, Depth: 1, Bits: bits, Path: name}
 	s.Data, s.Colour = greyPixels(img, bits)
@@ -180,7 +182,7 @@ func isPlaneName(name string) bool {
 func readFolder(dir string) (*Stack, error) {
 	entries, err := os.ReadDir(dir)
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %w", err)
+		return nil, openError(dir, err)
 	}
 	var names []string
 	for _, e := range entries {
@@ -198,7 +200,7 @@ func readFolder(dir string) (*Stack, error) {
 		names = append(names, e.Name())
 	}
 	if len(names) == 0 {
-		return nil, fmt.Errorf("imaging: %s: the folder holds no .tif, .tiff or .png files", dir)
+		return nil, fmt.Errorf("%s: the folder holds no .tif, .tiff or .png files", dir)
 	}
 	slices.SortFunc(names, naturalCompare)
 	var s *Stack
@@ -211,7 +213,7 @@ func readFolder(dir string) (*Stack, error) {
 		if s == nil {
 			n, err := voxelCount(p.Width, p.Height, len(names))
 			if err != nil {
-				return nil, fmt.Errorf("imaging: %s: %w", dir, err)
+				return nil, fmt.Errorf("%s: %w", dir, err)
 			}
 			s = &Stack{Width: p.Width, Height: p.Height, Depth: len(names), Bits: p.Bits, Path: dir, Geometry: p.Geometry}
 			// The planes' names order them; where the folder starts in z
@@ -220,7 +222,7 @@ func readFolder(dir string) (*Stack, error) {
 			s.Geometry.OriginUM[2] = 0
 			s.Data = make([]uint16, 0, n)
 		} else if p.Width != s.Width || p.Height != s.Height || p.Bits != s.Bits {
-			return nil, fmt.Errorf("imaging: %s: plane %d is %d × %d pixels of %d bits but %s is %d × %d pixels of %d bits; all planes of a stack must agree",
+			return nil, fmt.Errorf("%s: plane %d is %d × %d pixels of %d bits but %s is %d × %d pixels of %d bits; all planes of a stack must agree",
 				path, k, p.Width, p.Height, p.Bits, names[0], s.Width, s.Height, s.Bits)
 		}
 		s.Data = append(s.Data, p.Data...)
@@ -268,3 +270,14 @@ func naturalCompare(a, b string) int {
 }
 
 func isDigit(c byte) bool { return '0' <= c && c <= '9' }
+
+// openError says that the file at path could not be opened, as the other
+// input readers say it: the path first, then the reason without the
+// system call's name.
+func openError(path string, err error) error {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		err = pe.Err
+	}
+	return fmt.Errorf("%s: cannot open: %w", path, err)
+}

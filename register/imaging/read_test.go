@@ -2,6 +2,8 @@ package imaging
 
 import (
 	"bytes"
+	"errors"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"strings"
@@ -186,5 +188,21 @@ func TestNaturalOrder(t *testing.T) {
 	want := "Z3.png a.png z01.png z1.png z1b.png z002.png z2.png z10.png"
 	if got := strings.Join(sorted, " "); got != want {
 		t.Errorf("natural order\n got %s\nwant %s", got, want)
+	}
+}
+
+// A file that is not there is named first, as the table readers name
+// theirs, and the error still says that it does not exist.
+func TestOpenErrorNamesTheFile(t *testing.T) {
+	missing := filepath.Join(t.TempDir(), "nothere.tif")
+	for name, open := range map[string]func(string) error{
+		"ReadStack": func(p string) error { _, err := ReadStack(p); return err },
+		"ReadPlane": func(p string) error { _, err := ReadPlane(p); return err },
+		"OpenPages": func(p string) error { _, err := OpenPages(p); return err },
+	} {
+		err := open(missing)
+		if err == nil || err.Error() != missing+": cannot open: no such file or directory" || !errors.Is(err, fs.ErrNotExist) {
+			t.Errorf("%s: error %v, want %q that is fs.ErrNotExist", name, err, missing+": cannot open: no such file or directory")
+		}
 	}
 }

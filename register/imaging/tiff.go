@@ -111,7 +111,7 @@ type tiffPage struct {
 
 // pageError is an error about one page of a file.
 func (f *tiffFile) pageError(k int, format string, args ...any) error {
-	return fmt.Errorf("imaging: %s: page %d: %s", f.name, k, fmt.Sprintf(format, args...))
+	return fmt.Errorf("%s: page %d: %s", f.name, k, fmt.Sprintf(format, args...))
 }
 
 // errBigTIFF is returned for BigTIFF files.
@@ -122,10 +122,10 @@ var errBigTIFF = errors.New("is a BigTIFF file, which ferry does not read; save 
 func openTIFF(r io.ReaderAt, size int64, name string) (*tiffFile, int64, error) {
 	var h [8]byte
 	if size < 8 {
-		return nil, 0, fmt.Errorf("imaging: %s: %d bytes is too short for a TIFF file", name, size)
+		return nil, 0, fmt.Errorf("%s: %d bytes is too short for a TIFF file", name, size)
 	}
 	if _, err := r.ReadAt(h[:], 0); err != nil {
-		return nil, 0, fmt.Errorf("imaging: %s: reading the header: %w", name, err)
+		return nil, 0, fmt.Errorf("%s: reading the header: %w", name, err)
 	}
 	f := &tiffFile{r: r, size: size, name: name}
 	switch string(h[:2]) {
@@ -134,14 +134,14 @@ func openTIFF(r io.ReaderAt, size int64, name string) (*tiffFile, int64, error) 
 	case "MM":
 		f.order = binary.BigEndian
 	default:
-		return nil, 0, fmt.Errorf("imaging: %s: not a TIFF file (the first bytes are neither II nor MM)", name)
+		return nil, 0, fmt.Errorf("%s: not a TIFF file (the first bytes are neither II nor MM)", name)
 	}
 	switch f.order.Uint16(h[2:4]) {
 	case 42:
 	case 43:
-		return nil, 0, fmt.Errorf("imaging: %s: %w", name, errBigTIFF)
+		return nil, 0, fmt.Errorf("%s: %w", name, errBigTIFF)
 	default:
-		return nil, 0, fmt.Errorf("imaging: %s: not a TIFF file (version %d, want 42)", name, f.order.Uint16(h[2:4]))
+		return nil, 0, fmt.Errorf("%s: not a TIFF file (version %d, want 42)", name, f.order.Uint16(h[2:4]))
 	}
 	return f, int64(f.order.Uint32(h[4:8])), nil
 }
@@ -185,7 +185,7 @@ func (f *tiffFile) pages(first int64) ([]tiffPage, error) {
 		off = next
 	}
 	if len(pages) == 0 {
-		return nil, fmt.Errorf("imaging: %s: the file holds no pages", f.name)
+		return nil, fmt.Errorf("%s: the file holds no pages", f.name)
 	}
 	return pages, nil
 }
@@ -547,7 +547,7 @@ func readTIFF(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, er
 		return nil, err
 	}
 	if onePlane && len(pages) > 1 {
-		return nil, fmt.Errorf("imaging: %s: holds %d pages where one plane was wanted", name, len(pages))
+		return nil, fmt.Errorf("%s: holds %d pages where one plane was wanted", name, len(pages))
 	}
 	p0 := pages[0]
 	for _, p := range pages[1:] {
@@ -558,7 +558,7 @@ func readTIFF(r io.ReaderAt, size int64, name string, onePlane bool) (*Stack, er
 	}
 	n, err := voxelCount(p0.width, p0.height, len(pages))
 	if err != nil {
-		return nil, fmt.Errorf("imaging: %s: %w", name, err)
+		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	s := &Stack{Width: p0.width, Height: p0.height, Depth: len(pages), Bits: p0.bits, Data: make([]uint16, n), Path: name,
 		Geometry: p0.calibration.geometry()}

@@ -131,10 +131,15 @@ func (g WarpGrid) FileBytes(bits int) int64 { return g.layout(bits).size() }
 func (g WarpGrid) CheckWritable(path string, bits int) error {
 	l := g.layout(bits)
 	if err := l.check(path); err != nil {
+		if _, tooMany := voxelCount(l.width, l.height, l.depth); tooMany == nil && (l.bits == 8 || l.bits == 16) && l.size() > maxClassicTIFF {
+			// The way out is in warp's own flags.
+			return fmt.Errorf("%s: %d × %d × %d voxels of %d bits make %.1f GiB, more than the 4 GiB a classic TIFF holds; give a coarser --voxel or a smaller --bounds",
+				path, l.width, l.height, l.depth, l.bits, float64(l.size())/(1<<30))
+		}
 		return err
 	}
 	if free, ok := freeBytes(path); ok && free < uint64(l.size()) {
-		return fmt.Errorf("imaging: %s: the warped stack needs %.1f GiB and the disk has %.1f GiB free; free some space, choose a coarser --voxel or a smaller --bounds",
+		return fmt.Errorf("%s: the warped stack needs %.1f GiB and the disk has %.1f GiB free; free some space, give a coarser --voxel or a smaller --bounds",
 			path, float64(l.size())/(1<<30), float64(free)/(1<<30))
 	}
 	return nil
@@ -237,7 +242,7 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 	}
 
 	pr = progress.Of(pr)
-	pr.Step("warping", grid.Size[2])
+	pr.Step("warping: output pages", grid.Size[2])
 	defer pr.Finish()
 	err := outfile.Write(ctx, path, func(fw io.Writer) error {
 		tw, err := newTIFFWriter(fw, l)

@@ -137,7 +137,7 @@ func TestPlanWarp(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "huge.tif")
-	if err := huge.CheckWritable(out, 16); err == nil || !strings.Contains(err.Error(), "4 GiB") || !strings.Contains(err.Error(), "coarser voxel size") {
+	if err := huge.CheckWritable(out, 16); err == nil || !strings.Contains(err.Error(), "4 GiB") || !strings.Contains(err.Error(), "coarser --voxel or a smaller --bounds") {
 		t.Errorf("error %v, want a refusal naming the 4 GiB limit and the way out", err)
 	}
 }

@@ -189,7 +189,11 @@ func hyperstackDescription(s *Float32Stack) string {
 	b.WriteString("unit=micron\n")
 	fmt.Fprintf(&b, "spacing=%s\n", strconv.FormatFloat(s.VoxelUM[2], 'g', -1, 64))
 	for k, axis := range []string{"x", "y", "z"} {
-		fmt.Fprintf(&b, "%sorigin=%s\n", axis, strconv.FormatFloat(-s.OriginUM[k]/s.VoxelUM[k], 'g', -1, 64))
+		v := -s.OriginUM[k] / s.VoxelUM[k]
+		if v == 0 {
+			v = 0 // not "-0"
+		}
+		fmt.Fprintf(&b, "%sorigin=%s\n", axis, strconv.FormatFloat(v, 'g', -1, 64))
 	}
 	if s.Description != "" {
 		fmt.Fprintf(&b, "ferry=%s\n", strings.ReplaceAll(s.Description, "\n", " "))

@@ -219,3 +219,25 @@ func TestWriteRefusesOwnInput(t *testing.T) {
 		t.Error("a 12-bit stack was written")
 	}
 }
+
+// A float32 stack records its origin in voxels as ImageJ does, a zero
+// origin as 0 (not -0, which readers may take for text).
+func TestFloat32TIFFOrigin(t *testing.T) {
+	for _, tc := range []struct {
+		origin [3]float64
+		want   string
+	}{
+		{[3]float64{0, 0, 0}, "xorigin=0\nyorigin=0\nzorigin=0\n"},
+		{[3]float64{-4, 6, 10}, "xorigin=2\nyorigin=-3\nzorigin=-2\n"},
+	} {
+		s := &Float32Stack{Width: 2, Height: 1, Depth: 2, Channels: 1, Data: make([]float32, 4),
+			VoxelUM: [3]float64{2, 2, 5}, OriginUM: tc.origin}
+		var buf bytes.Buffer
+		if err := WriteFloat32TIFF(&buf, s); err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Contains(buf.Bytes(), []byte(tc.want)) {
+			t.Errorf("origin %v: the description lacks %q", tc.origin, tc.want)
+		}
+	}
+}
