@@ -2,6 +2,7 @@ package imaging
 
 import (
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"slices"
@@ -45,24 +46,12 @@ func OpenPages(path string) (Pages, error) {
 		}
 		return MemoryPages(s), nil
 	}
-	t, first, err := openTIFF(f, info.Size(), path)
-	if err != nil {
-		f.Close()
-		return nil, err
-	}
-	pages, err := t.pages(first)
+	t, pages, err := openStackPages(f, info.Size(), path)
 	if err != nil {
 		f.Close()
 		return nil, err
 	}
 	p0 := pages[0]
-	for _, p := range pages[1:] {
-		if p.width != p0.width || p.height != p0.height || p.bits != p0.bits {
-			f.Close()
-			return nil, t.pageError(p.index, "is %d × %d pixels of %d bits but page 0 is %d × %d pixels of %d bits; all pages of a stack must agree",
-				p.width, p.height, p.bits, p0.width, p0.height, p0.bits)
-		}
-	}
 	if _, err := voxelCount(p0.width, p0.height, len(pages)); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
@@ -194,4 +183,25 @@ func (m memoryPages) ReadPage(k int, dst []uint16) error {
 	}
 	copy(dst, m.s.PageData(k))
 	return nil
+}
+
+// openStackPages reads the directories of the TIFF stack in r and checks
+// that its pages agree in size and depth, as every page of a stack must.
+func openStackPages(r io.ReaderAt, size int64, path string) (*tiffFile, []tiffPage, error) {
+	t, first, err := openTIFF(r, size, path)
+	if err != nil {
+		return nil, nil, err
+	}
+	pages, err := t.pages(first)
+	if err != nil {
+		return nil, nil, err
+	}
+	p0 := pages[0]
+	for _, p := range pages[1:] {
+		if p.width != p0.width || p.height != p0.height || p.bits != p0.bits {
+			return nil, nil, t.pageError(p.index, "is %d × %d pixels of %d bits but page 0 is %d × %d pixels of %d bits; all pages of a stack must agree",
+				p.width, p.height, p.bits, p0.width, p0.height, p0.bits)
+		}
+	}
+	return t, pages, nil
 }

@@ -61,24 +61,12 @@ func OpenVolume(path string) (*Volume, error) {
 		v.Width, v.Height, v.Depth, v.Bits = s.Width, s.Height, 1, s.Bits
 		return v, nil
 	}
-	tf, first, err := openTIFF(f, info.Size(), path)
-	if err != nil {
-		f.Close()
-		return nil, err
-	}
-	pages, err := tf.pages(first)
+	tf, pages, err := openStackPages(f, info.Size(), path)
 	if err != nil {
 		f.Close()
 		return nil, err
 	}
 	p0 := pages[0]
-	for _, p := range pages[1:] {
-		if p.width != p0.width || p.height != p0.height || p.bits != p0.bits {
-			f.Close()
-			return nil, tf.pageError(p.index, "is %d × %d pixels of %d bits but page 0 is %d × %d pixels of %d bits; all pages of a stack must agree",
-				p.width, p.height, p.bits, p0.width, p0.height, p0.bits)
-		}
-	}
 	v.file, v.tiff, v.pages = f, tf, pages
 	v.Width, v.Height, v.Depth, v.Bits = p0.width, p0.height, len(pages), p0.bits
 	return v, nil
