@@ -34,7 +34,7 @@ def rows(path):
         return list(csv.DictReader(line for line in f if not line.startswith("#")))
 
 with open(os.path.join(d, "scenario.json")) as f:
-    sd = json.load(f)["cell_sd_um"]
+    sd = json.load(f)["params"]["cell_sd_um"]
 cell_sd = ",".join(f"{x:g}" for x in sd)
 truth = {r["id"]: r["true_candidate"] for r in rows(os.path.join(d, "truth_cells.csv"))}
 L, C, N = (os.path.join(d, x) for x in ("landmarks.csv", "cells.csv", "candidates.csv"))
