@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Does a round of review help the cells not yet reviewed, through refine?
 
-Usage: measure_refine.py FERRY SCENARIO_DIR [N]
+Usage: measure_refine.py FERRY SCENARIO_DIR [N] [--no-cell-sd]
 
 The refine variant of measure.py: refines the scenario's landmarks with its
 cells and candidates (refine's defaults, --cell-sd from the scenario's
@@ -14,13 +14,15 @@ from the scenario's truth (accepted: the true candidate; none: the cell has
 no counterpart); refines again with refine --decisions and matches with
 match --decisions (arm b; same fallback). Prints, over the cells NOT
 decided, how many are matched to their true candidate, and how many
-wrongly, in each arm.
+wrongly, in each arm. With --no-cell-sd, refine and match run without
+--cell-sd (the landmarks' picking noise stands in for the cells').
 """
 import csv, json, os, subprocess, sys
 
 ferry, d = sys.argv[1], sys.argv[2]
 n = int(sys.argv[3]) if len(sys.argv) > 3 else 20
-out = os.path.join(d, "measure_refine")
+no_sd = "--no-cell-sd" in sys.argv[4:]
+out = os.path.join(d, "measure_refine" + ("_no_sd" if no_sd else ""))
 os.makedirs(out, exist_ok=True)
 
 def run(*args, ok=(0,)):
@@ -35,16 +37,16 @@ def rows(path):
 
 with open(os.path.join(d, "scenario.json")) as f:
     sd = json.load(f)["params"]["cell_sd_um"]
-cell_sd = ",".join(f"{x:g}" for x in sd)
+sd_flag = [] if no_sd else ["--cell-sd", ",".join(f"{x:g}" for x in sd)]
 truth = {r["id"]: r["true_candidate"] for r in rows(os.path.join(d, "truth_cells.csv"))}
 L, C, N = (os.path.join(d, x) for x in ("landmarks.csv", "cells.csv", "candidates.csv"))
 o = lambda x: os.path.join(out, x)
 run("fit", L, "-o", o("fit.json"))
 
 def refine_match(tag, extra_refine, extra_match):
-    rc = run("refine", L, C, N, "--cell-sd", cell_sd, *extra_refine, "-o", o(f"r{tag}.json"), ok=(0, 3))
+    rc = run("refine", L, C, N, *sd_flag, *extra_refine, "-o", o(f"r{tag}.json"), ok=(0, 3))
     t = o(f"r{tag}.json") if rc == 0 else o("fit.json")
-    run("match", t, C, N, "--cell-sd", cell_sd, *extra_match, "-o", o(f"m{tag}.csv"))
+    run("match", t, C, N, *sd_flag, *extra_match, "-o", o(f"m{tag}.csv"))
     return rows(o(f"m{tag}.csv")), rc == 3
 
 m0, refused0 = refine_match("0", [], [])
