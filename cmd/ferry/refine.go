@@ -19,7 +19,7 @@ import (
 
 func newRefineCommand() *cobra.Command {
 	var flags modelFlags
-	var out, cellSD, somataPath, pairsPath string
+	var out, cellSD, somataPath, pairsPath, decisionsPath string
 	var candidateSD, minP float64
 	var maxNodes int
 	cmd := &cobra.Command{
@@ -38,12 +38,21 @@ overlay and suggest take as they take a fitted one. A cell whose pair is a
 node of the spline is judged by map and match without its own pair. The
 landmarks' leave-one-out errors before and after are printed; exit status 3,
 and nothing written, when the refinement predicts them worse. See
-docs/methods.md for the method.`,
+docs/methods.md for the method.
+
+With --decisions (a decisions file from review, on the cells), the pairs
+accepted in review join the landmarks as somata of their own kind
+(decided_soma, with their own noise), as fit --decisions adds them, and are
+not matched again; a rejected pair is never paired, and a cell with no
+counterpart never pairs.`,
 		Args: cobra.ExactArgs(3),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			inputs := append([]string(nil), args...)
 			if somataPath != "" {
 				inputs = append(inputs, somataPath)
+			}
+			if decisionsPath != "" {
+				inputs = append(inputs, decisionsPath)
 			}
 			if err := requireOutput(out, inputs...); err != nil {
 				return err
@@ -61,6 +70,31 @@ docs/methods.md for the method.`,
 			}
 			if maxNodes < 1 {
 				return fmt.Errorf("--max-nodes: want a positive number of nodes, got %d", maxNodes)
+			}
+			// The decisions name the cells and candidates as read, in the
+			// landmarks' units: the accepted pairs join the landmark set
+			// before it is prepared, as fit --decisions adds them.
+			var decided *match.Decisions
+			var decisionsInput register.Input
+			var decidedCells, decidedCands string // the hashes the decisions were resolved against
+			if decisionsPath != "" {
+				flags.addPairs = func(set *landmarks.PairSet) error {
+					cells, err := landmarks.ReadPoints(args[1], "cells")
+					if err != nil {
+						return err
+					}
+					cands, err := landmarks.ReadPoints(args[2], "candidates")
+					if err != nil {
+						return err
+					}
+					d, sum, err := readDecisions(decisionsPath, cells, cands)
+					if err != nil {
+						return err
+					}
+					decided, decisionsInput = d, register.Input{Path: decisionsPath, SHA256: sum}
+					decidedCells, decidedCands = cells.SHA256, cands.SHA256
+					return match.AddDecidedLandmarks(set, d, cells, cands)
+				}
 			}
 			job, a, err := flags.assess(cmd, args[0])
 			if err != nil {
@@ -83,10 +117,19 @@ docs/methods.md for the method.`,
 			if err != nil {
 				return err
 			}
+			if decided != nil && (cells.SHA256 != decidedCells || cands.SHA256 != decidedCands) {
+				return fmt.Errorf("%s or %s changed while refine read it; run refine again", args[1], args[2])
+			}
+			// The cells come first among the somata, so the decisions'
+			// cell indices are the somata's.
 			in := refine.Input{Landmarks: job.problem, Assessment: a,
-				Somata: cellPos, SomaIDs: pointIDs(cells), Candidates: candPos, CandidateIDs: pointIDs(cands)}
+				Somata: cellPos, SomaIDs: pointIDs(cells), Candidates: candPos, CandidateIDs: pointIDs(cands),
+				Decisions: decided}
 			provInputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256},
 				{Path: args[1], SHA256: cells.SHA256}, {Path: args[2], SHA256: cands.SHA256}}
+			if decided != nil {
+				provInputs = append(provInputs, decisionsInput)
+			}
 			if somataPath != "" {
 				somata, somaPos, err := register.ReadCells(somataPath, "somata", base, false)
 				if err != nil {
@@ -143,6 +186,7 @@ docs/methods.md for the method.`,
 	fl.Float64Var(&candidateSD, "candidate-sd", match.DefaultCandidateSD, "spread of a candidate about its soma's centre in µm per axis")
 	fl.StringVar(&somataPath, "somata", "", "more in vivo soma positions (id,x,y,z) that help the refinement but are not reported")
 	fl.StringVar(&pairsPath, "pairs", "", "write the correspondences relied on here, in the landmark-pairs format (kind soma)")
+	fl.StringVar(&decisionsPath, "decisions", "", "decisions file from review on the cells: accepted pairs join the landmarks (kind decided_soma), rejected pairs and cells with no counterpart never pair")
 	fl.Float64Var(&minP, "min-p", refine.DefaultMinP, "posterior probability from which a pair joins the fit")
 	fl.IntVar(&maxNodes, "max-nodes", refine.DefaultMaxNodes, "most nodes of the refined spline, landmarks included; past it an even subset of the pairs")
 	return cmd

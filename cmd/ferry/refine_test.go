@@ -1,6 +1,8 @@
 package main
 
 import (
+	"crypto/sha256"
+	"encoding/json"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -120,4 +122,89 @@ func exactLandmarks(t *testing.T, truth, path string) string {
 		b.WriteString(strings.Join(append([]string{f[0], "vessel"}, f[n-6:]...), ",") + "\n")
 	}
 	return writeFile(t, path, b.String())
+}
+
+// refine --decisions: a rejected pair is never relied on, a cell with no
+// counterpart never pairs, an accepted pair is a landmark (decided_soma),
+// not a soma pair; the decisions file is among the refinement's inputs with
+// its SHA-256. A decision naming a cell not in the cells file is refused
+// with its line and column, and nothing is written.
+func TestRefineDecisions(t *testing.T) {
+	dir := t.TempDir()
+	s, err := simulate.Generate(simulate.DefaultParams(), 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	files, err := s.Write(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	in := func(name string) string { return filepath.Join(dir, name) }
+	mustSucceed(t, "refine", files.Landmarks, files.Cells, files.Candidates, "--cell-sd", "0.5,0.5,2", "-o", in("r0.json"), "--pairs", in("p0.csv"))
+	p0 := readRows(t, in("p0.csv"))
+	if len(p0) < 9 {
+		t.Fatalf("only %d pairs without decisions", len(p0))
+	}
+	// Decisions on cells the refinement without them pairs.
+	rejected, none, accepted := p0[0], p0[1], p0[2]
+	dec := writeFile(t, in("decisions.csv"), "id,candidate,decision\n"+
+		rejected["cell"]+","+rejected["candidate"]+",rejected\n"+
+		none["cell"]+",,none\n"+
+		accepted["cell"]+","+accepted["candidate"]+",accepted\n")
+	out := in("r1.json")
+	mustSucceed(t, "refine", files.Landmarks, files.Cells, files.Candidates, "--cell-sd", "0.5,0.5,2", "--decisions", dec, "-o", out, "--pairs", in("p1.csv"))
+	for _, p := range readRows(t, in("p1.csv")) {
+		switch {
+		case p["cell"] == rejected["cell"] && p["candidate"] == rejected["candidate"]:
+			t.Errorf("rejected pair %s–%s relied on", p["cell"], p["candidate"])
+		case p["cell"] == none["cell"]:
+			t.Errorf("cell %s with no counterpart paired to %s", p["cell"], p["candidate"])
+		case p["cell"] == accepted["cell"]:
+			t.Errorf("accepted cell %s also a soma pair", p["cell"])
+		case p["candidate"] == accepted["candidate"]:
+			t.Errorf("cell %s paired to %s, accepted for %s", p["cell"], p["candidate"], accepted["cell"])
+		}
+	}
+	f, err := transform.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rec struct {
+		Inputs []struct {
+			Path   string `json:"path"`
+			SHA256 string `json:"sha256"`
+		} `json:"inputs"`
+		Landmarks []struct {
+			ID string `json:"id"`
+		} `json:"landmarks"`
+	}
+	if err := json.Unmarshal(f.Refinement, &rec); err != nil {
+		t.Fatal(err)
+	}
+	data, err := os.ReadFile(dec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sum := fmt.Sprintf("%x", sha256.Sum256(data))
+	found := false
+	for _, x := range rec.Inputs {
+		found = found || (x.Path == dec && x.SHA256 == sum)
+	}
+	if !found {
+		t.Errorf("the refinement's inputs %+v do not hold %s with SHA-256 %s", rec.Inputs, dec, sum)
+	}
+	found = false
+	for _, l := range rec.Landmarks {
+		found = found || l.ID == "decided:"+accepted["cell"]
+	}
+	if !found {
+		t.Errorf("accepted cell %s is not among the refinement's landmarks", accepted["cell"])
+	}
+
+	bad := writeFile(t, in("bad.csv"), "id,candidate,decision\nno_such_cell,,none\n")
+	o := ferry(t, "refine", files.Landmarks, files.Cells, files.Candidates, "--decisions", bad, "-o", in("r2.json"))
+	oneLine(t, o, "bad.csv", "2", "id", "no_such_cell")
+	if _, err := os.Stat(in("r2.json")); !os.IsNotExist(err) {
+		t.Errorf("refused refinement wrote r2.json")
+	}
 }

@@ -38,7 +38,7 @@ func (r *refiner) calibrate(st *fitState, rounds int) error {
 			return err
 		}
 		res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
-			Dim: r.dim, CandidateSD: r.opt.CandidateSD, CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
+			Dim: r.dim, CandidateSD: r.opt.CandidateSD, CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs, Decisions: r.dec,
 		})
 		r.rep.Add(1)
 		if err != nil {
@@ -46,6 +46,11 @@ func (r *refiner) calibrate(st *fitState, rounds int) error {
 		}
 		var num, den transform.Vec
 		for _, m := range res {
+			// A decided soma says nothing of the scale: an accepted one
+			// is a landmark of the fit, so its offset is no prediction.
+			if m.Decision != "" {
+				continue
+			}
 			for _, c := range []struct {
 				j int
 				p float64

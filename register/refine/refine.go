@@ -74,6 +74,16 @@ type Input struct {
 	// Candidates (target) and their ids.
 	Candidates   []transform.Vec
 	CandidateIDs []string
+	// Decisions, when not nil, are a person's verdicts by index into
+	// Somata and Candidates (the cells come first among the somata, so
+	// decisions resolved against the cells index them unchanged). Every
+	// round's matching takes them as match does: a rejected pair and a
+	// candidate accepted for another soma are never paired, a soma with no
+	// counterpart never pairs, and an accepted soma is not paired either:
+	// its pair belongs among the Landmarks, as match.AddDecidedLandmarks
+	// puts it, where it weighs as a landmark with its own noise rather than
+	// as a soma pair that the rounds may drop.
+	Decisions *match.Decisions
 }
 
 // Pair is one correspondence relied on.
@@ -166,6 +176,9 @@ func Refine(in Input, opt Options) (*Result, error) {
 	if len(in.SomaIDs) != len(in.Somata) || len(in.CandidateIDs) != len(in.Candidates) {
 		return nil, errors.New("refine: ids and positions differ in number")
 	}
+	if err := checkDecisions(in.Decisions, len(in.Somata), len(in.Candidates)); err != nil {
+		return nil, err
+	}
 	rep := progress.Of(opt.Progress)
 	a := in.Assessment
 	if a == nil {
@@ -190,7 +203,8 @@ func Refine(in Input, opt Options) (*Result, error) {
 	}
 	// The rounds see only the candidates near the somata; r.cand maps
 	// their indices back to the caller's.
-	r.cand = nearCandidates(mapper, in.Somata, opt.CellSD, in.Candidates, p.Dim)
+	r.cand = withAccepted(nearCandidates(mapper, in.Somata, opt.CellSD, in.Candidates, p.Dim), in.Decisions)
+	r.dec = localDecisions(in.Decisions, r.cand)
 	r.candPos = make([]transform.Vec, len(r.cand))
 	r.candIDs = make([]string, len(r.cand))
 	for k, j := range r.cand {
@@ -342,6 +356,8 @@ type refiner struct {
 	cand    []int
 	candPos []transform.Vec
 	candIDs []string
+	// dec are the input's decisions with the candidates indexed into cand.
+	dec *match.Decisions
 }
 
 // landmarkNoise is the landmarks' noise variance per target axis (µm²):
@@ -414,7 +430,7 @@ func (r *refiner) relativePairWeight() float64 {
 func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pair, error) {
 	res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
 		Dim: r.dim, CandidateSD: r.opt.CandidateSD, MinPMatch: threshold,
-		CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs,
+		CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs, Decisions: r.dec,
 	})
 	r.rep.Add(1)
 	if err != nil {
@@ -422,6 +438,11 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pai
 	}
 	var pairs []Pair
 	for i, m := range res {
+		// A decided soma is never a pair: accepted, it is a landmark
+		// already; with no counterpart, it has none.
+		if m.Decision != "" {
+			continue
+		}
 		if m.Status != match.StatusMatched || m.PMatch < threshold || m.PRunnerUp > 1-threshold {
 			continue
 		}
