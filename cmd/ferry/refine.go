@@ -96,7 +96,7 @@ counterpart never pairs.`,
 					return match.AddDecidedLandmarks(set, d, cells, cands)
 				}
 			}
-			job, a, err := flags.assess(cmd, args[0])
+			job, a, err := flags.assessForFit(cmd, args[0], summaryWriter(cmd, out))
 			if err != nil {
 				return err
 			}
@@ -180,6 +180,7 @@ counterpart never pairs.`,
 		},
 	}
 	flags.register(cmd)
+	flags.registerKeep(cmd)
 	fl := cmd.Flags()
 	fl.StringVarP(&out, "output", "o", "", "refined transform file to write (JSON)")
 	fl.StringVar(&cellSD, "cell-sd", "", "localisation error of the somata's own coordinates X,Y,Z in µm (one standard deviation); default: the landmarks' picking noise")
