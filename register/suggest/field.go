@@ -48,7 +48,7 @@ func suggestField(f *transform.File, g *register.FieldGain, cells []transform.Ve
 	if len(res.Candidates) > fieldMaxPairs/minSearchCells {
 		return nil, fmt.Errorf("%d candidate locations are too many to search (at most %d)", len(res.Candidates), fieldMaxPairs/minSearchCells)
 	}
-	search := subsetWithin(len(cells), len(res.Candidates), fieldMaxPairs)
+	search := searchSubset(len(cells), len(res.Candidates), fieldMaxPairs)
 	res.SearchCells = len(search)
 	sub := make([]transform.Vec, len(search))
 	for k, i := range search {
@@ -73,41 +73,16 @@ func suggestField(f *transform.File, g *register.FieldGain, cells []transform.Ve
 		for i, p := range m.MapAll(cells, opt.CellSD, false) {
 			radii[i] = p.R95
 		}
-		med, mean := medianOf(radii), meanOf(radii)
-		if k == 0 {
-			res.R95Before, res.MeanR95Before = med, mean
-			res.CellR95Before = append([]float64(nil), radii...)
+		sug, ok := res.step(k, chosen, radii)
+		if !ok {
 			continue
 		}
-		j := chosen[k-1]
-		z := res.Candidates[j]
-		prev := res.R95Before
-		if k > 1 {
-			prev = res.Suggestions[k-2].R95After
-		}
-		at := mapper.Map(z, nil)
-		res.Suggestions = append(res.Suggestions, Suggestion{
-			Rank: k, Candidate: j, Source: z, Target: at.Pos, Status: at.Status,
-			TargetSD: at.SD, TargetR95: at.R95,
-			R95After: med, Gain: prev - med, MeanR95After: mean,
-		})
+		at := mapper.Map(sug.Source, nil)
+		sug.Target, sug.Status, sug.TargetSD, sug.TargetR95 = at.Pos, at.Status, at.SD, at.R95
+		res.Suggestions = append(res.Suggestions, sug)
 	}
 	res.CellR95After = radii
 	return res, nil
-}
-
-// subsetWithin is searchSubset with its own bound on the pairs.
-func subsetWithin(cells, candidates, bound int) []int {
-	stride := 1
-	if cells*candidates > bound {
-		stride = (cells*candidates + bound - 1) / bound
-		stride = min(stride, max(1, cells/minSearchCells))
-	}
-	var idx []int
-	for i := 0; i < cells; i += stride {
-		idx = append(idx, i)
-	}
-	return idx
 }
 
 // fieldGreedy chooses n candidates one by one, each the one that lowers

@@ -162,7 +162,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	model := newCellModel(f.Transform, u, cells, opt.CellSD)
 	// A suggestion's target is a new landmark's, with no cell error.
 	targets := &cellModel{dim: dim, u: u, radii: model.radii}
-	search := searchSubset(len(cells), len(res.Candidates))
+	search := searchSubset(len(cells), len(res.Candidates), maxPairs)
 	res.SearchCells = len(search)
 	sub := make([]transform.Vec, len(search))
 	for k, i := range search {
@@ -190,25 +190,13 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 		for i := range cells {
 			radii[i] = model.radius(i, factor(i))
 		}
-		med, mean := medianOf(radii), meanOf(radii)
-		if k == 0 {
-			res.R95Before, res.MeanR95Before = med, mean
-			res.CellR95Before = append([]float64(nil), radii...)
+		sug, ok := res.step(k, chosen, radii)
+		if !ok {
 			return
 		}
-		j := chosen[k-1]
-		z := res.Candidates[j]
-		prev := res.R95Before
-		if k > 1 {
-			prev = res.Suggestions[k-2].R95After
-		}
-		mapped := mapper.Map(z, nil)
-		target := targets.covariance(0, cp.Factor(z))
-		sug := Suggestion{
-			Rank: k, Candidate: j, Source: z, Target: mapped.Pos, Status: mapped.Status,
-			TargetR95: targets.radii.Radius(target),
-			R95After:  med, Gain: prev - med, MeanR95After: mean,
-		}
+		mapped := mapper.Map(sug.Source, nil)
+		target := targets.covariance(0, cp.Factor(sug.Source))
+		sug.Target, sug.Status, sug.TargetR95 = mapped.Pos, mapped.Status, targets.radii.Radius(target)
 		for a := range dim {
 			sug.TargetSD[a] = math.Sqrt(math.Max(target[a][a], 0))
 		}
@@ -231,12 +219,11 @@ func checkPoints(what string, ps []transform.Vec, dim int) error {
 }
 
 // searchSubset lists the cells the greedy search evaluates: all of them,
-// or every k-th when the cells and candidates make more than maxPairs
-// pairs.
-func searchSubset(cells, candidates int) []int {
+// or every k-th when the cells and candidates make more than bound pairs.
+func searchSubset(cells, candidates, bound int) []int {
 	stride := 1
-	if cells*candidates > maxPairs {
-		stride = (cells*candidates + maxPairs - 1) / maxPairs
+	if cells*candidates > bound {
+		stride = (cells*candidates + bound - 1) / bound
 		stride = min(stride, max(1, cells/minSearchCells))
 	}
 	var idx []int
@@ -420,4 +407,24 @@ func meanOf(v []float64) float64 {
 		sum += x
 	}
 	return sum / float64(len(v))
+}
+
+// step records the cells' radii after the k-th suggested landmark (k = 0:
+// before any) in res. For k > 0 it returns that suggestion with its rank,
+// candidate, position and the cells' median and mean radius after it,
+// for the caller to complete with the predicted target; for k = 0 it
+// returns false.
+func (res *Result) step(k int, chosen []int, radii []float64) (Suggestion, bool) {
+	med, mean := medianOf(radii), meanOf(radii)
+	if k == 0 {
+		res.R95Before, res.MeanR95Before = med, mean
+		res.CellR95Before = append([]float64(nil), radii...)
+		return Suggestion{}, false
+	}
+	j := chosen[k-1]
+	prev := res.R95Before
+	if k > 1 {
+		prev = res.Suggestions[k-2].R95After
+	}
+	return Suggestion{Rank: k, Candidate: j, Source: res.Candidates[j], R95After: med, Gain: prev - med, MeanR95After: mean}, true
 }
