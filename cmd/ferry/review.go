@@ -62,20 +62,6 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			if err != nil {
 				return err
 			}
-			sv, err := voxelSize("--source-voxel", srcVoxel, job.file.SourceVoxel)
-			if err != nil {
-				return err
-			}
-			tv, err := voxelSize("--target-voxel", dstVoxel, job.file.TargetVoxel)
-			if err != nil {
-				return err
-			}
-			var offset transform.Vec
-			if dstOffset != "" {
-				if offset, err = landmarks.ParsePosition("--target-offset", dstOffset, 3); err != nil {
-					return err
-				}
-			}
 			src, err := imaging.OpenVolume(srcStack)
 			if err != nil {
 				return err
@@ -86,6 +72,23 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 				return err
 			}
 			defer dst.Close()
+			// Each stack's voxel size as resample settles it: the flag, else
+			// what the file records, else the transform file's; the EM
+			// stack's offset likewise from --target-offset or its file.
+			sv, err := settleVoxel(src, "--source-voxel", srcVoxel, job.file.SourceVoxel)
+			if err != nil {
+				return err
+			}
+			dstGeom, err := settleGeometry(dst, "--target-voxel", dstVoxel, job.file.TargetVoxel)
+			if err != nil {
+				return err
+			}
+			tv, offset := dstGeom.VoxelUM, dstGeom.OriginUM
+			if dstOffset != "" {
+				if offset, err = landmarks.ParsePosition("--target-offset", dstOffset, 3); err != nil {
+					return err
+				}
+			}
 			s, err := review.NewSession(review.Inputs{
 				Transform: job.file, Mapper: job.mapper, Cells: job.cells, CellPos: job.pos, CellSD: job.cellSD,
 				Candidates: cands, CandidatePos: candPos, Matches: ms, MatchesPath: args[0],
@@ -134,14 +137,23 @@ func outputNotInput(out string, inputs ...string) error {
 	return requireOutput(out, inputs...)
 }
 
-// voxelSize is the voxel size given by the flag name (value), else the one
-// the transform file records for that side.
-func voxelSize(name, value string, recorded *transform.Vec) (transform.Vec, error) {
+// settleGeometry is the geometry of the stack v: the voxel size of the
+// flag name (value, when given), else what the file records, else the
+// transform file's (recorded), as imaging.Settle decides it.
+func settleGeometry(v *imaging.Volume, name, value string, recorded *transform.Vec) (imaging.Geometry, error) {
+	in := imaging.Given{VoxelFlag: name, Fallback: recorded}
 	if value != "" {
-		return landmarks.ParseTriple(name, value, 3)
+		vox, err := landmarks.ParseTriple(name, value, 3)
+		if err != nil {
+			return imaging.Geometry{}, err
+		}
+		in.Voxel = &vox
 	}
-	if recorded != nil {
-		return *recorded, nil
-	}
-	return transform.Vec{}, fmt.Errorf("%s: the transform file records no voxel size for this side; give it in µm, e.g. %s 1,1,1", name, name)
+	return imaging.Settle(v.Header(), in)
+}
+
+// settleVoxel is settleGeometry's voxel size.
+func settleVoxel(v *imaging.Volume, name, value string, recorded *transform.Vec) (transform.Vec, error) {
+	g, err := settleGeometry(v, name, value, recorded)
+	return g.VoxelUM, err
 }

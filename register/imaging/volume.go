@@ -19,6 +19,9 @@ type Volume struct {
 	Width, Height, Depth int
 	Bits                 int
 	Path                 string
+	// Geometry is what the file records of its voxel size and origin (a
+	// folder's: its first plane's); see Settle.
+	Geometry Geometry
 
 	file  *os.File
 	tiff  *tiffFile
@@ -41,7 +44,7 @@ func OpenVolume(path string) (*Volume, error) {
 			return nil, err
 		}
 		v.planes = names
-		v.Width, v.Height, v.Depth, v.Bits = s.Width, s.Height, len(names), s.Bits
+		v.Width, v.Height, v.Depth, v.Bits, v.Geometry = s.Width, s.Height, len(names), s.Bits, s.Geometry
 		return v, nil
 	}
 	f, err := os.Open(path)
@@ -58,7 +61,7 @@ func OpenVolume(path string) (*Volume, error) {
 			return nil, err
 		}
 		v.planes = []string{path}
-		v.Width, v.Height, v.Depth, v.Bits = s.Width, s.Height, 1, s.Bits
+		v.Width, v.Height, v.Depth, v.Bits, v.Geometry = s.Width, s.Height, 1, s.Bits, s.Geometry
 		return v, nil
 	}
 	tf, pages, err := openStackPages(f, info.Size(), path)
@@ -69,7 +72,14 @@ func OpenVolume(path string) (*Volume, error) {
 	p0 := pages[0]
 	v.file, v.tiff, v.pages = f, tf, pages
 	v.Width, v.Height, v.Depth, v.Bits = p0.width, p0.height, len(pages), p0.bits
+	v.Geometry = p0.calibration.geometry()
 	return v, nil
+}
+
+// Header is the volume as a Stack without its voxels: its size, depth and
+// recorded geometry, for Settle.
+func (v *Volume) Header() *Stack {
+	return &Stack{Width: v.Width, Height: v.Height, Depth: v.Depth, Bits: v.Bits, Path: v.Path, Geometry: v.Geometry}
 }
 
 // folderPlanes lists a folder's planes in natural order and reads the first

@@ -260,5 +260,9 @@ func (s *Scenario) EMStack(ip ImageParams) (*imaging.Stack, error) {
 		}
 		copy(st.PageData(k), pl.Data)
 	}
+	// Page k lies at k·vz and pixel (i, j) at (i·vx, j·vy): the stack
+	// records it, as the other rendered images do, so that review finds
+	// the voxel size without flags.
+	st.Geometry = imaging.Geometry{VoxelUM: v, HasOrigin: [3]bool{true, true, true}}
 	return st, nil
 }

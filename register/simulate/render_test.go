@@ -45,3 +45,20 @@ func TestImagesDrawTheTissue(t *testing.T) {
 		t.Error("no vessel lumen crosses the EM plane")
 	}
 }
+
+// The EM stack records its voxel size and origin, as the other rendered
+// images do, so that review places it without flags.
+func TestEMStackRecordsItsGeometry(t *testing.T) {
+	s, err := Generate(SmallParams(), 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ip := ImageParams{TargetVoxelUM: transform.Vec{4, 4, 8}}
+	st, err := s.EMStack(ip)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g := st.Geometry; g.VoxelUM != ip.TargetVoxelUM || g.HasOrigin != [3]bool{true, true, true} || g.OriginUM != (transform.Vec{}) {
+		t.Errorf("EM stack records %+v, want voxels %v at the origin", g, ip.TargetVoxelUM)
+	}
+}
