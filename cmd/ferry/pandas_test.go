@@ -52,7 +52,9 @@ func TestPandasReadsEveryTable(t *testing.T) {
 	mustSucceed(t, "map", "--inverse", tf, files.Candidates, "-o", out("back.csv"))
 	mustSucceed(t, "match", tf, files.Cells, files.Candidates, "-o", out("matches.csv"))
 	mustSucceed(t, "suggest", files.Landmarks, files.Cells, "--n", "2", "-o", out("next.csv"))
-	tables := []string{out("mapped.csv"), out("back.csv"), out("matches.csv"), out("next.csv"),
+	mustSucceed(t, "refine", files.Landmarks, files.Cells, files.Candidates, "--pairs", out("pairs.csv"), "-o", out("refined.json"))
+	mustSucceed(t, "export", tf, "--mapped", out("mapped.csv"), "--target-voxel", "1,1,1", "-o", out("export"))
+	tables := []string{out("mapped.csv"), out("back.csv"), out("matches.csv"), out("next.csv"), out("pairs.csv"), out("export/points.csv"),
 		files.Landmarks, files.Cells, files.Candidates, files.TruthCells, files.TruthLandmarks}
 
 	type entry struct {

@@ -210,9 +210,7 @@ func distinctIDs(cells, somata *landmarks.PointSet) error {
 }
 
 func writePairsFile(ctx context.Context, path string, prov register.Provenance, rec refine.Record, dim int, vox register.Voxels) error {
-	return outfile.Write(ctx, path, func(w io.Writer) error {
-		return refine.WritePairs(w, prov, rec, dim, vox)
-	})
+	return refine.WritePairsTable(ctx, path, prov, rec, dim, vox)
 }
 
 // writeRefineSummary prints what the refinement did and gained.

@@ -277,9 +277,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		f.Pairs = filepath.Join(o.Dir, "soma_pairs.csv")
 		pprov := register.Provenance{Command: "refine", Inputs: rinputs,
 			Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
-		if err := outfile.Write(ctx, f.Pairs, func(w io.Writer) error {
-			return refine.WritePairs(w, pprov, out.RefineRecord, cells.Dim, vox)
-		}); err != nil {
+		if err := refine.WritePairsTable(ctx, f.Pairs, pprov, out.RefineRecord, cells.Dim, vox); err != nil {
 			return nil, err
 		}
 		if tf, err = transform.ReadFile(f.Transform); err != nil {

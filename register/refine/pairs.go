@@ -1,8 +1,8 @@
 package refine
 
 import (
+	"context"
 	"encoding/csv"
-	"fmt"
 	"io"
 	"strconv"
 
@@ -10,16 +10,35 @@ import (
 	"ferry/transform"
 )
 
+// WritePairsTable writes the pairs file to path with its sidecar (see
+// register.WriteTable), whole or not at all: the table of WritePairs,
+// header row first, and prov with the frame and units of its source_* and
+// target_* columns beside it.
+func WritePairsTable(ctx context.Context, path string, prov register.Provenance, rec Record, dim int, vox register.Voxels) error {
+	axes := []string{"x", "y", "z"}[:dim]
+	var coords []register.Coordinates
+	for _, side := range []struct {
+		prefix, frame string
+		vox           *transform.Vec
+	}{{"source_", register.FrameSource, vox.Source}, {"target_", register.FrameTarget, vox.Target}} {
+		cols := make([]string, dim)
+		for k, a := range axes {
+			cols[k] = side.prefix + a
+		}
+		coords = append(coords, register.CoordinatesIn(cols, side.frame, side.vox))
+	}
+	return register.WriteTable(ctx, path, prov, coords, func(w io.Writer) error {
+		return WritePairs(w, rec, dim, vox)
+	})
+}
+
 // WritePairs writes the correspondences relied on in the landmark-pairs
 // format, kind soma, so that a user can inspect them or add confirmed ones
 // to the landmark file: id, kind, source_x … target_z (in voxels of each
 // side when vox gives their sizes, as the landmark file was), then cell,
 // candidate, p_match, node (whether the pair is a node of the spline),
 // loo_error_um and r95_um.
-func WritePairs(w io.Writer, prov register.Provenance, rec Record, dim int, vox register.Voxels) error {
-	if _, err := fmt.Fprintf(w, "# %s\n", prov.Line()); err != nil {
-		return err
-	}
+func WritePairs(w io.Writer, rec Record, dim int, vox register.Voxels) error {
 	axes := []string{"x", "y", "z"}[:dim]
 	header := []string{"id", "kind"}
 	for _, side := range []string{"source_", "target_"} {
