@@ -5,9 +5,9 @@ import (
 	"fmt"
 	"math"
 
-	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/spatial/kdtree"
 
+	"ferry/register/internal/hull"
 	"ferry/transform"
 )
 
@@ -42,7 +42,7 @@ type Mapper struct {
 	pred transform.Predictor
 	u    *UncertaintyModel
 	dim  int
-	hull supportHull
+	hull *hull.Hull
 	tree *kdtree.Tree
 	// near classifies the hull's boxes for the isolated status: +1 near
 	// a landmark throughout, −1 far throughout, 0 to be asked point by
@@ -80,7 +80,7 @@ func NewMapper(f *transform.File) (*Mapper, error) {
 	}
 	m := &Mapper{
 		t: f.Transform, pred: pred, u: u, dim: dim, field: field,
-		hull:  newSupportHull(u.Source, dim),
+		hull:  hull.New(u.Source, dim),
 		tree:  newPointTree(u.Source),
 		radii: Radius95(dim),
 	}
@@ -170,7 +170,7 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 	switch {
 	case jac.Det()*m.handSign <= 0:
 		p.Status = StatusFolded
-	case !m.hull.contains(x):
+	case !m.hull.Contains(x):
 		p.Status = StatusExtrapolated
 	case m.isolated(x):
 		p.Status = StatusIsolated
@@ -299,7 +299,7 @@ func subtractPickNoise(c, noise transform.Mat, dim int) transform.Mat {
 // reach plus it is far throughout, and only the boxes between ask the tree.
 func (m *Mapper) isolated(x transform.Vec) bool {
 	reach := isolatedSpacings * m.u.Spacing
-	if b := m.hull.box(x); b >= 0 {
+	if b := m.hull.Box(x); b >= 0 {
 		switch m.near[b] {
 		case 1:
 			return false
@@ -312,30 +312,17 @@ func (m *Mapper) isolated(x transform.Vec) bool {
 
 // classifyNear fills m.near over the hull's boxes.
 func (m *Mapper) classifyNear() {
-	h := &m.hull
+	h := m.hull
 	reach := isolatedSpacings * m.u.Spacing
-	half := 0.5 * math.Sqrt(h.step[0]*h.step[0]+h.step[1]*h.step[1]+h.step[2]*h.step[2])
-	m.near = make([]int8, len(h.class))
-	for k := range h.n[2] {
-		for j := range h.n[1] {
-			for i := range h.n[0] {
-				c := transform.Vec{
-					h.lo[0] + (float64(i)+0.5)*h.step[0],
-					h.lo[1] + (float64(j)+0.5)*h.step[1],
-					h.lo[2] + (float64(k)+0.5)*h.step[2],
-				}
-				if m.dim == 2 {
-					c[2] = 0
-				}
-				d := m.nearestLandmark(c)
-				b := (k*h.n[1]+j)*h.n[0] + i
-				switch {
-				case d+half < reach:
-					m.near[b] = 1
-				case d-half > reach:
-					m.near[b] = -1
-				}
-			}
+	half := h.HalfDiagonal()
+	m.near = make([]int8, h.Boxes())
+	for b := range m.near {
+		d := m.nearestLandmark(h.BoxCentre(b))
+		switch {
+		case d+half < reach:
+			m.near[b] = 1
+		case d-half > reach:
+			m.near[b] = -1
 		}
 	}
 }
@@ -423,234 +410,4 @@ func centroidOf(points []transform.Vec) transform.Vec {
 		c = c.Add(p)
 	}
 	return c.Scale(1 / float64(max(len(points), 1)))
-}
-
-// supportHull is the landmarks' convex hull approximated from outside by
-// its support planes in a fixed set of directions: a point is inside when no
-// direction sees it beyond the farthest landmark. With 642 directions and
-// the six axes in 3-D (160 in 2-D) the approximation exceeds the true hull by a thin margin
-// near its edges only.
-//
-// Testing every direction for every point would cost more than the rest of
-// mapping, so the landmarks' bounding box is cut into a grid of boxes
-// classified once: a box whose corners are all inside lies inside (the
-// polytope is convex), a box whose corners are all beyond one plane lies
-// outside, and only points in the boxes between are tested plane by plane.
-type supportHull struct {
-	dim   int
-	dirs  []transform.Vec
-	reach []float64
-	tol   float64
-	// The classification grid: box (i, j, k) spans lo + (i, j, k)·step to
-	// one step more; class is +1 inside, −1 outside, 0 mixed.
-	lo, step transform.Vec
-	n        [3]int
-	class    []int8
-}
-
-// hullGrid is the number of classification boxes along each axis.
-const hullGrid = 16
-
-func newSupportHull(points []transform.Vec, dim int) supportHull {
-	h := supportHull{dim: dim}
-	if dim == 2 {
-		const n = 160
-		for k := range n {
-			a := 2 * math.Pi * float64(k) / n
-			h.dirs = append(h.dirs, transform.Vec{math.Cos(a), math.Sin(a), 0})
-		}
-	} else {
-		// A Fibonacci lattice spreads directions evenly over the sphere.
-		const n = 642
-		golden := math.Pi * (3 - math.Sqrt(5))
-		for k := range n {
-			z := 1 - (2*float64(k)+1)/n
-			r := math.Sqrt(1 - z*z)
-			a := golden * float64(k)
-			h.dirs = append(h.dirs, transform.Vec{r * math.Cos(a), r * math.Sin(a), z})
-		}
-		// The axes too, so that the polytope lies inside the bounding
-		// box that the classification grid covers, and the landmarks'
-		// principal axes, so that the faces of a box-like cloud (a block
-		// cut along its own axes) are met squarely rather than by planes a
-		// few degrees off, which would push the middle of a face outwards.
-		for k := range 3 {
-			var d transform.Vec
-			d[k] = 1
-			h.dirs = append(h.dirs, d, d.Scale(-1))
-		}
-		for _, d := range principalAxes(points) {
-			h.dirs = append(h.dirs, d, d.Scale(-1))
-		}
-	}
-	h.reach = make([]float64, len(h.dirs))
-	extent := 0.0
-	for k, d := range h.dirs {
-		h.reach[k] = math.Inf(-1)
-		lo := math.Inf(1)
-		for _, p := range points {
-			v := d.Dot(p)
-			h.reach[k] = math.Max(h.reach[k], v)
-			lo = math.Min(lo, v)
-		}
-		extent = math.Max(extent, h.reach[k]-lo)
-	}
-	h.tol = 1e-9 * extent
-	h.classify(points)
-	return h
-}
-
-// classify fills the grid of boxes over the points' bounding box.
-func (h *supportHull) classify(points []transform.Vec) {
-	hi := points[0]
-	h.lo = points[0]
-	for _, p := range points {
-		for k := range h.dim {
-			h.lo[k] = math.Min(h.lo[k], p[k])
-			hi[k] = math.Max(hi[k], p[k])
-		}
-	}
-	h.n = [3]int{1, 1, 1}
-	for k := range h.dim {
-		h.n[k] = hullGrid
-		h.step[k] = (hi[k] - h.lo[k]) / hullGrid
-		if !(h.step[k] > 0) {
-			// Flat along this axis: one box, and every point tested.
-			h.n[k], h.step[k] = 1, 0
-		}
-	}
-	// Which planes each grid corner lies beyond.
-	nc := [3]int{h.n[0] + 1, h.n[1] + 1, h.n[2] + 1}
-	if h.dim == 2 {
-		nc[2] = 1
-	}
-	corner := func(i, j, k int) transform.Vec {
-		return transform.Vec{h.lo[0] + float64(i)*h.step[0], h.lo[1] + float64(j)*h.step[1], h.lo[2] + float64(k)*h.step[2]}
-	}
-	words := (len(h.dirs) + 63) / 64
-	beyond := make([]uint64, nc[0]*nc[1]*nc[2]*words)
-	inside := make([]bool, nc[0]*nc[1]*nc[2])
-	// Corners are independent: classify the layers of them on all cores,
-	// each against the planes in struct-of-arrays form.
-	dx, dy, dz := make([]float64, len(h.dirs)), make([]float64, len(h.dirs)), make([]float64, len(h.dirs))
-	for d, dir := range h.dirs {
-		dx[d], dy[d], dz[d] = dir[0], dir[1], dir[2]
-	}
-	transform.ParallelRanges(nc[2]*nc[1], 1, func(lo, hi int) {
-		for row := lo; row < hi; row++ {
-			k, j := row/nc[1], row%nc[1]
-			for i := range nc[0] {
-				c := (k*nc[1]+j)*nc[0] + i
-				x := corner(i, j, k)
-				inside[c] = true
-				for d := range dx {
-					if dx[d]*x[0]+dy[d]*x[1]+dz[d]*x[2] > h.reach[d]+h.tol {
-						beyond[c*words+d/64] |= 1 << (d % 64)
-						inside[c] = false
-					}
-				}
-			}
-		}
-	})
-	h.class = make([]int8, h.n[0]*h.n[1]*h.n[2])
-	for k := range h.n[2] {
-		for j := range h.n[1] {
-			for i := range h.n[0] {
-				allIn := true
-				common := make([]uint64, words)
-				for w := range common {
-					common[w] = ^uint64(0)
-				}
-				for dk := range 2 {
-					if h.dim == 2 && dk == 1 {
-						break
-					}
-					for dj := range 2 {
-						for di := range 2 {
-							c := ((k+dk)*nc[1]+j+dj)*nc[0] + i + di
-							allIn = allIn && inside[c]
-							for w := range common {
-								common[w] &= beyond[c*words+w]
-							}
-						}
-					}
-				}
-				out := false
-				for _, w := range common {
-					out = out || w != 0
-				}
-				b := (k*h.n[1]+j)*h.n[0] + i
-				switch {
-				case allIn && h.step[0] > 0 && h.step[1] > 0 && (h.dim == 2 || h.step[2] > 0):
-					h.class[b] = 1
-				case out:
-					h.class[b] = -1
-				}
-			}
-		}
-	}
-}
-
-// principalAxes are the unit eigenvectors of the points' covariance (none
-// when it cannot be factorised).
-func principalAxes(points []transform.Vec) []transform.Vec {
-	c := centroidOf(points)
-	cov := mat.NewSymDense(3, nil)
-	for _, p := range points {
-		d := p.Sub(c)
-		for i := range 3 {
-			for j := i; j < 3; j++ {
-				cov.SetSym(i, j, cov.At(i, j)+d[i]*d[j])
-			}
-		}
-	}
-	var es mat.EigenSym
-	if !es.Factorize(cov, true) {
-		return nil
-	}
-	var v mat.Dense
-	es.VectorsTo(&v)
-	axes := make([]transform.Vec, 3)
-	for k := range 3 {
-		axes[k] = transform.Vec{v.At(0, k), v.At(1, k), v.At(2, k)}
-	}
-	return axes
-}
-
-// box is the index of the classification box that holds x, or −1 when x
-// lies outside the bounding box (beyond a rounding margin).
-func (h *supportHull) box(x transform.Vec) int {
-	var idx [3]int
-	for k := range h.dim {
-		if h.step[k] == 0 {
-			continue
-		}
-		f := (x[k] - h.lo[k]) / h.step[k]
-		if f < -1e-6 || f > float64(h.n[k])+1e-6 {
-			return -1
-		}
-		idx[k] = min(max(int(f), 0), h.n[k]-1)
-	}
-	return (idx[2]*h.n[1]+idx[1])*h.n[0] + idx[0]
-}
-
-func (h supportHull) contains(x transform.Vec) bool {
-	b := h.box(x)
-	if b < 0 {
-		// Outside the bounding box, hence outside the hull, up to the
-		// tolerance the planes allow.
-		return false
-	}
-	switch h.class[b] {
-	case 1:
-		return true
-	case -1:
-		return false
-	}
-	for k, d := range h.dirs {
-		if d[0]*x[0]+d[1]*x[1]+d[2]*x[2] > h.reach[k]+h.tol {
-			return false
-		}
-	}
-	return true
 }

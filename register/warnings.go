@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"ferry/landmarks"
+	"ferry/register/internal/hull"
 	"ferry/transform"
 )
 
@@ -107,7 +108,7 @@ func (m *Mapper) Warnings() []string { return m.u.Warnings }
 
 // looStatus is the map status each landmark would have when predicted from
 // the others: StatusExtrapolated when it lies outside their hull (the
-// support planes of supportHull), StatusOK otherwise. It lets the check's
+// support planes of package hull), StatusOK otherwise. It lets the check's
 // calibration be split as map's cells are.
 func looStatus(src []transform.Vec, dim int) []string {
 	out := make([]string, len(src))
@@ -117,8 +118,9 @@ func looStatus(src []transform.Vec, dim int) []string {
 	if len(src) < dim+2 {
 		return out
 	}
-	h := newSupportHull(src, dim)
-	for _, d := range h.dirs {
+	h := hull.NewPlanes(src, dim, 0)
+	tol := h.Tolerance()
+	for _, d := range h.Dirs {
 		// The largest and second largest reach along d, and who holds the
 		// largest.
 		top, second, who := math.Inf(-1), math.Inf(-1), -1
@@ -131,7 +133,7 @@ func looStatus(src []transform.Vec, dim int) []string {
 				second = v
 			}
 		}
-		if who >= 0 && top > second+h.tol {
+		if who >= 0 && top > second+tol {
 			out[who] = StatusExtrapolated
 		}
 	}
