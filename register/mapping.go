@@ -7,6 +7,7 @@ import (
 
 	"gonum.org/v1/gonum/spatial/kdtree"
 
+	"ferry/internal/parallel"
 	"ferry/register/internal/hull"
 	"ferry/transform"
 )
@@ -397,7 +398,7 @@ func (m *Mapper) MapAllContext(ctx context.Context, xs []transform.Vec, cellSD *
 
 // each runs f for every index in [0, n) on all cores.
 func each(n int, f func(i int)) {
-	transform.ParallelRanges(n, 256, func(lo, hi int) {
+	parallel.Ranges(n, 256, func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			f(i)
 		}

@@ -5,8 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
+
+	"ferry/internal/parallel"
 )
 
 // Vec is a position or a displacement in micrometres.
@@ -146,35 +146,19 @@ func ApplyAll(t Transform, dst, src []Vec) {
 	if len(dst) != len(src) {
 		panic("transform: ApplyAll with dst and src of different lengths")
 	}
-	ParallelRanges(len(src), 2048, func(lo, hi int) {
+	parallel.Ranges(len(src), 2048, func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			dst[i] = t.Apply(src[i])
 		}
 	})
 }
 
-// ParallelRanges splits [0, n) into one contiguous range per core and runs
-// work on each, for jobs whose every index costs about the same. Jobs of
-// fewer than 2·minChunk indices run on the calling goroutine, where starting
-// goroutines would cost more than they save.
-func ParallelRanges(n, minChunk int, work func(lo, hi int)) {
-	workers := min(runtime.GOMAXPROCS(0), n/max(minChunk, 1))
-	if workers < 2 {
-		work(0, n)
-		return
-	}
-	var wg sync.WaitGroup
-	chunk := (n + workers - 1) / workers
-	for lo := 0; lo < n; lo += chunk {
-		hi := min(lo+chunk, n)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			work(lo, hi)
-		}()
-	}
-	wg.Wait()
-}
+// ParallelRanges is parallel.Ranges, kept while the packages that still
+// call it by this name move over.
+//
+// Deprecated: geometry is no place for a worker pool; use
+// ferry/internal/parallel.Ranges.
+func ParallelRanges(n, minChunk int, work func(lo, hi int)) { parallel.Ranges(n, minChunk, work) }
 
 // Det is the determinant of m.
 func (m Mat) Det() float64 {

@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"ferry/internal/parallel"
 	"ferry/progress"
 	"ferry/transform"
 )
@@ -173,7 +174,7 @@ func SampleField(ctx context.Context, f transform.Transform, a transform.Mat, t 
 	rep.Step("sampling the displacement field: rows", g.Size[1]*g.Size[2])
 	defer rep.Finish()
 	rows := g.Size[1] * g.Size[2]
-	transform.ParallelRanges(rows, 1, func(lo, hi int) {
+	parallel.Ranges(rows, 1, func(lo, hi int) {
 		for r := lo; r < hi; r++ {
 			if ctx.Err() != nil {
 				return

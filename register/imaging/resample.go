@@ -3,10 +3,9 @@ package imaging
 import (
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
 	"sync/atomic"
 
+	"ferry/internal/parallel"
 	"ferry/transform"
 )
 
@@ -332,10 +331,11 @@ func (f *field) position(i, j int) transform.Vec {
 func (f *field) run(emit emitFunc) int {
 	w, h := f.grid.Width, f.grid.Height
 	if f.exact {
-		return inParallel(h, func() (func(int), func() int) {
-			c := newCell(f, emit)
-			return c.exactRow, func() int { return c.evaluations }
-		})
+		return evaluations(parallel.Blocks(h, 1, func() *cell { return newCell(f, emit) }, func(c *cell, lo, hi int) {
+			for j := lo; j < hi; j++ {
+				c.exactRow(j)
+			}
+		}))
 	}
 	// The corners, edge midpoints and centres of all root cells form a
 	// lattice of spacing rootCell/2, evaluated first so that neighbouring
@@ -345,18 +345,21 @@ func (f *field) run(emit emitFunc) int {
 	lat := &lattice{width: 2*across + 1, height: 2*down + 1}
 	lat.nodes = make([]transform.Vec, lat.width*lat.height)
 	lat.ok = make([]bool, len(lat.nodes))
-	inParallel(lat.height, func() (func(int), func() int) {
-		return func(b int) {
+	parallel.Ranges(lat.height, 1, func(b0, b1 int) {
+		for b := b0; b < b1; b++ {
 			for a := range lat.width {
 				n := b*lat.width + a
 				lat.nodes[n], lat.ok[n] = f.mapPoint(f.position(a*rootCell/2, b*rootCell/2))
 			}
-		}, func() int { return 0 }
+		}
 	})
-	refined := inParallel(across*down, func() (func(int), func() int) {
-		c := newCell(f, emit)
-		return func(n int) { c.root(lat, n%across, n/across) }, func() int { return c.evaluations }
-	})
+	// Root cells differ in cost (a folded or steep one is refined deeper),
+	// so they are handed out one by one.
+	refined := evaluations(parallel.Blocks(across*down, 1, func() *cell { return newCell(f, emit) }, func(c *cell, lo, hi int) {
+		for n := lo; n < hi; n++ {
+			c.root(lat, n%across, n/across)
+		}
+	}))
 	return len(lat.nodes) + refined
 }
 
@@ -367,29 +370,13 @@ type lattice struct {
 	ok            []bool
 }
 
-// inParallel runs jobs 0 … n−1 on all cores. Each worker gets its own job
-// function and counter from newWorker; the counters are summed.
-func inParallel(n int, newWorker func() (job func(int), count func() int)) int {
-	workers := max(min(runtime.GOMAXPROCS(0), n), 1)
-	var next, total atomic.Int64
-	var wg sync.WaitGroup
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			job, count := newWorker()
-			for {
-				k := int(next.Add(1) - 1)
-				if k >= n {
-					break
-				}
-				job(k)
-			}
-			total.Add(int64(count()))
-		}()
+// evaluations is the number of exact evaluations the workers' cells made.
+func evaluations(cells []*cell) int {
+	n := 0
+	for _, c := range cells {
+		n += c.evaluations
 	}
-	wg.Wait()
-	return int(total.Load())
+	return n
 }
 
 // Node states in a cell's cache.

@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 
+	"ferry/internal/parallel"
 	"ferry/progress"
 	"ferry/register/outfile"
 	"ferry/transform"
@@ -269,11 +270,11 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 					}
 				}
 				counts := make([][2]int, rows)
-				inParallel(rows, func() (func(int), func() int) {
-					return func(j int) {
+				parallel.Ranges(rows, 1, func(lo, hi int) {
+					for j := lo; j < hi; j++ {
 						o, f := smp.sampleRow(out[(j0+j)*w:(j0+j+1)*w], pos[j*w:(j+1)*w], ok[j*w:(j+1)*w])
 						counts[j] = [2]int{o, f}
-					}, func() int { return 0 }
+					}
 				})
 				for _, c := range counts {
 					rep.Outside += c[0]

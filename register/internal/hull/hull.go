@@ -3,6 +3,7 @@ package hull
 import (
 	"math"
 
+	"ferry/internal/parallel"
 	"ferry/transform"
 )
 
@@ -71,7 +72,7 @@ func (h *Hull) classify(points []transform.Vec) {
 	for d, dir := range h.Dirs {
 		dx[d], dy[d], dz[d] = dir[0], dir[1], dir[2]
 	}
-	transform.ParallelRanges(nc[2]*nc[1], 1, func(lo, hi int) {
+	parallel.Ranges(nc[2]*nc[1], 1, func(lo, hi int) {
 		for row := lo; row < hi; row++ {
 			k, j := row/nc[1], row%nc[1]
 			for i := range nc[0] {

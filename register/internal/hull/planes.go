@@ -5,6 +5,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"ferry/internal/parallel"
 	"ferry/transform"
 )
 
@@ -39,7 +40,7 @@ func NewPlanes(points []transform.Vec, dim int, margin float64) Planes {
 	// so neither does the result.
 	const block = 8
 	nBlocks := (len(p.Dirs) + block - 1) / block
-	transform.ParallelRanges(nBlocks, 1, func(b0, b1 int) {
+	parallel.Ranges(nBlocks, 1, func(b0, b1 int) {
 		for blk := b0; blk < b1; blk++ {
 			lo, hi := blk*block, min((blk+1)*block, len(p.Dirs))
 			var far, near [block]float64
