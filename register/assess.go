@@ -3,6 +3,7 @@ package register
 import (
 	"context"
 	"errors"
+	"ferry/internal/sample"
 	"ferry/progress"
 	"fmt"
 	"math"
@@ -753,14 +754,14 @@ func kindWeights(p *Problem, score []float64, flagged []bool) ([]float64, map[la
 	if len(byKind) < 2 {
 		return nil, nil
 	}
-	overall := median(all)
+	overall := sample.Median(all)
 	noise := map[landmarks.Kind]float64{}
 	lo, hi := math.Inf(1), 0.0
 	for k, sc := range byKind {
 		if len(sc) < minPerKind {
 			return nil, nil
 		}
-		noise[k] = median(sc) / overall
+		noise[k] = sample.Median(sc) / overall
 		lo, hi = math.Min(lo, noise[k]), math.Max(hi, noise[k])
 	}
 	if !(hi > weightRatio*lo) {
@@ -809,7 +810,7 @@ func score(f *fitted) ModelScore {
 	}
 	mean, se := meanStdErr(sq)
 	return ModelScore{
-		Model: f.kind, Smoothing: f.smoothing, RMS: math.Sqrt(mean), Median: median(e),
+		Model: f.kind, Smoothing: f.smoothing, RMS: math.Sqrt(mean), Median: sample.Median(e),
 		Max: maxOf(e), MeanSquare: mean, StdErr: se, Mirrored: f.res.Mirrored,
 		sq: sq,
 	}
@@ -920,18 +921,6 @@ func pick(v []float64, idx []int) []float64 {
 		out[k] = v[i]
 	}
 	return out
-}
-
-func median(v []float64) float64 {
-	if len(v) == 0 {
-		return math.NaN()
-	}
-	s := append([]float64(nil), v...)
-	sort.Float64s(s)
-	if len(s)%2 == 1 {
-		return s[len(s)/2]
-	}
-	return 0.5 * (s[len(s)/2-1] + s[len(s)/2])
 }
 
 func maxOf(v []float64) float64 {

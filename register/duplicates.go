@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"sort"
 
+	"ferry/internal/sample"
 	"ferry/transform"
 )
 
@@ -90,13 +91,13 @@ func farOutlier(p *Problem) error {
 			for i, q := range side.pos {
 				vals[i] = q[k]
 			}
-			centre[k] = median(vals)
+			centre[k] = sample.Median(vals)
 		}
 		dist := make([]float64, p.Len())
 		for i, q := range side.pos {
 			dist[i] = q.Sub(centre).Norm()
 		}
-		typical := median(dist)
+		typical := sample.Median(dist)
 		if !(typical > coincidentUM) {
 			continue
 		}

@@ -5,6 +5,7 @@ import (
 	"sort"
 
 	"gonum.org/v1/gonum/integrate/quad"
+	"gonum.org/v1/gonum/stat/distuv"
 
 	"ferry/transform"
 )
@@ -244,24 +245,10 @@ func chiSquarePDF(k int, x float64) float64 {
 	}
 }
 
-// chiSquareQuantile inverts chiSquareCDF by bisection.
+// chiSquareQuantile is the p-quantile of the χ² distribution with k
+// degrees of freedom.
 func chiSquareQuantile(k int, p float64) float64 {
-	lo, hi := 0.0, 1.0
-	for chiSquareCDF(k, hi) < p {
-		hi *= 2
-	}
-	for range 200 {
-		mid := 0.5 * (lo + hi)
-		if chiSquareCDF(k, mid) < p {
-			lo = mid
-		} else {
-			hi = mid
-		}
-		if hi-lo <= 1e-14*hi {
-			break
-		}
-	}
-	return 0.5 * (lo + hi)
+	return distuv.ChiSquared{K: float64(k)}.Quantile(p)
 }
 
 // Radius95 is the table of 95 % radii for dim dimensions, read from the

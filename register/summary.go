@@ -9,6 +9,7 @@ import (
 	"strings"
 	"text/tabwriter"
 
+	"ferry/internal/sample"
 	"ferry/landmarks"
 	"ferry/transform"
 )
@@ -94,7 +95,7 @@ func (a *Assessment) JSON() CheckJSON {
 			errs = append(errs, l.LOOError)
 		}
 	}
-	out.RMSUM, out.MedianUM, out.MaxUM = round6(rms(errs)), round6(median(errs)), round6(maxOf(errs))
+	out.RMSUM, out.MedianUM, out.MaxUM = round6(rms(errs)), round6(sample.Median(errs)), round6(maxOf(errs))
 	for _, m := range a.Models {
 		mj := ModelJSON{Model: string(m.Model), Smoothing: m.Smoothing, RMSUM: round6(m.RMS),
 			MedianUM: round6(m.Median), MaxUM: round6(m.Max), Mirrored: m.Mirrored}
@@ -236,7 +237,7 @@ func WriteCheckTable(w io.Writer, a *Assessment) {
 	sort.Slice(kinds, func(i, j int) bool { return kinds[i] < kinds[j] })
 	for _, k := range kinds {
 		e := byKind[k]
-		fmt.Fprintf(tw, "  %s\t%d\t%.2f\t%.2f\t%.2f\t%d\t\n", k, len(e), rms(e), median(e), maxOf(e), flagged[k])
+		fmt.Fprintf(tw, "  %s\t%d\t%.2f\t%.2f\t%.2f\t%d\t\n", k, len(e), rms(e), sample.Median(e), maxOf(e), flagged[k])
 	}
 	tw.Flush()
 	c := a.Calibration

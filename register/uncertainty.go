@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/spatial/kdtree"
 
+	"ferry/internal/sample"
 	"ferry/landmarks"
 	"ferry/transform"
 )
@@ -182,7 +183,7 @@ func nearestSpacing(points []transform.Vec) float64 {
 			}
 		}
 	}
-	return median(d)
+	return sample.Median(d)
 }
 
 func newPointTree(points []transform.Vec) *kdtree.Tree {

@@ -6,6 +6,7 @@ import (
 	"math"
 	"strings"
 
+	"ferry/internal/sample"
 	"ferry/landmarks"
 	"ferry/register/internal/hull"
 	"ferry/transform"
@@ -27,7 +28,7 @@ func (a *Assessment) MedianLOO() float64 {
 			e = append(e, l.LOOError)
 		}
 	}
-	return median(e)
+	return sample.Median(e)
 }
 
 // Unresolved says in one line why the registration cannot resolve cells at

@@ -735,27 +735,3 @@ func edgesOf(a *association, m marginals, i int) int {
 	}
 	return n
 }
-
-// chiSquareQuantile is the p-quantile of the χ² distribution with 2 or 3
-// degrees of freedom, by bisection of its closed-form distribution function.
-func chiSquareQuantile(k int, p float64) float64 {
-	cdf := func(x float64) float64 {
-		if k == 2 {
-			return -math.Expm1(-x / 2)
-		}
-		return math.Erf(math.Sqrt(x/2)) - math.Sqrt(2*x/math.Pi)*math.Exp(-x/2)
-	}
-	lo, hi := 0.0, 1.0
-	for cdf(hi) < p {
-		hi *= 2
-	}
-	for range 200 {
-		mid := 0.5 * (lo + hi)
-		if cdf(mid) < p {
-			lo = mid
-		} else {
-			hi = mid
-		}
-	}
-	return 0.5 * (lo + hi)
-}

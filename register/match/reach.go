@@ -4,6 +4,8 @@ import (
 	"math"
 	"slices"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"ferry/register"
 	"ferry/transform"
 )
@@ -143,4 +145,10 @@ func (d *Decisions) subset(keep []int) *Decisions {
 		}
 	}
 	return out
+}
+
+// chiSquareQuantile is the p-quantile of the χ² distribution with k
+// degrees of freedom.
+func chiSquareQuantile(k int, p float64) float64 {
+	return distuv.ChiSquared{K: float64(k)}.Quantile(p)
 }

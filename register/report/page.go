@@ -10,6 +10,7 @@ import (
 	"sort"
 	"strings"
 
+	"ferry/internal/sample"
 	"ferry/register"
 	"ferry/transform"
 )
@@ -337,28 +338,11 @@ func kindRows(ls []register.LandmarkJSON) []kindRow {
 				ss += x * x
 				mx = math.Max(mx, x)
 			}
-			r.RMS, r.Median, r.Max = um(math.Sqrt(ss/float64(len(e)))), um(medianOf(e)), um(mx)
+			r.RMS, r.Median, r.Max = um(math.Sqrt(ss/float64(len(e)))), um(sample.Median(e)), um(mx)
 		}
 		rows = append(rows, r)
 	}
 	return rows
-}
-
-func medianOf(v []float64) float64 {
-	var s []float64
-	for _, x := range v {
-		if !math.IsNaN(x) {
-			s = append(s, x)
-		}
-	}
-	if len(s) == 0 {
-		return math.NaN()
-	}
-	sort.Float64s(s)
-	if len(s)%2 == 1 {
-		return s[len(s)/2]
-	}
-	return (s[len(s)/2-1] + s[len(s)/2]) / 2
 }
 
 func (d *pageData) drawVectors(pg *Page, ck *register.CheckJSON, source []transform.Vec, tr transform.Transform) {
@@ -483,7 +467,7 @@ func summariseCells(cells []Cell, file string, res *mapResult) *cellSummary {
 	for _, st := range others {
 		s.Counts = append(s.Counts, statusCount{Status: st, N: counts[st], Share: share(counts[st], len(cells))})
 	}
-	s.MedianR95, s.MaxR95 = um(medianOf(r95)), um(maxOf(r95))
+	s.MedianR95, s.MaxR95 = um(sample.Median(r95)), um(maxOf(r95))
 	if res != nil {
 		s.Placed, s.NotPlaced = res.cellsPlaced, res.cellsMissing
 	}
@@ -515,7 +499,7 @@ func (d *pageData) summariseMatches(ms []Match, file string) {
 	for _, st := range []string{MatchMatched, MatchAmbiguous, MatchUnmatched} {
 		s.Counts = append(s.Counts, statusCount{Status: st, N: counts[st], Share: share(counts[st], len(ms))})
 	}
-	s.MedianP, s.MedianDist = probability(medianOf(p)), um(medianOf(dist))
+	s.MedianP, s.MedianDist = probability(sample.Median(p)), um(sample.Median(dist))
 	d.Matches = s
 }
 
