@@ -7,6 +7,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -67,7 +68,7 @@ func TestCoverageOverScenarios(t *testing.T) {
 		sd := s.Params.CellSDUM
 		for _, c := range s.Cells {
 			got := m.Map(c.SourceUM, &sd)
-			if got.Status != StatusOK {
+			if got.Status != status.OK {
 				continue
 			}
 			e := got.Pos.Sub(c.TrueTargetUM).Norm()

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"ferry/register/internal/families"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -18,18 +19,18 @@ type familyOutcome struct {
 	name                  string
 	wrong, found, falseFl int
 	// inside and total per map status of the held-out cells.
-	inside, total map[string]int
+	inside, total map[status.Status]int
 	p90, p95      float64
 	// p95Hand is the cells' 95th-percentile error with the true mistakes
 	// removed by hand.
 	p95Hand float64
 }
 
-func (o familyOutcome) coverage(status string) float64 {
-	if o.total[status] == 0 {
+func (o familyOutcome) coverage(st status.Status) float64 {
+	if o.total[st] == 0 {
 		return math.NaN()
 	}
-	return float64(o.inside[status]) / float64(o.total[status])
+	return float64(o.inside[st]) / float64(o.total[st])
 }
 
 func familyProblem(s *families.Scenario, keep func(i int) bool) *Problem {
@@ -48,13 +49,13 @@ func familyProblem(s *families.Scenario, keep func(i int) bool) *Problem {
 
 // mapCells maps the scenario's cells through the fit of p and returns the
 // errors and the coverage counts per status.
-func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (errs []float64, inside, total map[string]int) {
+func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (errs []float64, inside, total map[status.Status]int) {
 	m, _ := mapperFor(t, p, set)
 	xs := make([]transform.Vec, len(s.Cells))
 	for i, c := range s.Cells {
 		xs[i] = c.Source
 	}
-	inside, total = map[string]int{}, map[string]int{}
+	inside, total = map[status.Status]int{}, map[status.Status]int{}
 	for i, got := range m.MapAll(xs, nil, false) {
 		e := got.Pos.Sub(s.Cells[i].Truth).Norm()
 		errs = append(errs, e)
@@ -102,7 +103,7 @@ func quantile(v []float64, q float64) float64 {
 func (o familyOutcome) String() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "%-26s found %d/%d false %d  p95 %.2f (hand %.2f)", o.name, o.found, o.wrong, o.falseFl, o.p95, o.p95Hand)
-	for _, st := range []string{StatusOK, StatusIsolated, StatusExtrapolated} {
+	for _, st := range []status.Status{status.OK, status.Isolated, status.Extrapolated} {
 		if o.total[st] > 0 {
 			fmt.Fprintf(&b, "  %s %.3f (%d)", st, o.coverage(st), o.total[st])
 		}
@@ -146,7 +147,7 @@ func TestFamilies(t *testing.T) {
 		specs []families.Spec
 	}{{"clean", families.Clean()}, {"mistakes", families.Mistakes()}} {
 		falseFl, found, wrong := 0, 0, 0
-		pool := map[string]*pooled{StatusOK: {}, StatusExtrapolated: {}}
+		pool := map[status.Status]*pooled{status.OK: {}, status.Extrapolated: {}}
 		var covs []float64
 		for _, seed := range seeds {
 			for _, spec := range group.specs {

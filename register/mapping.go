@@ -9,31 +9,35 @@ import (
 
 	"ferry/internal/parallel"
 	"ferry/register/internal/hull"
+	"ferry/status"
 	"ferry/transform"
 )
 
-// The statuses of a mapped point, from the most to the least serious; a
-// point gets the first that applies.
+// The statuses of a mapped point under their former names.
+//
+// Deprecated: the statuses are package status's; these names stay until
+// the packages that still use them move over.
 const (
-	StatusNoInverse    = "no_inverse"   // --inverse: no source point maps onto it
-	StatusFolded       = "folded"       // the transform folds here: positions are not one-to-one
-	StatusExtrapolated = "extrapolated" // outside the landmarks' hull
-	StatusIsolated     = "isolated"     // inside the hull but far from every landmark
-	StatusOK           = "ok"
+	StatusNoInverse    = status.NoInverse
+	StatusFolded       = status.Folded
+	StatusExtrapolated = status.Extrapolated
+	StatusIsolated     = status.Isolated
+	StatusOK           = status.OK
 )
 
 // Mapped is one mapped point with its uncertainty.
 type Mapped struct {
 	// Pos is the mapped position (µm); meaningless when Status is
-	// StatusNoInverse.
+	// status.NoInverse.
 	Pos transform.Vec
 	// Cov is the covariance of Pos (µm²), SD the square roots of its
 	// diagonal, R95 the radius of the sphere (circle in 2-D) around Pos that
 	// holds the true position with 95 % probability.
-	Cov    transform.Mat
-	SD     transform.Vec
-	R95    float64
-	Status string
+	Cov transform.Mat
+	SD  transform.Vec
+	R95 float64
+	// Status is the most serious of the mapping statuses that applies.
+	Status status.Status
 }
 
 // Mapper maps points through a fitted transform with their uncertainty. It is
@@ -136,7 +140,7 @@ func (m *Mapper) finishForward(x transform.Vec, factor transform.Mat, cellSD *tr
 func (m *Mapper) MapInverse(q transform.Vec, cellSD *transform.Vec) Mapped {
 	x, err := m.t.Invert(q)
 	if err != nil {
-		return Mapped{Status: StatusNoInverse}
+		return Mapped{Status: status.NoInverse}
 	}
 	return m.finishInverse(x, m.factor(x), cellSD)
 }
@@ -145,7 +149,7 @@ func (m *Mapper) finishInverse(x transform.Vec, factor transform.Mat, cellSD *tr
 	jac := m.t.Jacobian(x)
 	inv, ok := jac.Inverse()
 	if !ok {
-		return Mapped{Pos: x, Status: StatusFolded}
+		return Mapped{Pos: x, Status: status.Folded}
 	}
 	cov := m.covariance(factor, jac, nil)
 	if cellSD != nil {
@@ -170,13 +174,13 @@ func (m *Mapper) finish(p Mapped, x transform.Vec, jac transform.Mat) Mapped {
 	p.R95 = m.radii.Radius(p.Cov)
 	switch {
 	case jac.Det()*m.handSign <= 0:
-		p.Status = StatusFolded
+		p.Status = status.Folded
 	case !m.hull.Contains(x):
-		p.Status = StatusExtrapolated
+		p.Status = status.Extrapolated
 	case m.isolated(x):
-		p.Status = StatusIsolated
+		p.Status = status.Isolated
 	default:
-		p.Status = StatusOK
+		p.Status = status.OK
 	}
 	return p
 }
@@ -367,7 +371,7 @@ func (m *Mapper) mapAll(xs []transform.Vec, cellSD *transform.Vec, inverse, onGr
 	each(len(xs), func(i int) {
 		switch {
 		case !ok[i]:
-			out[i] = Mapped{Status: StatusNoInverse}
+			out[i] = Mapped{Status: status.NoInverse}
 		case inverse:
 			out[i] = m.finishInverse(src[i], factors[i], cellSD)
 		default:

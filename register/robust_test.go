@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -107,15 +108,15 @@ func TestWriteMappedRefusesNonFinite(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	good := Mapped{Pos: transform.Vec{1, 2, 3}, SD: transform.Vec{1, 1, 1}, R95: 3, Status: StatusOK}
+	good := Mapped{Pos: transform.Vec{1, 2, 3}, SD: transform.Vec{1, 1, 1}, R95: 3, Status: status.OK}
 	tests := []struct {
 		name string
 		bad  Mapped
 		want string
 	}{
-		{"NaN position", Mapped{Pos: transform.Vec{1, math.NaN(), 3}, SD: good.SD, R95: 3, Status: StatusOK}, `cells.csv:4: column "y": cell "c2"`},
-		{"infinite sd", Mapped{Pos: good.Pos, SD: transform.Vec{1, 1, math.Inf(1)}, R95: 3, Status: StatusOK}, `column "sd_z_um"`},
-		{"NaN radius", Mapped{Pos: good.Pos, SD: good.SD, R95: math.NaN(), Status: StatusExtrapolated}, `column "r95_um"`},
+		{"NaN position", Mapped{Pos: transform.Vec{1, math.NaN(), 3}, SD: good.SD, R95: 3, Status: status.OK}, `cells.csv:4: column "y": cell "c2"`},
+		{"infinite sd", Mapped{Pos: good.Pos, SD: transform.Vec{1, 1, math.Inf(1)}, R95: 3, Status: status.OK}, `column "sd_z_um"`},
+		{"NaN radius", Mapped{Pos: good.Pos, SD: good.SD, R95: math.NaN(), Status: status.Extrapolated}, `column "r95_um"`},
 	}
 	for _, tc := range tests {
 		var buf bytes.Buffer

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -18,7 +19,7 @@ import (
 // stale.
 func TestPositionUnits(t *testing.T) {
 	cells := &landmarks.PointSet{Dim: 3, Points: []landmarks.Point{{ID: "c1"}}}
-	mapped := []Mapped{{Pos: transform.Vec{1, 2, 3}, R95: 1, Status: StatusOK}}
+	mapped := []Mapped{{Pos: transform.Vec{1, 2, 3}, R95: 1, Status: status.OK}}
 	voxel := &transform.Vec{0.5, 0.5, 2}
 	told := &transform.Vec{9, 9, 9}
 	dir := t.TempDir()

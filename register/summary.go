@@ -11,6 +11,7 @@ import (
 
 	"ferry/internal/sample"
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -244,7 +245,7 @@ func WriteCheckTable(w io.Writer, a *Assessment) {
 	if c.N > 0 {
 		fmt.Fprintf(w, "\nCalibration: %d of %d landmarks (%.0f %%) have their leave-one-out error inside the predicted 95 %% radius",
 			c.Inside, c.N, 100*c.Share())
-		for _, st := range []string{StatusOK, StatusExtrapolated} {
+		for _, st := range []string{string(status.OK), string(status.Extrapolated)} {
 			if bc, ok := a.CalibrationByStatus[st]; ok && bc.N > 0 {
 				fmt.Fprintf(w, "; %s: %d of %d (%.0f %%)", st, bc.Inside, bc.N, 100*bc.Share())
 			}

@@ -12,6 +12,7 @@ import (
 	"unicode/utf8"
 
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -178,7 +179,7 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 	for i, c := range cells.Points {
 		m := mapped[i]
 		line = appendField(line[:0], c.ID)
-		if m.Status == StatusNoInverse {
+		if m.Status == status.NoInverse {
 			for range 2*cells.Dim + 1 {
 				line = append(line, ',')
 			}
@@ -204,10 +205,10 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 			}
 		}
 		line = append(line, ',')
-		line = appendField(line, m.Status)
+		line = appendField(line, string(m.Status))
 		for k := range cells.Dim {
 			line = append(line, ',')
-			if m.Status == StatusNoInverse {
+			if m.Status == status.NoInverse {
 				continue
 			}
 			// Finite: the same value passed above.
@@ -226,9 +227,9 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 }
 
 // FormatCounts lists status counts in the order of seriousness.
-func FormatCounts(counts map[string]int) string {
+func FormatCounts(counts map[status.Status]int) string {
 	var parts []string
-	for _, s := range []string{StatusOK, StatusIsolated, StatusExtrapolated, StatusFolded, StatusNoInverse} {
+	for _, s := range status.Mapping() {
 		if n := counts[s]; n > 0 {
 			parts = append(parts, fmt.Sprintf("%d %s", n, s))
 		}

@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -19,7 +20,7 @@ func TestWriteMappedQuoting(t *testing.T) {
 	var mapped []Mapped
 	for i, id := range ids {
 		cells.Points = append(cells.Points, landmarks.Point{ID: id, Line: i + 2, Extra: []string{id + "!"}})
-		mapped = append(mapped, Mapped{Pos: transform.Vec{1.5, -0.00001, 3}, SD: transform.Vec{1, 2, 3}, R95: 4, Status: StatusOK})
+		mapped = append(mapped, Mapped{Pos: transform.Vec{1.5, -0.00001, 3}, SD: transform.Vec{1, 2, 3}, R95: 4, Status: status.OK})
 	}
 	var b bytes.Buffer
 	if err := WriteMapped(&b, cells, mapped, NewMappedLayout(cells, FrameTarget, nil), nil); err != nil {

@@ -9,6 +9,7 @@ import (
 	"ferry/internal/sample"
 	"ferry/landmarks"
 	"ferry/register/internal/hull"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -108,13 +109,13 @@ func CheckAndFit(ctx context.Context, set *landmarks.PairSet, exclude []string, 
 func (m *Mapper) Warnings() []string { return m.u.Warnings }
 
 // looStatus is the map status each landmark would have when predicted from
-// the others: StatusExtrapolated when it lies outside their hull (the
-// support planes of package hull), StatusOK otherwise. It lets the check's
+// the others: status.Extrapolated when it lies outside their hull (the
+// support planes of package hull), status.OK otherwise. It lets the check's
 // calibration be split as map's cells are.
 func looStatus(src []transform.Vec, dim int) []string {
 	out := make([]string, len(src))
 	for i := range out {
-		out[i] = StatusOK
+		out[i] = string(status.OK)
 	}
 	if len(src) < dim+2 {
 		return out
@@ -135,7 +136,7 @@ func looStatus(src []transform.Vec, dim int) []string {
 			}
 		}
 		if who >= 0 && top > second+tol {
-			out[who] = StatusExtrapolated
+			out[who] = string(status.Extrapolated)
 		}
 	}
 	return out

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"ferry/register/imaging"
+	"ferry/status"
 )
 
 // uncalibratedStack is a copy of the scenario's in vivo stack whose file
@@ -157,12 +158,12 @@ func TestMarkKey(t *testing.T) {
 		want     string
 	}{
 		{nil, ""},
-		{[]string{"extrapolated", "ok", "ok"}, "; marks: yellow ok (2), vermillion extrapolated (1)"},
-		{[]string{"folded", "ambiguous", "isolated", "matched"}, "; marks: yellow matched (1), reddish purple ambiguous (1), vermillion folded (1), vermillion isolated (1)"},
+		{[]string{"extrapolated", "ok", "ok"}, "; marks: yellow ok (2), reddish purple extrapolated (1)"},
+		{[]string{"folded", "ambiguous", "isolated", "matched"}, "; marks: yellow matched (1), orange isolated (1), reddish purple ambiguous (1), vermillion folded (1)"},
 	} {
 		var marks []imaging.Mark
 		for _, st := range tc.statuses {
-			marks = append(marks, imaging.Mark{Status: st})
+			marks = append(marks, imaging.Mark{Status: status.Status(st)})
 		}
 		if got := markKey(marks); got != tc.want {
 			t.Errorf("markKey(%v) = %q, want %q", tc.statuses, got, tc.want)

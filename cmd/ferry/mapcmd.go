@@ -11,6 +11,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/outfile"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -59,7 +60,7 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			}); err != nil {
 				return err
 			}
-			counts := map[string]int{}
+			counts := map[status.Status]int{}
 			for _, m := range mapped {
 				counts[m.Status]++
 			}

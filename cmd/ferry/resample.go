@@ -17,6 +17,7 @@ import (
 	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/register/report"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -291,11 +292,11 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 	if set.Dim != 3 {
 		return nil, fmt.Errorf("%s: 2-D mapped cells cannot be marked on a plane of a 3-D volume (the file has no z column)", path)
 	}
-	status, r95 := -1, -1
+	statusCol, r95 := -1, -1
 	for i, c := range set.ExtraColumns {
 		switch strings.ToLower(c) {
 		case "status":
-			status = i
+			statusCol = i
 		case "r95_um":
 			r95 = i
 		}
@@ -313,7 +314,7 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 	}
 	pos := make([]transform.Vec, len(set.Points))
 	reach := make([]float64, len(set.Points))
-	states := make([]string, len(set.Points))
+	states := make([]status.Status, len(set.Points))
 	ids := make([]string, len(set.Points))
 	for n, p := range set.Points {
 		pos[n] = p.Pos
@@ -323,8 +324,8 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 				pos[n][k] *= written[k]
 			}
 		}
-		if status >= 0 {
-			states[n] = p.Extra[status]
+		if statusCol >= 0 {
+			states[n] = status.Status(strings.ToLower(strings.TrimSpace(p.Extra[statusCol])))
 		}
 		if r95 >= 0 {
 			if v, err := strconv.ParseFloat(p.Extra[r95], 64); err == nil && v > 0 {
@@ -370,7 +371,8 @@ func readMatchMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mar
 	}
 	var pos []transform.Vec
 	var reach []float64
-	var states, ids []string
+	var states []status.Status
+	var ids []string
 	for _, m := range ms {
 		if !m.CellPlaced {
 			continue
@@ -425,12 +427,15 @@ func imageFormat(out, def string, allowed ...string) (string, error) {
 }
 
 // markKey says which colour marks which status, with the count of each,
-// the good statuses first: "; marks: yellow ok (30), vermillion
+// the good statuses first: "; marks: yellow ok (30), reddish purple
 // extrapolated (26)", or "" without marks.
 func markKey(marks []imaging.Mark) string {
-	names := map[imaging.Colour]string{imaging.Yellow: "yellow", imaging.ReddishPurple: "reddish purple", imaging.Vermillion: "vermillion"}
-	var order []string
-	count := map[string]int{}
+	// The colours in the order of concern, and their names.
+	colours := []imaging.Colour{imaging.Yellow, imaging.Orange, imaging.ReddishPurple, imaging.Vermillion, imaging.BluishGreen}
+	names := []string{"yellow", "orange", "reddish purple", "vermillion", "bluish green"}
+	rank := func(st status.Status) int { return slices.Index(colours, imaging.StatusColour(st)) }
+	var order []status.Status
+	count := map[status.Status]int{}
 	for _, m := range marks {
 		if count[m.Status] == 0 {
 			order = append(order, m.Status)
@@ -440,25 +445,16 @@ func markKey(marks []imaging.Mark) string {
 	if len(order) == 0 {
 		return ""
 	}
-	rank := func(st string) int {
-		switch imaging.MarkColour(st) {
-		case imaging.Yellow:
-			return 0
-		case imaging.ReddishPurple:
-			return 1
-		}
-		return 2
-	}
-	slices.SortStableFunc(order, func(a, b string) int {
-		return cmp.Or(cmp.Compare(rank(a), rank(b)), strings.Compare(a, b))
+	slices.SortStableFunc(order, func(a, b status.Status) int {
+		return cmp.Or(cmp.Compare(rank(a), rank(b)), strings.Compare(string(a), string(b)))
 	})
 	parts := make([]string, len(order))
 	for i, st := range order {
-		label := st
+		label := string(st)
 		if label == "" {
 			label = "no status"
 		}
-		parts[i] = fmt.Sprintf("%s %s (%d)", names[imaging.MarkColour(st)], label, count[st])
+		parts[i] = fmt.Sprintf("%s %s (%d)", names[rank(st)], label, count[st])
 	}
 	return "; marks: " + strings.Join(parts, ", ")
 }

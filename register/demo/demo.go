@@ -20,6 +20,7 @@ import (
 	"ferry/register/refine"
 	"ferry/register/report"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -69,7 +70,7 @@ type Outcome struct {
 	MedianError, P95Error      float64
 	CoveredR95, CoveredR95Good int
 	Good                       int
-	Statuses                   map[string]int
+	Statuses                   map[status.Status]int
 	Elapsed                    time.Duration
 	// Matches summarises match; MatchedRight and MatchedWrong count the
 	// matched cells against the truth, WithCounterpart the cells that have
@@ -134,7 +135,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if err != nil {
 		return nil, err
 	}
-	out := &Outcome{Statuses: map[string]int{}}
+	out := &Outcome{Statuses: map[status.Status]int{}}
 	if out.Files.Files, err = scen.WriteContext(ctx, o.Dir); err != nil {
 		return nil, err
 	}
@@ -222,13 +223,13 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 				sc.Covered++
 			}
 			switch res[i].Status {
-			case match.StatusMatched:
+			case status.Matched:
 				if cands.Points[res[i].Candidate].ID == trueCandidate[c.ID] {
 					sc.MatchedRight++
 				} else {
 					sc.MatchedWrong++
 				}
-			case match.StatusAmbiguous:
+			case status.Ambiguous:
 				sc.Ambiguous++
 			}
 		}
@@ -321,13 +322,13 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 			out.WithCounterpart++
 		}
 		switch r.Status {
-		case match.StatusMatched:
+		case status.Matched:
 			if r.Candidate >= 0 && cands.Points[r.Candidate].ID == want {
 				out.MatchedRight++
 			} else {
 				out.MatchedWrong++
 			}
-		case match.StatusUnmatched:
+		case status.Unmatched:
 			if want == "" {
 				out.UnmatchedRight++
 			}
@@ -406,7 +407,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if inside {
 			out.CoveredR95++
 		}
-		if m.Status == register.StatusOK {
+		if m.Status == status.OK {
 			out.Good++
 			if inside {
 				out.CoveredR95Good++
@@ -458,11 +459,11 @@ func writeOverlay(ctx context.Context, path string, t transform.Transform, stack
 	}
 	pos := make([]transform.Vec, len(mapped))
 	reach := make([]float64, len(mapped))
-	status := make([]string, len(mapped))
+	states := make([]status.Status, len(mapped))
 	for i, m := range mapped {
-		pos[i], reach[i], status[i] = m.Pos, m.R95, m.Status
+		pos[i], reach[i], states[i] = m.Pos, m.R95, m.Status
 	}
-	marks := imaging.PlaneMarks(pos, reach, status, cellIDs, grid)
+	marks := imaging.PlaneMarks(pos, reach, states, cellIDs, grid)
 	img := imaging.Overlay(plane, resampled, marks, imaging.OverlayOptions{PixelUM: grid.Voxel[0]})
 	if err := ctx.Err(); err != nil {
 		return overlayResult{}, err

@@ -400,7 +400,7 @@ func (pl *pointList) write(ctx context.Context, path string, prov register.Prove
 			if !math.IsNaN(c.R95) {
 				r95 = strconv.FormatFloat(c.R95, 'f', 4, 64)
 			}
-			if err := cw.Write(append(row, r95, c.Status)); err != nil {
+			if err := cw.Write(append(row, r95, string(c.Status))); err != nil {
 				return err
 			}
 		}

@@ -14,6 +14,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -258,7 +259,7 @@ func TestWriteNotesCellsOutsideTheField(t *testing.T) {
 	var mapped []register.Mapped
 	for i, p := range sources {
 		cells.Points = append(cells.Points, landmarks.Point{ID: "c" + strconv.Itoa(i)})
-		mapped = append(mapped, register.Mapped{Pos: s.Apply(p), R95: 2, Status: register.StatusExtrapolated})
+		mapped = append(mapped, register.Mapped{Pos: s.Apply(p), R95: 2, Status: status.Extrapolated})
 	}
 	mappedPath := filepath.Join(dir, "mapped.csv")
 	if err := register.WriteMappedTable(context.Background(), mappedPath, register.Provenance{Command: "map"}, cells, mapped, register.FrameTarget, nil); err != nil {

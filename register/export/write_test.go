@@ -14,6 +14,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -28,9 +29,9 @@ func TestWrite(t *testing.T) {
 	// A mapped table in target voxels, with its sidecar.
 	cells := &landmarks.PointSet{Dim: 3, Points: []landmarks.Point{{ID: "a"}, {ID: "b"}, {ID: "c"}}}
 	mapped := []register.Mapped{
-		{Pos: transform.Vec{10, 20, 30}, R95: 2, Status: register.StatusOK},
-		{Status: register.StatusNoInverse},
-		{Pos: transform.Vec{-5, 7.5, 1}, R95: 3, Status: register.StatusExtrapolated},
+		{Pos: transform.Vec{10, 20, 30}, R95: 2, Status: status.OK},
+		{Status: status.NoInverse},
+		{Pos: transform.Vec{-5, 7.5, 1}, R95: 3, Status: status.Extrapolated},
 	}
 	mappedPath := filepath.Join(dir, "mapped.csv")
 	if err := register.WriteMappedTable(context.Background(), mappedPath, register.Provenance{Command: "map"}, cells, mapped, register.FrameTarget, &tv); err != nil {

@@ -3,6 +3,7 @@ package imaging
 import (
 	"math"
 
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -10,7 +11,7 @@ import (
 // whose sphere of radius reach[i] (µm; their r95) meets the plane of grid,
 // or that lie within one page of it, in the plane's pixels. ids, when not
 // nil, name the points; the marks carry them.
-func PlaneMarks(pos []transform.Vec, reach []float64, status, ids []string, grid Grid) []Mark {
+func PlaneMarks(pos []transform.Vec, reach []float64, status []status.Status, ids []string, grid Grid) []Mark {
 	z := grid.Origin[2] + float64(grid.Z)*grid.Voxel[2]
 	var marks []Mark
 	for i, p := range pos {

@@ -4,6 +4,8 @@ import (
 	"image"
 	"image/color"
 	"math"
+
+	"ferry/status"
 )
 
 // Colour is an opaque colour written 0xRRGGBB. It implements color.Color.
@@ -34,12 +36,12 @@ const (
 	// sky blue it gives a near white, so where both planes are bright the
 	// overlay is pale and where only one is, it shows that plane's colour.
 	Orange Colour = 0xE69F00
-	// Yellow (240, 228, 66) marks cells whose status is "ok" or "matched".
+	// Yellow (240, 228, 66) marks cells that need no second look (see
+	// StatusColour).
 	Yellow Colour = 0xF0E442
-	// ReddishPurple (204, 121, 167) marks cells whose status is "ambiguous".
+	// ReddishPurple (204, 121, 167) marks cells to check by eye.
 	ReddishPurple Colour = 0xCC79A7
-	// Vermillion (213, 94, 0) marks cells with any other status
-	// ("extrapolated", "unmatched", …).
+	// Vermillion (213, 94, 0) marks cells whose answer is not to be used.
 	Vermillion Colour = 0xD55E00
 	// Black outlines the marks so that they stand out on bright ground.
 	Black Colour = 0x000000
@@ -55,9 +57,9 @@ type Mark struct {
 	// X and Y are the cell's position in pixels of the plane: column and
 	// row, with pixel centres at whole numbers.
 	X, Y float64
-	// Status chooses the colour (see MarkColour) and the shape (see
+	// Status chooses the colour (see StatusColour) and the shape (see
 	// MarkShapeName).
-	Status string
+	Status status.Status
 	// ID, when not empty, is written beside the mark.
 	ID string
 }
@@ -67,25 +69,35 @@ type Mark struct {
 // (four diagonal strokes), "square" for "ambiguous" (four axis-parallel
 // strokes), "plus" for any other status (four ticks pointing at the cell).
 // Every shape leaves the cell itself uncovered.
-func MarkShapeName(status string) string {
-	switch status {
-	case "", "ok", "matched":
+func MarkShapeName(s status.Status) string {
+	switch s {
+	case "", status.OK, status.Matched:
 		return "diamond"
-	case "ambiguous":
+	case status.Ambiguous:
 		return "square"
 	}
 	return "plus"
 }
 
-// MarkColour is the default colour of a mark of the given status.
-func MarkColour(status string) Colour {
-	switch status {
-	case "", "ok", "matched":
+// StatusColour is the colour of a cell of status s in every figure: the
+// overlay's marks and the report's uncertainty map alike. The colour says
+// how much a cell needs a second look, the shape (which each figure
+// chooses) which status it has: yellow none (ok, matched, or no status
+// given), orange a little (isolated), reddish purple a check by eye
+// (extrapolated, ambiguous), vermillion an answer not to be used (folded,
+// no_inverse, unmatched); bluish green marks a word ferry does not know.
+func StatusColour(s status.Status) Colour {
+	switch s {
+	case "", status.OK, status.Matched:
 		return Yellow
-	case "ambiguous":
+	case status.Isolated:
+		return Orange
+	case status.Extrapolated, status.Ambiguous:
 		return ReddishPurple
+	case status.Folded, status.NoInverse, status.Unmatched:
+		return Vermillion
 	}
-	return Vermillion
+	return BluishGreen
 }
 
 // OverlayOptions steer Overlay. The zero value gives the defaults.
@@ -104,8 +116,9 @@ type OverlayOptions struct {
 	// MarkSize is the distance in pixels from a mark's centre to its
 	// corners; zero means 7.
 	MarkSize int
-	// Colour chooses a mark's colour from its status; nil means MarkColour.
-	Colour func(status string) Colour
+	// Colour chooses a mark's colour from its status; nil means
+	// StatusColour.
+	Colour func(status.Status) Colour
 	// PixelUM, when positive, is the width of a pixel in micrometres: a
 	// scale bar is then drawn in the bottom left corner.
 	PixelUM float64
@@ -120,7 +133,7 @@ type OverlayOptions struct {
 //
 // Each mark is drawn as four short strokes that frame the cell without
 // covering it, in a shape and colour that depend on its status
-// (MarkShapeName, MarkColour), each stroke with a black outline, and its id,
+// (MarkShapeName, StatusColour), each stroke with a black outline, and its id,
 // when it has one, to its right; marks that fall partly outside the image
 // are clipped. With OverlayOptions.PixelUM a scale bar is drawn.
 func Overlay(target *Stack, resampled *Stack, marks []Mark, opt OverlayOptions) *image.RGBA {
@@ -203,7 +216,7 @@ func (o OverlayOptions) withDefaults() OverlayOptions {
 	}
 	o.MarkSize = min(o.MarkSize, 256)
 	if o.Colour == nil {
-		o.Colour = MarkColour
+		o.Colour = StatusColour
 	}
 	return o
 }

@@ -6,6 +6,8 @@ import (
 	"math"
 	"os"
 	"testing"
+
+	"ferry/status"
 )
 
 // plane is a stack of depth 1 with values f(i, j).
@@ -130,7 +132,7 @@ func TestMarks(t *testing.T) {
 		sh := markShapeNamed(MarkShapeName(m.Status), 7)
 		for _, p := range sh.stroke {
 			q := c.Add(p)
-			if got := img.RGBAAt(q.X, q.Y); got != rgb(MarkColour(m.Status)) {
+			if got := img.RGBAAt(q.X, q.Y); got != rgb(StatusColour(m.Status)) {
 				t.Fatalf("%s mark: stroke pixel %v is %v", m.Status, q, got)
 			}
 		}
@@ -158,8 +160,11 @@ func TestMarks(t *testing.T) {
 		t.Errorf("%d stroke pixels", len(sh.stroke))
 	}
 	// Colours follow the status.
-	for status, want := range map[string]Colour{"": Yellow, "ok": Yellow, "matched": Yellow, "ambiguous": ReddishPurple, "extrapolated": Vermillion, "unmatched": Vermillion} {
-		if got := MarkColour(status); got != want {
+	// One colour per status, in every figure: the report's map draws
+	// isolated cells orange and extrapolated ones reddish purple too.
+	for status, want := range map[status.Status]Colour{"": Yellow, "ok": Yellow, "matched": Yellow, "isolated": Orange, "ambiguous": ReddishPurple,
+		"extrapolated": ReddishPurple, "folded": Vermillion, "no_inverse": Vermillion, "unmatched": Vermillion, "other": BluishGreen} {
+		if got := StatusColour(status); got != want {
 			t.Errorf("status %q: colour %06x, want %06x", status, uint32(got), uint32(want))
 		}
 	}
@@ -175,8 +180,8 @@ func TestMarks(t *testing.T) {
 // Statuses are told apart by shape as well as colour, ids are written beside
 // the marks, and a scale bar is drawn when the pixel size is known.
 func TestMarkShapesLabelsAndScale(t *testing.T) {
-	seen := map[string]string{}
-	for _, status := range []string{"matched", "ambiguous", "unmatched"} {
+	seen := map[string]status.Status{}
+	for _, status := range []status.Status{"matched", "ambiguous", "unmatched"} {
 		name := MarkShapeName(status)
 		if other, dup := seen[name]; dup {
 			t.Errorf("statuses %s and %s share the shape %s", other, status, name)

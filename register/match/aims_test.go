@@ -5,6 +5,7 @@ import (
 
 	"ferry/register"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -53,7 +54,7 @@ func TestMatchedAreRightOnSimulatedData(t *testing.T) {
 					n.outsideCell, n.outsideUnmatched, share(n.r95Inside, n.cells))
 				for i, c := range f.sc.Cells {
 					beyond := distanceOutside(f.sc.EMBlock, c.TrueTargetUM)
-					if beyond > res[i].Mapped.R95 && res[i].Status != StatusUnmatched {
+					if beyond > res[i].Mapped.R95 && res[i].Status != status.Unmatched {
 						t.Errorf("seed %d: cell %s lies %.1f µm outside the EM block (r95 %.1f µm) and is %s", seed, c.ID, beyond, res[i].Mapped.R95, res[i].Status)
 					}
 				}
@@ -108,7 +109,7 @@ func exactMapRun(t testing.TB, sc *simulate.Scenario) (tally, []Result) {
 			d[k][k] = sd[k] * sd[k]
 		}
 		cov := j.Mul(d).Mul(j.T())
-		mapped[i] = register.Mapped{Pos: sc.TrueMap(c.SourceUM), Cov: cov, R95: radii.Radius(cov), Status: register.StatusOK}
+		mapped[i] = register.Mapped{Pos: sc.TrueMap(c.SourceUM), Cov: cov, R95: radii.Radius(cov), Status: status.OK}
 	}
 	cands := make([]transform.Vec, len(sc.Candidates))
 	for j, c := range sc.Candidates {

@@ -7,6 +7,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -32,7 +33,7 @@ func TestMatchWithDecisions(t *testing.T) {
 	}
 	plain := runMapped(t, mapped, cands, Options{})
 	for i, r := range plain {
-		if r.Candidate != nearest(cells[i]) || r.Status != StatusMatched {
+		if r.Candidate != nearest(cells[i]) || r.Status != status.Matched {
 			t.Fatalf("cell %d without decisions: %+v", i, r)
 		}
 	}
@@ -43,10 +44,10 @@ func TestMatchWithDecisions(t *testing.T) {
 		Rejected: map[int][]int{},
 	}
 	res := runMapped(t, mapped, cands, Options{Decisions: d})
-	if r := res[0]; r.Candidate != other || r.PMatch != 1 || r.Status != StatusMatched || r.Decision != "accepted" {
+	if r := res[0]; r.Candidate != other || r.PMatch != 1 || r.Status != status.Matched || r.Decision != "accepted" {
 		t.Errorf("accepted cell: %+v", r)
 	}
-	if r := res[1]; r.Candidate != -1 || r.PNone != 1 || r.Status != StatusUnmatched || r.Decision != "none" {
+	if r := res[1]; r.Candidate != -1 || r.PNone != 1 || r.Status != status.Unmatched || r.Decision != "none" {
 		t.Errorf("cell with no counterpart: %+v", r)
 	}
 	// Cell 2's own candidate was accepted for cell 3: it must not get it.

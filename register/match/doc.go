@@ -77,14 +77,14 @@
 //
 // # Status
 //
-//   - StatusUnmatched: the assignment chose no counterpart. PMatch is then
+//   - status.Unmatched: the assignment chose no counterpart. PMatch is then
 //     the posterior probability of no counterpart.
-//   - StatusMatched: the assigned candidate has posterior probability at
+//   - status.Matched: the assigned candidate has posterior probability at
 //     least Options.MinPMatch (default 0.95), which leaves at most 0.05 to
 //     the runner-up and the no-match option together, so the runner-up is
 //     at most a nineteenth of the match; and the cell's mapping is not
 //     folded.
-//   - StatusAmbiguous: any other assignment; the runner-up (the likeliest
+//   - status.Ambiguous: any other assignment; the runner-up (the likeliest
 //     other candidate, when one has a posterior probability of at least
 //     10⁻⁴) is named beside it, and PNone says how likely no counterpart is.
 //

@@ -13,20 +13,18 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
-// The statuses of a match.
+// The statuses of a match under their former names.
+//
+// Deprecated: the statuses are package status's; these names stay until
+// the packages that still use them move over.
 const (
-	// StatusMatched: the cell's counterpart is the candidate named, with
-	// posterior probability at least Options.MinPMatch.
-	StatusMatched = "matched"
-	// StatusAmbiguous: the candidate named is the likeliest, but not clearly;
-	// the runner-up is named beside it.
-	StatusAmbiguous = "ambiguous"
-	// StatusUnmatched: the cell most probably has no counterpart among the
-	// candidates.
-	StatusUnmatched = "unmatched"
+	StatusMatched   = status.Matched
+	StatusAmbiguous = status.Ambiguous
+	StatusUnmatched = status.Unmatched
 )
 
 // The defaults of Options.
@@ -130,7 +128,7 @@ type Result struct {
 	// 10⁻⁴, and PRunnerUp its posterior probability (0 when none).
 	RunnerUp  int
 	PRunnerUp float64
-	Status    string
+	Status    status.Status
 	// Outside reports a cell mapped outside the candidates' volume by more
 	// than its 95 % radius: it is unmatched whatever lies nearest.
 	Outside bool

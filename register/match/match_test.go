@@ -11,6 +11,7 @@ import (
 	"ferry/progress"
 	"ferry/register"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -49,7 +50,7 @@ func mappedAt(pos transform.Vec, sd float64) register.Mapped {
 	for k := range 3 {
 		cov[k][k] = sd * sd
 	}
-	return register.Mapped{Pos: pos, Cov: cov, SD: transform.Vec{sd, sd, sd}, R95: register.NewRadiusTable(3, 0.95).Radius(cov), Status: register.StatusOK}
+	return register.Mapped{Pos: pos, Cov: cov, SD: transform.Vec{sd, sd, sd}, R95: register.NewRadiusTable(3, 0.95).Radius(cov), Status: status.OK}
 }
 
 func runMapped(t *testing.T, mapped []register.Mapped, cands []transform.Vec, opt Options) []Result {
@@ -93,11 +94,11 @@ func checkInvariants(t testing.TB, res []Result, nCands int) {
 			t.Errorf("cell %d: the runner-up is the match", i)
 		}
 		switch {
-		case r.Candidate < 0 && r.Status != StatusUnmatched:
+		case r.Candidate < 0 && r.Status != status.Unmatched:
 			t.Errorf("cell %d: no candidate but status %s", i, r.Status)
-		case r.Candidate >= 0 && r.Status == StatusUnmatched:
+		case r.Candidate >= 0 && r.Status == status.Unmatched:
 			t.Errorf("cell %d: candidate %d but unmatched", i, r.Candidate)
-		case r.Status == StatusMatched && r.PMatch < DefaultMinPMatch:
+		case r.Status == status.Matched && r.PMatch < DefaultMinPMatch:
 			t.Errorf("cell %d: matched with p %v", i, r.PMatch)
 		}
 	}
@@ -120,7 +121,7 @@ func TestMatchCases(t *testing.T) {
 			cells: []register.Mapped{mappedAt(base[555].Add(transform.Vec{0.5, -0.3, 0.8}), 1)},
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
 				r := res[0]
-				if r.Status != StatusMatched || r.Candidate != 555 {
+				if r.Status != status.Matched || r.Candidate != 555 {
 					t.Errorf("got %s candidate %d (p %.4f), want matched 555", r.Status, r.Candidate, r.PMatch)
 				}
 				if want := (transform.Vec{0.5, -0.3, 0.8}).Norm(); math.Abs(r.DistanceUM-want) > 1e-9 {
@@ -135,7 +136,7 @@ func TestMatchCases(t *testing.T) {
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
 				r := res[0]
 				a, b := len(cands)-2, len(cands)-1
-				if r.Status != StatusAmbiguous || r.Candidate != a || r.RunnerUp != b {
+				if r.Status != status.Ambiguous || r.Candidate != a || r.RunnerUp != b {
 					t.Errorf("got %s %d, runner-up %d; want ambiguous %d, runner-up %d (the lower index)", r.Status, r.Candidate, r.RunnerUp, a, b)
 				}
 				if math.Abs(r.PMatch-r.PRunnerUp) > 1e-9 {
@@ -161,7 +162,7 @@ func TestMatchCases(t *testing.T) {
 			cells: []register.Mapped{mappedAt(transform.Vec{75, 75, 150 + 60}, 12)},
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
 				r := res[0]
-				if r.Status != StatusUnmatched || !r.Outside || r.Candidate != -1 || r.PMatch != 1 {
+				if r.Status != status.Unmatched || !r.Outside || r.Candidate != -1 || r.PMatch != 1 {
 					t.Errorf("got %s outside %v candidate %d p %v, want unmatched outside, p 1", r.Status, r.Outside, r.Candidate, r.PMatch)
 				}
 				if !(r.DistanceUM > 55 && r.DistanceUM < 65) {
@@ -173,7 +174,7 @@ func TestMatchCases(t *testing.T) {
 			name: "just outside the volume, uncertain", cands: base,
 			cells: []register.Mapped{mappedAt(transform.Vec{75, 75, 150 + 4}, 6)},
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
-				if r := res[0]; r.Status == StatusMatched || r.Outside {
+				if r := res[0]; r.Status == status.Matched || r.Outside {
 					t.Errorf("got %s (outside %v, p %.4f); a cell this near the face is neither matched nor ruled out", r.Status, r.Outside, r.PMatch)
 				}
 			},
@@ -183,7 +184,7 @@ func TestMatchCases(t *testing.T) {
 			cells: []register.Mapped{mappedAt(centre, 2)},
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
 				r := res[0]
-				if r.Status != StatusUnmatched || r.InReach != 0 || r.Outside {
+				if r.Status != status.Unmatched || r.InReach != 0 || r.Outside {
 					t.Errorf("got %s with %d in reach (outside %v), want unmatched with none in reach", r.Status, r.InReach, r.Outside)
 				}
 			},
@@ -197,7 +198,7 @@ func TestMatchCases(t *testing.T) {
 				if res[1].Candidate != c || res[0].Candidate == c {
 					t.Errorf("got candidates %d and %d; want the nearer cell (2) to take %d", res[0].Candidate, res[1].Candidate, c)
 				}
-				if res[0].Status != StatusUnmatched {
+				if res[0].Status != status.Unmatched {
 					t.Errorf("the farther cell is %s, want unmatched", res[0].Status)
 				}
 			},
@@ -207,7 +208,7 @@ func TestMatchCases(t *testing.T) {
 			cells: []register.Mapped{mappedAt(centre, 2)},
 			check: func(t *testing.T, res []Result, cands []transform.Vec) {
 				r := res[0]
-				if r.Status != StatusUnmatched || !math.IsNaN(r.DistanceUM) || r.RunnerUp != -1 {
+				if r.Status != status.Unmatched || !math.IsNaN(r.DistanceUM) || r.RunnerUp != -1 {
 					t.Errorf("got %s distance %v runner-up %d, want unmatched, no distance, no runner-up", r.Status, r.DistanceUM, r.RunnerUp)
 				}
 			},
@@ -237,17 +238,17 @@ func TestMatch2D(t *testing.T) {
 	var cov transform.Mat
 	cov[0][0], cov[1][1] = 1, 1
 	cells := []register.Mapped{
-		{Pos: transform.Vec{121, 119, 0}, Cov: cov, R95: 2.45, Status: register.StatusOK},  // on candidate (10, 10)
-		{Pos: transform.Vec{300, 120, 0}, Cov: cov, R95: 2.45, Status: register.StatusOK},  // far outside
-		{Pos: transform.Vec{184, 180, 0}, Cov: cov, R95: 2.45, Status: register.StatusOK},  // 4 µm from one: no match is likely too
-		{Pos: transform.Vec{60, 60, 5000}, Cov: cov, R95: 2.45, Status: register.StatusOK}, // z is ignored
+		{Pos: transform.Vec{121, 119, 0}, Cov: cov, R95: 2.45, Status: status.OK},  // on candidate (10, 10)
+		{Pos: transform.Vec{300, 120, 0}, Cov: cov, R95: 2.45, Status: status.OK},  // far outside
+		{Pos: transform.Vec{184, 180, 0}, Cov: cov, R95: 2.45, Status: status.OK},  // 4 µm from one: no match is likely too
+		{Pos: transform.Vec{60, 60, 5000}, Cov: cov, R95: 2.45, Status: status.OK}, // z is ignored
 	}
 	var rec progress.Recorder
 	res := runMapped(t, cells, cands, Options{Dim: 2, PriorCounterpart: 0.9, Progress: &rec})
 	if rec.Done() != len(cells) || rec.Finished() != 1 {
 		t.Errorf("progress: %d of %d cells reported, %d stages finished", rec.Done(), len(cells), rec.Finished())
 	}
-	want := []string{StatusMatched, StatusUnmatched, StatusAmbiguous, StatusMatched}
+	want := []status.Status{status.Matched, status.Unmatched, status.Ambiguous, status.Matched}
 	for i, r := range res {
 		if r.Status != want[i] {
 			t.Errorf("cell %d: %s (candidate %d, p %.4f), want %s", i, r.Status, r.Candidate, r.PMatch, want[i])
@@ -346,7 +347,7 @@ func exactMapRunWithIDs(t testing.TB, sc *simulate.Scenario) (tally, []Result) {
 			d[k][k] = sd[k] * sd[k]
 		}
 		cov := j.Mul(d).Mul(j.T())
-		mapped[i] = register.Mapped{Pos: sc.TrueMap(c.SourceUM), Cov: cov, R95: radii.Radius(cov), Status: register.StatusOK}
+		mapped[i] = register.Mapped{Pos: sc.TrueMap(c.SourceUM), Cov: cov, R95: radii.Radius(cov), Status: status.OK}
 		opt.CellIDs[i] = c.ID
 	}
 	cands := make([]transform.Vec, len(sc.Candidates))

@@ -7,6 +7,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -66,7 +67,7 @@ func matchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 		for o := range r.Options {
 			r.Options[o].Candidate = keep[r.Options[o].Candidate]
 		}
-		if r.Candidate < 0 && r.Mapped.Status != register.StatusNoInverse && full.n > 0 {
+		if r.Candidate < 0 && r.Mapped.Status != status.NoInverse && full.n > 0 {
 			_, r.DistanceUM = full.nearest(flatten(r.Mapped.Pos, opt.Dim))
 		}
 	}
@@ -85,7 +86,7 @@ func reachable(mapped []register.Mapped, cands []transform.Vec, opt Options) []i
 	hit := make([]bool, len(cands))
 	k := min(densityNeighbours, tree.n)
 	for _, mp := range mapped {
-		if mp.Status == register.StatusNoInverse {
+		if mp.Status == status.NoInverse {
 			continue
 		}
 		mu := flatten(mp.Pos, opt.Dim)

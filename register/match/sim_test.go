@@ -8,6 +8,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -124,28 +125,28 @@ func score(sc *simulate.Scenario, res []Result) tally {
 		right := got == c.TrueCandidate
 		if c.TrueCandidate != "" {
 			n.withCounterpart++
-			if r.Status == StatusMatched && right {
+			if r.Status == status.Matched && right {
 				n.counterpartMatchedRight++
 			}
 		}
 		if !sc.EMBlock.Contains(c.TrueTargetUM) {
 			n.outsideCell++
-			if r.Status == StatusUnmatched {
+			if r.Status == status.Unmatched {
 				n.outsideUnmatched++
 			}
 		}
 		switch r.Status {
-		case StatusMatched:
+		case status.Matched:
 			n.matched++
 			if right {
 				n.matchedRight++
 			}
-		case StatusAmbiguous:
+		case status.Ambiguous:
 			n.ambiguous++
 			if right {
 				n.ambiguousRight++
 			}
-		case StatusUnmatched:
+		case status.Unmatched:
 			n.unmatched++
 			if right {
 				n.unmatchedRight++

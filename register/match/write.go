@@ -11,6 +11,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -95,8 +96,8 @@ func WriteMatches(w io.Writer, cells *landmarks.PointSet, cands *landmarks.Point
 		if r.Candidate >= 0 {
 			pMatch = formatP(r.PMatch)
 		}
-		row = append(row[:0], c.ID, cand, pMatch, formatDistance(r.DistanceUM), runner, formatP(r.PRunnerUp), r.Status, formatP(r.PNone))
-		mapped := r.Mapped.Status != register.StatusNoInverse && r.Mapped.Pos.IsFinite()
+		row = append(row[:0], c.ID, cand, pMatch, formatDistance(r.DistanceUM), runner, formatP(r.PRunnerUp), string(r.Status), formatP(r.PNone))
+		mapped := r.Mapped.Status != status.NoInverse && r.Mapped.Pos.IsFinite()
 		for k := range dim {
 			v := ""
 			if mapped {
@@ -200,9 +201,9 @@ func Summarise(cells, cands *landmarks.PointSet, res []Result) (Summary, error) 
 	for i, r := range res {
 		s.PriorCounterpart = r.PriorCounterpart
 		switch r.Status {
-		case StatusMatched:
+		case status.Matched:
 			s.Matched++
-		case StatusAmbiguous:
+		case status.Ambiguous:
 			s.Ambiguous++
 			cand, runner, err := candidateIDs(cands, r)
 			if err != nil {
@@ -212,7 +213,7 @@ func Summarise(cells, cands *landmarks.PointSet, res []Result) (Summary, error) 
 				Cell: cells.Points[i].ID, Candidate: cand, RunnerUp: runner,
 				PMatch: r.PMatch, PRunnerUp: r.PRunnerUp, PNone: r.PNone,
 			})
-		case StatusUnmatched:
+		case status.Unmatched:
 			s.Unmatched++
 			if r.Outside {
 				s.Outside++

@@ -8,6 +8,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -23,12 +24,12 @@ func TestWriteMatches(t *testing.T) {
 		t.Fatal(err)
 	}
 	res := []Result{
-		{Candidate: 1, PMatch: 0.98765, PNone: 0.01, DistanceUM: 1.23456789, RunnerUp: 0, PRunnerUp: 0.00235, Status: StatusMatched,
-			Mapped: register.Mapped{Pos: transform.Vec{2, 4, 6}, R95: 2.5, Status: register.StatusOK}},
-		{Candidate: 0, PMatch: 0.6, PNone: 0.4, DistanceUM: 3, RunnerUp: -1, Status: StatusAmbiguous,
-			Mapped: register.Mapped{Pos: transform.Vec{-0.00001, 1, 2}, R95: 3, Status: register.StatusExtrapolated}},
-		{Candidate: -1, PMatch: 1, PNone: 1, DistanceUM: math.NaN(), RunnerUp: -1, Status: StatusUnmatched, Outside: true,
-			Mapped: register.Mapped{Status: register.StatusNoInverse}},
+		{Candidate: 1, PMatch: 0.98765, PNone: 0.01, DistanceUM: 1.23456789, RunnerUp: 0, PRunnerUp: 0.00235, Status: status.Matched,
+			Mapped: register.Mapped{Pos: transform.Vec{2, 4, 6}, R95: 2.5, Status: status.OK}},
+		{Candidate: 0, PMatch: 0.6, PNone: 0.4, DistanceUM: 3, RunnerUp: -1, Status: status.Ambiguous,
+			Mapped: register.Mapped{Pos: transform.Vec{-0.00001, 1, 2}, R95: 3, Status: status.Extrapolated}},
+		{Candidate: -1, PMatch: 1, PNone: 1, DistanceUM: math.NaN(), RunnerUp: -1, Status: status.Unmatched, Outside: true,
+			Mapped: register.Mapped{Status: status.NoInverse}},
 	}
 	var b bytes.Buffer
 	if err := WriteMatches(&b, cells, cands, res, nil); err != nil {

@@ -1,6 +1,9 @@
 package report
 
-import "ferry/register/imaging"
+import (
+	"ferry/register/imaging"
+	"ferry/status"
+)
 
 // swatch is a colour of the palette: the one register/imaging holds, so
 // that the report's figures and the overlay share their values.
@@ -30,9 +33,10 @@ const (
 )
 
 // cellStyle is how a mapped cell of one status is drawn on the map: the
-// statuses of register.Mapper from the least to the most serious.
+// statuses of register.Mapper from the least to the most serious, in the
+// colours every figure gives them (imaging.StatusColour).
 type cellStyle struct {
-	status string
+	status status.Status
 	fill   swatch
 	shape  shape
 	label  string
@@ -41,11 +45,12 @@ type cellStyle struct {
 // cellStyles lists the drawn statuses in legend order. A status not listed
 // (from a newer map) is drawn as "other".
 func cellStyles() []cellStyle {
-	return []cellStyle{
-		{"ok", yellow, circleShape, "cell: ok"},
-		{"isolated", orange, squareShape, "cell: isolated"},
-		{"extrapolated", reddishPurple, diamondShape, "cell: extrapolated"},
-		{"folded", vermillion, crossShape, "cell: folded"},
-		{"", bluishGreen, downShape, "cell: other status"},
+	shapes := map[status.Status]shape{status.OK: circleShape, status.Isolated: squareShape, status.Extrapolated: diamondShape, status.Folded: crossShape}
+	var styles []cellStyle
+	for _, st := range status.Mapping() {
+		if sh, drawn := shapes[st]; drawn {
+			styles = append(styles, cellStyle{st, imaging.StatusColour(st), sh, "cell: " + string(st)})
+		}
 	}
+	return append(styles, cellStyle{"", bluishGreen, downShape, "cell: other status"})
 }

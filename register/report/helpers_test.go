@@ -9,6 +9,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/simulate"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -73,7 +74,7 @@ func scenarioInput(t testing.TB, dim int, rename func(i int, id string) string) 
 	mapped := mapper.MapAll(pos, nil, false)
 	cells := make([]Cell, len(mapped))
 	for i, m := range mapped {
-		cells[i] = Cell{ID: s.Cells[i].ID, Target: m.Pos, Placed: m.Status != register.StatusNoInverse, R95: m.R95, Status: m.Status}
+		cells[i] = Cell{ID: s.Cells[i].ID, Target: m.Pos, Placed: m.Status != status.NoInverse, R95: m.R95, Status: m.Status}
 	}
 	check := a.JSON()
 	return &Input{

@@ -16,6 +16,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -78,7 +79,7 @@ func newUncertaintyGrid(m *register.Mapper, f field, z float64) *uncertaintyGrid
 	lo, hiAll, hiIn := math.Inf(1), 0.0, 0.0
 	for k, mp := range mapped {
 		g.r95[k] = mp.R95
-		g.inside[k] = mp.Status != register.StatusExtrapolated
+		g.inside[k] = mp.Status != status.Extrapolated
 		if math.IsNaN(mp.R95) || math.IsInf(mp.R95, 0) {
 			continue
 		}
@@ -298,7 +299,7 @@ func (pp pointPlot) Plot(c draw.Canvas, p *plot.Plot) {
 // placedCell is a mapped cell carried back to the source.
 type placedCell struct {
 	source transform.Vec
-	status string
+	status status.Status
 }
 
 // placeCells carries the mapped cells back into the source through the
@@ -386,7 +387,7 @@ func uncertaintyFigure(ck *register.CheckJSON, source []transform.Vec, m *regist
 	legend := newLegend()
 	legend.Add("edge of the landmarks' hull", lineThumb(edge))
 	// Cells go under the landmarks, which are fewer and matter more here.
-	byStatus := map[string][]transform.Vec{}
+	byStatus := map[status.Status][]transform.Vec{}
 	for _, c := range placed {
 		byStatus[styleFor(c.status).status] = append(byStatus[styleFor(c.status).status], c.source)
 	}
@@ -424,10 +425,10 @@ func uncertaintyFigure(ck *register.CheckJSON, source []transform.Vec, m *regist
 }
 
 // styleFor is the drawing style of a cell status.
-func styleFor(status string) cellStyle {
+func styleFor(st status.Status) cellStyle {
 	styles := cellStyles()
 	for _, s := range styles {
-		if s.status == status {
+		if s.status == st {
 			return s
 		}
 	}

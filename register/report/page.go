@@ -12,6 +12,7 @@ import (
 
 	"ferry/internal/sample"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -268,7 +269,7 @@ func (d *pageData) summarise(in *Input) {
 	c := ck.Calibration
 	d.CalibrationShare = fmt.Sprintf("%d of %d landmarks (%s) have their leave-one-out error inside their predicted 95 %% radius",
 		c.Inside, c.N, share(c.Inside, c.N))
-	for _, st := range []string{"ok", "extrapolated"} {
+	for _, st := range []string{string(status.OK), string(status.Extrapolated)} {
 		if bc, found := ck.CalibrationByStatus[st]; found && bc.N > 0 {
 			d.CalibrationShare += fmt.Sprintf("; %s (as map would call it, predicted from the others): %d of %d (%s)", st, bc.Inside, bc.N, share(bc.Inside, bc.N))
 		}
@@ -443,29 +444,28 @@ func maxOf(v []float64) float64 {
 
 func summariseCells(cells []Cell, file string, res *mapResult) *cellSummary {
 	s := &cellSummary{File: file, N: len(cells)}
-	counts := map[string]int{}
+	counts := map[status.Status]int{}
 	var r95 []float64
 	for _, c := range cells {
 		counts[c.Status]++
 		r95 = append(r95, c.R95)
 	}
-	order := []string{register.StatusOK, register.StatusIsolated, register.StatusExtrapolated, register.StatusFolded, register.StatusNoInverse}
-	seen := map[string]bool{}
-	for _, st := range order {
+	seen := map[status.Status]bool{}
+	for _, st := range status.Mapping() {
 		seen[st] = true
 		if counts[st] > 0 {
-			s.Counts = append(s.Counts, statusCount{Status: st, N: counts[st], Share: share(counts[st], len(cells))})
+			s.Counts = append(s.Counts, statusCount{Status: string(st), N: counts[st], Share: share(counts[st], len(cells))})
 		}
 	}
 	var others []string
 	for st := range counts {
 		if !seen[st] {
-			others = append(others, st)
+			others = append(others, string(st))
 		}
 	}
 	sort.Strings(others)
 	for _, st := range others {
-		s.Counts = append(s.Counts, statusCount{Status: st, N: counts[st], Share: share(counts[st], len(cells))})
+		s.Counts = append(s.Counts, statusCount{Status: st, N: counts[status.Status(st)], Share: share(counts[status.Status(st)], len(cells))})
 	}
 	s.MedianR95, s.MaxR95 = um(sample.Median(r95)), um(maxOf(r95))
 	if res != nil {
@@ -476,15 +476,15 @@ func summariseCells(cells []Cell, file string, res *mapResult) *cellSummary {
 
 func (d *pageData) summariseMatches(ms []Match, file string) {
 	s := &matchSummary{File: file, N: len(ms)}
-	counts := map[string]int{}
+	counts := map[status.Status]int{}
 	var p, dist []float64
 	for _, m := range ms {
 		counts[m.Status]++
-		if m.Status == MatchMatched {
+		if m.Status == status.Matched {
 			p = append(p, m.PMatch)
 			dist = append(dist, m.DistanceUM)
 		}
-		if m.Status == MatchAmbiguous {
+		if m.Status == status.Ambiguous {
 			row := matchRow{
 				ID: m.ID, Candidate: m.Candidate, PMatch: probability(m.PMatch), Distance: um(m.DistanceUM),
 				RunnerUp: m.RunnerUp, PRunnerUp: probability(m.PRunnerUp), PNone: probability(m.PNone),
@@ -496,8 +496,8 @@ func (d *pageData) summariseMatches(ms []Match, file string) {
 			s.Ambiguous = append(s.Ambiguous, row)
 		}
 	}
-	for _, st := range []string{MatchMatched, MatchAmbiguous, MatchUnmatched} {
-		s.Counts = append(s.Counts, statusCount{Status: st, N: counts[st], Share: share(counts[st], len(ms))})
+	for _, st := range status.Matching() {
+		s.Counts = append(s.Counts, statusCount{Status: string(st), N: counts[st], Share: share(counts[st], len(ms))})
 	}
 	s.MedianP, s.MedianDist = probability(sample.Median(p)), um(sample.Median(dist))
 	d.Matches = s

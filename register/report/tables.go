@@ -13,6 +13,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -25,7 +26,7 @@ type Cell struct {
 	Placed bool
 	// R95 is the row's r95_um (NaN when empty).
 	R95    float64
-	Status string
+	Status status.Status
 }
 
 // Match is one row of the table of `ferry match`. Numbers left empty in the
@@ -39,7 +40,7 @@ type Match struct {
 	// PNone is the probability that the cell has no counterpart, from the
 	// optional p_none column (NaN without it).
 	PNone  float64
-	Status string
+	Status status.Status
 	// Cell and CandidatePos are the target coordinates of the mapped cell
 	// and of its candidate from the optional columns cell_x_um … and
 	// candidate_x_um … (or cell_x_vox …, in target voxels: see InVoxels);
@@ -51,13 +52,6 @@ type Match struct {
 	// R95 is the optional r95_um (NaN when absent or empty).
 	R95 float64
 }
-
-// The statuses of a match, as the contract names them.
-const (
-	MatchMatched   = "matched"
-	MatchAmbiguous = "ambiguous"
-	MatchUnmatched = "unmatched"
-)
 
 // ReadMapped is ReadMappedTable's cells and dimension.
 func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int, err error) {
@@ -124,7 +118,7 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 	targetVoxel = scale
 	cells := make([]Cell, len(t.rows))
 	for r, row := range t.rows {
-		c := Cell{ID: strings.TrimSpace(row[cols[0]]), Status: strings.TrimSpace(row[cols[4]])}
+		c := Cell{ID: strings.TrimSpace(row[cols[0]]), Status: status.Status(strings.TrimSpace(row[cols[4]]))}
 		if c.ID == "" {
 			return nil, t.fail(r, cols[0], "empty id: every row needs one")
 		}
@@ -263,15 +257,13 @@ func ReadMatches(path string) ([]Match, error) {
 			ID:        strings.TrimSpace(row[cols[0]]),
 			Candidate: strings.TrimSpace(row[cols[1]]),
 			RunnerUp:  strings.TrimSpace(row[cols[4]]),
-			Status:    strings.ToLower(strings.TrimSpace(row[cols[6]])),
+			Status:    status.Status(strings.ToLower(strings.TrimSpace(row[cols[6]]))),
 		}
 		if m.ID == "" {
 			return nil, t.fail(r, cols[0], "empty id: every row needs one")
 		}
-		switch m.Status {
-		case MatchMatched, MatchAmbiguous, MatchUnmatched:
-		default:
-			return nil, t.fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(m.Status)))
+		if !m.Status.IsMatching() {
+			return nil, t.fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(string(m.Status))))
 		}
 		for _, f := range []struct {
 			col int

@@ -15,6 +15,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -37,9 +38,9 @@ func TestReadMappedRoundTrip(t *testing.T) {
 		{ID: "c1", Extra: []string{"0.5"}}, {ID: "c2", Extra: []string{"0.1"}}, {ID: "c3", Extra: []string{""}},
 	}}
 	mapped := []register.Mapped{
-		{Pos: transform.Vec{10, 20, 30}, R95: 2.5, Status: register.StatusOK},
-		{Pos: transform.Vec{-1.25, 0, 7}, R95: 9, Status: register.StatusExtrapolated},
-		{Status: register.StatusNoInverse},
+		{Pos: transform.Vec{10, 20, 30}, R95: 2.5, Status: status.OK},
+		{Pos: transform.Vec{-1.25, 0, 7}, R95: 9, Status: status.Extrapolated},
+		{Status: status.NoInverse},
 	}
 	want := []Cell{
 		{ID: "c1", Target: transform.Vec{10, 20, 30}, Placed: true, R95: 2.5, Status: "ok"},
@@ -104,7 +105,7 @@ func TestReadMappedRoundTrip(t *testing.T) {
 // the columns say so.
 func TestReadMappedRefusesSource(t *testing.T) {
 	cells := &landmarks.PointSet{Dim: 2, Points: []landmarks.Point{{ID: "c1"}}}
-	mapped := []register.Mapped{{Pos: transform.Vec{1, 2}, R95: 1, Status: register.StatusOK}}
+	mapped := []register.Mapped{{Pos: transform.Vec{1, 2}, R95: 1, Status: status.OK}}
 	for _, drop := range []bool{false, true} {
 		path := filepath.Join(t.TempDir(), "back.csv")
 		if err := register.WriteMappedTable(context.Background(), path, register.Provenance{Command: "map"}, cells, mapped, register.FrameSource, nil); err != nil {

@@ -16,6 +16,7 @@ import (
 	"ferry/register/match"
 	"ferry/register/outfile"
 	"ferry/register/report"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -140,7 +141,7 @@ func Order(cells *landmarks.PointSet, ms []report.Match) []int {
 			return 2, 0
 		}
 		rank := 1
-		if m.Status == report.MatchAmbiguous {
+		if m.Status == status.Ambiguous {
 			rank = 0
 		}
 		return rank, proposalP(m)

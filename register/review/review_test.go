@@ -13,6 +13,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register/imaging"
 	"ferry/register/report"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -23,10 +24,10 @@ func TestOrder(t *testing.T) {
 	}
 	nan := math.NaN()
 	ms := []report.Match{
-		{ID: "c1", Candidate: "n1", PMatch: 0.99, PNone: 0.01, Status: report.MatchMatched},
-		{ID: "c2", Candidate: "n2", PMatch: 0.7, PNone: 0.2, Status: report.MatchAmbiguous},
-		{ID: "c3", PMatch: nan, PNone: 0.6, Status: report.MatchUnmatched},
-		{ID: "c4", Candidate: "n4", PMatch: 0.55, PNone: 0.4, Status: report.MatchAmbiguous},
+		{ID: "c1", Candidate: "n1", PMatch: 0.99, PNone: 0.01, Status: status.Matched},
+		{ID: "c2", Candidate: "n2", PMatch: 0.7, PNone: 0.2, Status: status.Ambiguous},
+		{ID: "c3", PMatch: nan, PNone: 0.6, Status: status.Unmatched},
+		{ID: "c4", Candidate: "n4", PMatch: 0.55, PNone: 0.4, Status: status.Ambiguous},
 	}
 	got := Order(cells, ms)
 	want := []int{3, 1, 2, 0, 4} // ambiguous by p, then the rest by p, then c5 absent
@@ -81,9 +82,9 @@ func TestDecideWritesAtOnce(t *testing.T) {
 func ExampleOrder() {
 	cells, _ := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,0,0,0\nc2,0,0,0\nc3,0,0,0\n"))
 	ms := []report.Match{
-		{ID: "c1", Candidate: "n1", PMatch: 0.99, Status: report.MatchMatched},
-		{ID: "c2", Candidate: "n2", PMatch: 0.62, Status: report.MatchAmbiguous},
-		{ID: "c3", PMatch: math.NaN(), PNone: 0.9, Status: report.MatchUnmatched},
+		{ID: "c1", Candidate: "n1", PMatch: 0.99, Status: status.Matched},
+		{ID: "c2", Candidate: "n2", PMatch: 0.62, Status: status.Ambiguous},
+		{ID: "c3", PMatch: math.NaN(), PNone: 0.9, Status: status.Unmatched},
 	}
 	for _, i := range Order(cells, ms) {
 		fmt.Print(cells.Points[i].ID, " ")

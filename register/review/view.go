@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"ferry/landmarks"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -58,12 +59,12 @@ type CellView struct {
 	Total int    `json:"total"`
 	ID    string `json:"id"`
 	// Status is the match's status; MappedStatus the mapping's.
-	Status       string  `json:"status"`
-	MappedStatus string  `json:"mapped_status"`
-	Proposed     string  `json:"proposed"`
-	PMatch       float64 `json:"p_match"`
-	PNone        float64 `json:"p_none"`
-	R95          float64 `json:"r95_um"`
+	Status       string        `json:"status"`
+	MappedStatus status.Status `json:"mapped_status"`
+	Proposed     string        `json:"proposed"`
+	PMatch       float64       `json:"p_match"`
+	PNone        float64       `json:"p_none"`
+	R95          float64       `json:"r95_um"`
 	// Position is the mapped cell in the target frame (µm).
 	Position [3]float64 `json:"position_um"`
 	// HalfUM is the half-width of the window and PixelUM the pixel size of
@@ -109,7 +110,7 @@ func (s *Session) State() State {
 	for k, i := range s.order {
 		id := s.in.Cells.Points[i].ID
 		st.Order = append(st.Order, id)
-		status := s.matchOf[id].Status
+		status := string(s.matchOf[id].Status)
 		if status == "" {
 			status = "not in the matches"
 		}
@@ -150,7 +151,7 @@ func (s *Session) Cell(k int) (*CellView, error) {
 	mp := s.mapped[i]
 	v := &CellView{Index: k, Total: len(s.order), ID: c.ID, MappedStatus: mp.Status, R95: finite(mp.R95),
 		Candidates: []Candidate{}, Neighbours: []Neighbour{},
-		PMatch: finite(m.PMatch), PNone: finite(m.PNone), Proposed: m.Candidate, Status: m.Status}
+		PMatch: finite(m.PMatch), PNone: finite(m.PNone), Proposed: m.Candidate, Status: string(m.Status)}
 	if !inTable {
 		v.Status, v.PNone = "not in the matches", finite(r.PNone)
 	}

@@ -78,7 +78,7 @@ func suggestField(f *transform.File, g *register.FieldGain, cells []transform.Ve
 			continue
 		}
 		at := mapper.Map(sug.Source, nil)
-		sug.Target, sug.Status, sug.TargetSD, sug.TargetR95 = at.Pos, at.Status, at.SD, at.R95
+		sug.Target, sug.Status, sug.TargetSD, sug.TargetR95 = at.Pos, string(at.Status), at.SD, at.R95
 		res.Suggestions = append(res.Suggestions, sug)
 	}
 	res.CellR95After = radii

@@ -196,7 +196,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 		}
 		mapped := mapper.Map(sug.Source, nil)
 		target := targets.covariance(0, cp.Factor(sug.Source))
-		sug.Target, sug.Status, sug.TargetR95 = mapped.Pos, mapped.Status, targets.radii.Radius(target)
+		sug.Target, sug.Status, sug.TargetR95 = mapped.Pos, string(mapped.Status), targets.radii.Radius(target)
 		for a := range dim {
 			sug.TargetSD[a] = math.Sqrt(math.Max(target[a][a], 0))
 		}
