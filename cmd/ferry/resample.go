@@ -2,10 +2,8 @@ package main
 
 import (
 	"cmp"
-	"encoding/csv"
 	"fmt"
 	"io"
-	"os"
 	"path/filepath"
 	"slices"
 	"strconv"
@@ -327,10 +325,12 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 		if statusCol >= 0 {
 			states[n] = status.Status(strings.ToLower(strings.TrimSpace(p.Extra[statusCol])))
 		}
-		if r95 >= 0 {
-			if v, err := strconv.ParseFloat(p.Extra[r95], 64); err == nil && v > 0 {
-				reach[n] = v
+		if r95 >= 0 && strings.TrimSpace(p.Extra[r95]) != "" {
+			v, err := landmarks.ParseDecimal(p.Extra[r95])
+			if err != nil {
+				return nil, &landmarks.InputError{File: path, Line: p.Line, Column: set.ExtraColumns[r95], Msg: err.Error()}
 			}
+			reach[n] = max(v, 0)
 		}
 	}
 	return imaging.PlaneMarks(pos, reach, states, ids, job.grid), nil
@@ -339,20 +339,12 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 // isMatchesTable reports whether the CSV file at path has a p_match column
 // in its header, as match's output has; any fault is left to the reader.
 func isMatchesTable(path string) bool {
-	file, err := os.Open(path)
-	if err != nil {
-		return false
-	}
-	defer file.Close()
-	r := csv.NewReader(io.LimitReader(file, 1<<20))
-	r.Comment = '#'
-	r.FieldsPerRecord = -1
-	header, err := r.Read()
+	header, err := landmarks.ReadHeader(path)
 	if err != nil {
 		return false
 	}
 	for _, h := range header {
-		if strings.EqualFold(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff")), "p_match") {
+		if strings.EqualFold(h, "p_match") {
 			return true
 		}
 	}

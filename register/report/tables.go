@@ -2,10 +2,8 @@ package report
 
 import (
 	"bytes"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"strconv"
@@ -85,20 +83,20 @@ type MappedTable struct {
 //     is not nil (as map writes them for a transform fitted in voxels) and
 //     in µm otherwise; Assumed says so.
 //
-// A table of source positions (`ferry map --inverse`: a sidecar naming the
-// source frame, source_x_um columns, or an older table whose comment line
-// records --inverse=true) is refused: the report draws cells mapped
-// forward into the target.
+// A table of source positions (mapped backwards: a sidecar naming the
+// source frame, or source_x_um columns) is refused: the report draws cells
+// mapped forward into the target. Comment lines are never read for the
+// frame: what a table holds is stated in its data.
 func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot read %s: %w", path, unwrapPath(err))
 	}
-	t, err := parseTable(path, data)
+	t, err := landmarks.ParseTable(path, bytes.NewReader(data))
 	if err != nil {
 		return nil, err
 	}
-	cols, err := t.require("id", "r95_um", "status")
+	cols, err := t.Require("id", "r95_um", "status")
 	if err != nil {
 		return nil, err
 	}
@@ -116,15 +114,15 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 		axes[2] = pos[2]
 	}
 	targetVoxel = scale
-	cells := make([]Cell, len(t.rows))
-	for r, row := range t.rows {
-		c := Cell{ID: strings.TrimSpace(row[cols[0]]), Status: status.Status(strings.TrimSpace(row[cols[4]]))}
+	cells := make([]Cell, t.Len())
+	for r := range t.Len() {
+		c := Cell{ID: t.Field(r, cols[0]), Status: status.Status(t.Field(r, cols[4]))}
 		if c.ID == "" {
-			return nil, t.fail(r, cols[0], "empty id: every row needs one")
+			return nil, t.Fail(r, cols[0], "empty id: every row needs one")
 		}
 		empty := 0
 		for k := range dim {
-			v, ok, err := t.number(r, axes[k])
+			v, ok, err := t.Number(r, axes[k])
 			if err != nil {
 				return nil, err
 			}
@@ -142,9 +140,9 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 			c.Placed = true
 		case dim:
 		default:
-			return nil, t.fail(r, axes[0], "some coordinates of the row are empty and some are not: give all or none")
+			return nil, t.Fail(r, axes[0], "some coordinates of the row are empty and some are not: give all or none")
 		}
-		if c.R95, _, err = t.number(r, cols[3]); err != nil {
+		if c.R95, _, err = t.Number(r, cols[3]); err != nil {
 			return nil, err
 		}
 		cells[r] = c
@@ -156,8 +154,8 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 // mappedPositions finds the columns of the mapped positions and their
 // voxel size (nil: µm) as ReadMappedTable describes, noting in out what it
 // had to assume.
-func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *MappedTable, inverse error) ([]int, *transform.Vec, error) {
-	side, err := register.ReadSidecar(t.name, data)
+func mappedPositions(t *landmarks.Table, data []byte, targetVoxel *transform.Vec, out *MappedTable, inverse error) ([]int, *transform.Vec, error) {
+	side, err := register.ReadSidecar(t.Name(), data)
 	var ignored string
 	switch {
 	case err == nil:
@@ -165,7 +163,7 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 			if c.Frame != register.FrameTarget {
 				return nil, nil, inverse
 			}
-			idx, err := t.require(c.Columns...)
+			idx, err := t.Require(c.Columns...)
 			if err != nil {
 				return nil, nil, err
 			}
@@ -176,7 +174,7 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 			copy(v[:], c.VoxelUM)
 			return idx, &v, nil
 		}
-		ignored = register.SidecarPath(t.name) + " says nothing of the columns x, y, z"
+		ignored = register.SidecarPath(t.Name()) + " says nothing of the columns x, y, z"
 	case errors.Is(err, register.ErrNoSidecar):
 	default:
 		ignored = err.Error()
@@ -184,7 +182,7 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 	um := func(frame string) []int {
 		var idx []int
 		for _, a := range []string{"x", "y", "z"} {
-			if i := t.column(frame + "_" + a + "_um"); i >= 0 {
+			if i := t.Column(frame + "_" + a + "_um"); i >= 0 {
 				idx = append(idx, i)
 			}
 		}
@@ -197,7 +195,7 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 		if ignored != "" {
 			msg = "the sidecar is ignored (" + ignored + "); " + msg
 		}
-		out.Assumed = t.name + ": " + msg
+		out.Assumed = t.Name() + ": " + msg
 	}
 	if idx := um(register.FrameTarget); idx != nil {
 		if ignored != "" {
@@ -205,14 +203,14 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 		}
 		return idx, nil, nil
 	}
-	if um(register.FrameSource) != nil || t.mentions("--inverse=true") {
+	if um(register.FrameSource) != nil {
 		return nil, nil, inverse
 	}
-	idx, err := t.require("x", "y")
+	idx, err := t.Require("x", "y")
 	if err != nil {
 		return nil, nil, err
 	}
-	if z := t.column("z"); z >= 0 {
+	if z := t.Column("z"); z >= 0 {
 		idx = append(idx, z)
 	}
 	if targetVoxel != nil {
@@ -228,58 +226,58 @@ func mappedPositions(t *table, data []byte, targetVoxel *transform.Vec, out *Map
 // when present p_none, r95_um and the target coordinates cell_x_um …
 // candidate_z_um (or cell_x_vox …); any other column is ignored.
 func ReadMatches(path string) ([]Match, error) {
-	t, err := readTable(path)
+	t, err := landmarks.ReadTable(path)
 	if err != nil {
 		return nil, err
 	}
-	cols, err := t.require("id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status")
+	cols, err := t.Require("id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status")
 	if err != nil {
 		return nil, err
 	}
-	none := t.column("p_none")
-	r95 := t.column("r95_um")
+	none := t.Column("p_none")
+	r95 := t.Column("r95_um")
 	unit, inVoxels := "_um", false
-	if t.column("cell_x_um") < 0 && t.column("cell_x_vox") >= 0 {
+	if t.Column("cell_x_um") < 0 && t.Column("cell_x_vox") >= 0 {
 		unit, inVoxels = "_vox", true
 	}
 	var cellCols, candCols []int
 	for _, a := range []string{"x", "y", "z"} {
-		if c := t.column("cell_" + a + unit); c >= 0 {
+		if c := t.Column("cell_" + a + unit); c >= 0 {
 			cellCols = append(cellCols, c)
 		}
-		if c := t.column("candidate_" + a + unit); c >= 0 {
+		if c := t.Column("candidate_" + a + unit); c >= 0 {
 			candCols = append(candCols, c)
 		}
 	}
-	out := make([]Match, len(t.rows))
-	for r, row := range t.rows {
+	out := make([]Match, t.Len())
+	for r := range t.Len() {
 		m := Match{PNone: math.NaN(), R95: math.NaN(), InVoxels: inVoxels,
-			ID:        strings.TrimSpace(row[cols[0]]),
-			Candidate: strings.TrimSpace(row[cols[1]]),
-			RunnerUp:  strings.TrimSpace(row[cols[4]]),
-			Status:    status.Status(strings.ToLower(strings.TrimSpace(row[cols[6]]))),
+			ID:        t.Field(r, cols[0]),
+			Candidate: t.Field(r, cols[1]),
+			RunnerUp:  t.Field(r, cols[4]),
+			Status:    status.Status(strings.ToLower(t.Field(r, cols[6]))),
 		}
 		if m.ID == "" {
-			return nil, t.fail(r, cols[0], "empty id: every row needs one")
+			return nil, t.Fail(r, cols[0], "empty id: every row needs one")
 		}
 		if !m.Status.IsMatching() {
-			return nil, t.fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(string(m.Status))))
+			return nil, t.Fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(string(m.Status))))
 		}
 		for _, f := range []struct {
 			col int
 			dst *float64
 		}{{cols[2], &m.PMatch}, {cols[3], &m.DistanceUM}, {cols[5], &m.PRunnerUp}} {
-			if *f.dst, _, err = t.number(r, f.col); err != nil {
+			if *f.dst, _, err = t.Number(r, f.col); err != nil {
 				return nil, err
 			}
 		}
 		if none >= 0 {
-			if m.PNone, _, err = t.number(r, none); err != nil {
+			if m.PNone, _, err = t.Number(r, none); err != nil {
 				return nil, err
 			}
 		}
 		if r95 >= 0 {
-			if m.R95, _, err = t.number(r, r95); err != nil {
+			if m.R95, _, err = t.Number(r, r95); err != nil {
 				return nil, err
 			}
 		}
@@ -293,7 +291,7 @@ func ReadMatches(path string) ([]Match, error) {
 			}
 			all := true
 			for k, c := range f.cols {
-				v, ok, err := t.number(r, c)
+				v, ok, err := t.Number(r, c)
 				if err != nil {
 					return nil, err
 				}
@@ -305,125 +303,6 @@ func ReadMatches(path string) ([]Match, error) {
 		out[r] = m
 	}
 	return out, nil
-}
-
-// table is a CSV file of the contract read whole: a header naming the
-// columns (found in any case and order), rows of as many fields, "#"
-// comment lines, an optional byte-order mark, LF or CRLF line ends.
-type table struct {
-	name     string
-	header   []string
-	columns  map[string]int
-	rows     [][]string
-	lines    []int
-	comments []string
-}
-
-func readTable(path string) (*table, error) {
-	data, err := os.ReadFile(path)
-	if err != nil {
-		return nil, fmt.Errorf("cannot read %s: %w", path, unwrapPath(err))
-	}
-	return parseTable(path, data)
-}
-
-func parseTable(name string, data []byte) (*table, error) {
-	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
-	t := &table{name: name, columns: map[string]int{}}
-	for _, line := range bytes.Split(data, []byte("\n")) {
-		if trimmed := bytes.TrimSpace(line); len(trimmed) > 0 && trimmed[0] == '#' {
-			t.comments = append(t.comments, string(trimmed))
-		}
-	}
-	r := csv.NewReader(bytes.NewReader(data))
-	r.Comment = '#'
-	r.FieldsPerRecord = -1
-	r.TrimLeadingSpace = true
-	for {
-		rec, err := r.Read()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		if err != nil {
-			var pe *csv.ParseError
-			if errors.As(err, &pe) {
-				return nil, &landmarks.InputError{File: name, Line: pe.Line, Msg: pe.Err.Error()}
-			}
-			return nil, &landmarks.InputError{File: name, Msg: err.Error()}
-		}
-		line, _ := r.FieldPos(0)
-		if t.header == nil {
-			t.header = make([]string, len(rec))
-			for i, h := range rec {
-				h = strings.TrimSpace(h)
-				key := strings.ToLower(h)
-				if h == "" {
-					return nil, &landmarks.InputError{File: name, Line: line, Msg: fmt.Sprintf("header column %d has no name", i+1)}
-				}
-				if _, dup := t.columns[key]; dup {
-					return nil, &landmarks.InputError{File: name, Line: line, Column: h, Msg: "named twice in the header"}
-				}
-				t.header[i], t.columns[key] = h, i
-			}
-			continue
-		}
-		if len(rec) != len(t.header) {
-			return nil, &landmarks.InputError{File: name, Line: line,
-				Msg: fmt.Sprintf("the row has %d fields but the header has %d columns", len(rec), len(t.header))}
-		}
-		t.rows = append(t.rows, rec)
-		t.lines = append(t.lines, line)
-	}
-	if t.header == nil {
-		return nil, &landmarks.InputError{File: name, Msg: "no header row: want a header row naming the columns"}
-	}
-	return t, nil
-}
-
-// mentions reports whether a comment line holds s.
-func (t *table) mentions(s string) bool {
-	for _, c := range t.comments {
-		if strings.Contains(c, s) {
-			return true
-		}
-	}
-	return false
-}
-
-func (t *table) column(name string) int {
-	if i, ok := t.columns[name]; ok {
-		return i
-	}
-	return -1
-}
-
-func (t *table) require(names ...string) ([]int, error) {
-	idx := make([]int, len(names))
-	for k, n := range names {
-		if idx[k] = t.column(n); idx[k] < 0 {
-			return nil, &landmarks.InputError{File: t.name, Column: n,
-				Msg: "missing from the header, which has " + strings.Join(t.header, ", ")}
-		}
-	}
-	return idx, nil
-}
-
-func (t *table) fail(row, col int, msg string) error {
-	return &landmarks.InputError{File: t.name, Line: t.lines[row], Column: t.header[col], Msg: msg}
-}
-
-// number reads field col of row as a finite number; an empty field gives
-// NaN and ok false.
-func (t *table) number(row, col int) (v float64, ok bool, err error) {
-	s := strings.TrimSpace(t.rows[row][col])
-	if s == "" {
-		return math.NaN(), false, nil
-	}
-	v, perr := strconv.ParseFloat(s, 64)
-	if perr != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, false, t.fail(row, col, strconv.Quote(s)+" is not a number")
-	}
-	return v, true, nil
 }
 
 // unwrapPath drops the operation and path of an *os.PathError, which the

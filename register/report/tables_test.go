@@ -191,9 +191,19 @@ func TestReadMapped(t *testing.T) {
 		{name: "missing column", text: "id,x,y,z,status\nc1,1,2,3,ok\n", err: `column "r95_um": missing from the header`},
 		{name: "not a number", text: "id,x,y,z,r95_um,status\nc1,1,2,abc,1,ok\n", err: `mapped.csv:2: column "z": "abc" is not a number`},
 		{name: "part of a position", text: "id,x,y,z,r95_um,status\nc1,1,,3,1,ok\n", err: "some coordinates of the row are empty"},
-		{name: "short row", text: "id,x,y,z,r95_um,status\nc1,1,2,3,1\n", err: "mapped.csv:2: the row has 5 fields but the header has 6 columns"},
+		{name: "short row", text: "id,x,y,z,r95_um,status\nc1,1,2,3,1\n", err: `mapped.csv:2: column "status": missing: the row has 5 fields but the header has 6 columns`},
 		{name: "empty id", text: "id,x,y,z,r95_um,status\n ,1,2,3,1,ok\n", err: "empty id"},
-		{name: "inverse, older table", text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n", err: "--inverse"},
+		{
+			// The frame is the data's to state (sidecar, target_/source_
+			// columns), never a comment's: without either, x, y, z are
+			// taken as target positions.
+			name: "a comment is not read for the frame",
+			text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n",
+			want: []Cell{{ID: "c1", Target: transform.Vec{1, 2, 3}, Placed: true, R95: 1, Status: "ok"}},
+			dim:  3,
+		},
+		{name: "hexadecimal", text: "id,x,y,z,r95_um,status\nc1,0x1p4,2,3,1,ok\n", err: `mapped.csv:2: column "x": "0x1p4" is not a decimal number`},
+		{name: "digit separators", text: "id,x,y,z,r95_um,status\nc1,1_000,2,3,1,ok\n", err: `mapped.csv:2: column "x": "1_000" is not a number`},
 		{name: "inverse, source columns", text: "id,x,y,r95_um,status,source_x_um,source_y_um\nc1,1,2,1,ok,1,2\n", err: "source positions"},
 		{name: "no header", text: "# nothing\n", err: "no header row"},
 		{name: "bad quotes", text: "id,x,y,z,r95_um,status\n\"c1,1,2,3,1,ok\n", err: "mapped.csv:2:"},
@@ -257,7 +267,7 @@ func TestReadMatches(t *testing.T) {
 		},
 		{name: "unknown status", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,1,1,,0,maybe\n", err: `matches.csv:2: column "status": "maybe" is not a match status`},
 		{name: "missing runner-up", text: "id,candidate,p_match,distance_um,p_runner_up,status\n", err: `column "runner_up": missing`},
-		{name: "infinite", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,inf,1,,0,matched\n", err: `"inf" is not a number`},
+		{name: "infinite", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,inf,1,,0,matched\n", err: `matches.csv:2: column "p_match": "inf" is infinite: want a finite number`},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			got, err := ReadMatches(writeFile(t, "matches.csv", tc.text))
@@ -275,7 +285,7 @@ func TestReadMatches(t *testing.T) {
 			}
 		})
 	}
-	if _, err := ReadMatches(filepath.Join(t.TempDir(), "absent.csv")); err == nil || !strings.Contains(err.Error(), "cannot read") {
+	if _, err := ReadMatches(filepath.Join(t.TempDir(), "absent.csv")); err == nil || !strings.Contains(err.Error(), "absent.csv: cannot open: no such file") {
 		t.Errorf("absent file: error %v", err)
 	}
 }
