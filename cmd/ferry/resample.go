@@ -14,7 +14,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/imaging"
-	"ferry/register/report"
+	"ferry/register/match"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -357,7 +357,7 @@ func readMatchMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mar
 	if f.inverse {
 		return nil, fmt.Errorf("%s: a matches table holds target positions; with --inverse the plane is in the source", path)
 	}
-	ms, err := report.ReadMatches(path)
+	ms, err := match.ReadMatchesTable(path)
 	if err != nil {
 		return nil, err
 	}

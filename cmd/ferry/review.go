@@ -13,7 +13,6 @@ import (
 	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/register/match"
-	"ferry/register/report"
 	"ferry/register/review"
 	"ferry/transform"
 )
@@ -47,7 +46,7 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			if err := outputNotInput(decisions, args[0], tPath, cellsPath, candsPath, srcStack, dstStack); err != nil {
 				return err
 			}
-			ms, err := report.ReadMatches(args[0])
+			ms, err := match.ReadMatchesTable(args[0])
 			if err != nil {
 				return err
 			}

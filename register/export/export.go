@@ -17,7 +17,6 @@ import (
 	"ferry/register"
 	"ferry/register/imaging"
 	"ferry/register/outfile"
-	"ferry/register/report"
 	"ferry/transform"
 )
 
@@ -307,7 +306,7 @@ func (fd *Field) TIFFStack() *imaging.Float32Stack {
 // pointList is the point list of the mapped cells.
 type pointList struct {
 	dim      int
-	rows     []report.Cell
+	rows     []register.MappedCell
 	voxel    transform.Vec
 	unplaced int
 	note     string
@@ -319,7 +318,7 @@ func readPoints(path string, fileVoxel, vox *transform.Vec) (*pointList, error) 
 	if vox == nil {
 		return nil, fmt.Errorf("%s: the transform file records no target voxel size, so the point list has none to be written in: give --target-voxel X,Y,Z (µm per voxel)", path)
 	}
-	m, err := report.ReadMappedTable(path, fileVoxel)
+	m, err := register.ReadMappedTable(path, fileVoxel)
 	if err != nil {
 		return nil, err
 	}

@@ -19,7 +19,7 @@
 // marker shape of its own, so that nothing depends on telling colours
 // apart. docs/report.md lists which role gets which colour.
 //
-// New builds a Page from an Input; Page.WriteTo writes the HTML. ReadMapped
-// and ReadMatches read the tables of `ferry map` and `ferry match` by their
-// column names.
+// New builds a Page from an Input; Page.WriteTo writes the HTML. The tables
+// of `ferry map` and `ferry match` are read by the readers beside their
+// writers, register.ReadMappedTable and match.ReadMatchesTable.
 package report

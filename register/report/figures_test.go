@@ -133,7 +133,7 @@ func TestByError(t *testing.T) {
 func TestPlaceCells(t *testing.T) {
 	tr := &transform.Linear{Model: transform.Affine, D: 3, A: transform.Mat{{-1, 0, 0}, {0, 0.9, 0.1}, {0, 0, 0.8}}, T: transform.Vec{1e4, 5e3, 2e3}}
 	src := []transform.Vec{{1, 2, 3}, {50, 60, 70}}
-	cells := []Cell{{ID: "a", Placed: true, Target: tr.Apply(src[0]), Status: "ok"}, {ID: "b", Status: "no_inverse"}, {ID: "c", Placed: true, Target: tr.Apply(src[1])}}
+	cells := []register.MappedCell{{ID: "a", Placed: true, Target: tr.Apply(src[0]), Status: "ok"}, {ID: "b", Status: "no_inverse"}, {ID: "c", Placed: true, Target: tr.Apply(src[1])}}
 	placed, missing, stride := placeCells(cells, tr)
 	if missing != 1 || len(placed) != 2 || stride != 1 {
 		t.Fatalf("%d placed, %d missing: want 2 and 1", len(placed), missing)
@@ -148,9 +148,9 @@ func TestPlaceCells(t *testing.T) {
 // A long table is thinned to every k-th cell for the drawing.
 func TestPlaceCellsThins(t *testing.T) {
 	tr := &transform.Linear{Model: transform.Translation, D: 3, A: transform.Identity()}
-	cells := make([]Cell, 2*maxDrawnCells+1)
+	cells := make([]register.MappedCell, 2*maxDrawnCells+1)
 	for i := range cells {
-		cells[i] = Cell{Placed: true, Target: transform.Vec{float64(i)}}
+		cells[i] = register.MappedCell{Placed: true, Target: transform.Vec{float64(i)}}
 	}
 	placed, missing, stride := placeCells(cells, tr)
 	if stride != 3 || missing != 0 || len(placed) != (len(cells)+2)/3 || len(placed) > maxDrawnCells || placed[1].source[0] != 3 {

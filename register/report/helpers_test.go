@@ -72,9 +72,9 @@ func scenarioInput(t testing.TB, dim int, rename func(i int, id string) string) 
 		}
 	}
 	mapped := mapper.MapAll(pos, nil, false)
-	cells := make([]Cell, len(mapped))
+	cells := make([]register.MappedCell, len(mapped))
 	for i, m := range mapped {
-		cells[i] = Cell{ID: s.Cells[i].ID, Target: m.Pos, Placed: m.Status != status.NoInverse, R95: m.R95, Status: m.Status}
+		cells[i] = register.MappedCell{ID: s.Cells[i].ID, Target: m.Pos, Placed: m.Status != status.NoInverse, R95: m.R95, Status: m.Status}
 	}
 	check := a.JSON()
 	return &Input{

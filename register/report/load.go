@@ -6,6 +6,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
+	"ferry/register/match"
 	"ferry/transform"
 )
 
@@ -57,7 +58,7 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 // a sidecar or micrometre columns its positions are taken to be in the
 // units of the transform's target side) and checks its dimension.
 func AddMapped(in *Input, path string) error {
-	m, err := ReadMappedTable(path, in.Transform.TargetVoxel)
+	m, err := register.ReadMappedTable(path, in.Transform.TargetVoxel)
 	if err != nil {
 		return err
 	}
@@ -70,7 +71,7 @@ func AddMapped(in *Input, path string) error {
 
 // AddMatches reads a match output for the report.
 func AddMatches(in *Input, path string) error {
-	m, err := ReadMatches(path)
+	m, err := match.ReadMatchesTable(path)
 	if err != nil {
 		return err
 	}

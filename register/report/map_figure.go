@@ -309,7 +309,7 @@ type placedCell struct {
 // Past maxDrawnCells only every k-th cell is drawn (k the smallest that
 // brings them under it), so that a table of a million cells makes a page a
 // browser can open; stride says which k.
-func placeCells(cells []Cell, tr transform.Transform) (placed []placedCell, missing, stride int) {
+func placeCells(cells []register.MappedCell, tr transform.Transform) (placed []placedCell, missing, stride int) {
 	stride = max(1, (len(cells)+maxDrawnCells-1)/maxDrawnCells)
 	var out []placedCell
 	for i, c := range cells {
@@ -344,7 +344,7 @@ type mapResult struct {
 
 // uncertaintyFigure draws r95 over the plane z of the field with the
 // landmarks and the cells on it.
-func uncertaintyFigure(ck *register.CheckJSON, source []transform.Vec, m *register.Mapper, tr transform.Transform, cells []Cell) (mapResult, error) {
+func uncertaintyFigure(ck *register.CheckJSON, source []transform.Vec, m *register.Mapper, tr transform.Transform, cells []register.MappedCell) (mapResult, error) {
 	var res mapResult
 	if m == nil || tr == nil {
 		return res, errors.New("no transform")

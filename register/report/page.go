@@ -12,6 +12,7 @@ import (
 
 	"ferry/internal/sample"
 	"ferry/register"
+	"ferry/register/match"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -34,14 +35,14 @@ type Input struct {
 	// was fitted for the report.
 	Transform     *transform.File
 	TransformFile string
-	// Cells, when not nil, are the mapped cells of CellsFile (ReadMapped).
-	Cells     []Cell
+	// Cells, when not nil, are the mapped cells of CellsFile (register.ReadMappedTable).
+	Cells     []register.MappedCell
 	CellsFile string
 	// CellsAssumed says what had to be assumed about the frame or units of
-	// the cells' positions (MappedTable.Assumed); the page warns of it.
+	// the cells' positions (register.MappedTable.Assumed); the page warns of it.
 	CellsAssumed string
-	// Matches, when not nil, are the matches of MatchesFile (ReadMatches).
-	Matches     []Match
+	// Matches, when not nil, are the matches of MatchesFile (match.ReadMatchesTable).
+	Matches     []match.Row
 	MatchesFile string
 	// Provenance names the inputs with their SHA-256, the flags and the
 	// program; it is printed in the footer and in a <meta> element.
@@ -442,7 +443,7 @@ func maxOf(v []float64) float64 {
 	return m
 }
 
-func summariseCells(cells []Cell, file string, res *mapResult) *cellSummary {
+func summariseCells(cells []register.MappedCell, file string, res *mapResult) *cellSummary {
 	s := &cellSummary{File: file, N: len(cells)}
 	counts := map[status.Status]int{}
 	var r95 []float64
@@ -474,7 +475,7 @@ func summariseCells(cells []Cell, file string, res *mapResult) *cellSummary {
 	return s
 }
 
-func (d *pageData) summariseMatches(ms []Match, file string) {
+func (d *pageData) summariseMatches(ms []match.Row, file string) {
 	s := &matchSummary{File: file, N: len(ms)}
 	counts := map[status.Status]int{}
 	var p, dist []float64

@@ -6,13 +6,14 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/register/match"
 	"ferry/status"
 )
 
 func TestSelfContained(t *testing.T) {
 	for _, dim := range []int{2, 3} {
 		in := scenarioInput(t, dim, nil)
-		in.Matches = []Match{{ID: "c01", Candidate: "n1", PMatch: 0.5, DistanceUM: 2, RunnerUp: "n2", PRunnerUp: 0.45, Status: status.Ambiguous}}
+		in.Matches = []match.Row{{ID: "c01", Candidate: "n1", PMatch: 0.5, DistanceUM: 2, RunnerUp: "n2", PRunnerUp: 0.45, Status: status.Ambiguous}}
 		html, _ := render(t, in)
 		lower := strings.ToLower(html)
 		for _, banned := range []string{"http://", "https://", "<script", "<link", "@import", "@font-face", "<iframe", "url(", "//www."} {
@@ -116,7 +117,7 @@ func TestEscapesIDs(t *testing.T) {
 		return id
 	})
 	in.LandmarkFile = `lm"><img src=x onerror=alert(1)>.csv`
-	in.Matches = []Match{{ID: "<b>c1</b>", Candidate: "n1", PMatch: 0.5, DistanceUM: 1, RunnerUp: "<i>n2</i>", PRunnerUp: 0.4, Status: status.Ambiguous}}
+	in.Matches = []match.Row{{ID: "<b>c1</b>", Candidate: "n1", PMatch: 0.5, DistanceUM: 1, RunnerUp: "<i>n2</i>", PRunnerUp: 0.4, Status: status.Ambiguous}}
 	html, _ := render(t, in)
 	lower := strings.ToLower(html)
 	for _, banned := range []string{"<script", "<img", "<b>c1", "<i>n2"} {
@@ -182,7 +183,7 @@ func BenchmarkNew(b *testing.B) {
 // runner-up: it is often the real competitor of the chosen candidate.
 func TestAmbiguousShowsNoCounterpart(t *testing.T) {
 	in := scenarioInput(t, 3, nil)
-	in.Matches = []Match{{ID: "c07", Candidate: "n1", PMatch: 0.61, DistanceUM: 2, RunnerUp: "n2", PRunnerUp: 0.001, PNone: 0.389, Status: status.Ambiguous}}
+	in.Matches = []match.Row{{ID: "c07", Candidate: "n1", PMatch: 0.61, DistanceUM: 2, RunnerUp: "n2", PRunnerUp: 0.001, PNone: 0.389, Status: status.Ambiguous}}
 	html, _ := render(t, in)
 	for _, want := range []string{"<th class=\"num\">p no counterpart</th>", "<td class=\"num\">0.389</td>"} {
 		if !strings.Contains(html, want) {

@@ -21,7 +21,6 @@ import (
 	"ferry/register/demo"
 	"ferry/register/imaging"
 	"ferry/register/match"
-	"ferry/register/report"
 	"ferry/transform"
 )
 
@@ -71,7 +70,7 @@ func demoSession(t testing.TB) (*Session, string) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	ms, err := report.ReadMatches(f.Matches)
+	ms, err := match.ReadMatchesTable(f.Matches)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -15,7 +15,6 @@ import (
 	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/register/outfile"
-	"ferry/register/report"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -30,7 +29,7 @@ type Inputs struct {
 	CellPos, CandidatePos []transform.Vec
 	CellSD                *transform.Vec
 	// Matches are the rows of the matches file, read from MatchesPath.
-	Matches     []report.Match
+	Matches     []match.Row
 	MatchesPath string
 	// MatchOptions steer the posterior probabilities of the candidates in
 	// reach (the same as match's flags).
@@ -52,7 +51,7 @@ type Session struct {
 	mapped  []register.Mapped
 	results []match.Result
 	order   []int // cell indices in the order shown
-	matchOf map[string]report.Match
+	matchOf map[string]match.Row
 	cellAt  map[string]int
 	candAt  map[string]int
 	mu      sync.Mutex
@@ -68,7 +67,7 @@ type Session struct {
 // candidate is no longer offered to a neighbour), reads the decisions file
 // when it exists and orders the cells.
 func NewSession(in Inputs) (*Session, error) {
-	s := &Session{in: in, matchOf: map[string]report.Match{}, now: time.Now}
+	s := &Session{in: in, matchOf: map[string]match.Row{}, now: time.Now}
 	s.cellAt = map[string]int{}
 	for i, p := range in.Cells.Points {
 		s.cellAt[p.ID] = i
@@ -126,8 +125,8 @@ func ids(set *landmarks.PointSet) []string {
 // table, ambiguous first, then by the probability of the proposed choice
 // (p_match, or p_none where no candidate is proposed), lowest first, ties
 // by id. Cells missing from the table come last, by id.
-func Order(cells *landmarks.PointSet, ms []report.Match) []int {
-	byID := map[string]report.Match{}
+func Order(cells *landmarks.PointSet, ms []match.Row) []int {
+	byID := map[string]match.Row{}
 	for _, m := range ms {
 		byID[m.ID] = m
 	}
@@ -173,7 +172,7 @@ func cmpString(a, b string) int {
 }
 
 // proposalP is the probability of the row's choice.
-func proposalP(m report.Match) float64 {
+func proposalP(m match.Row) float64 {
 	p := m.PMatch
 	if m.Candidate == "" || math.IsNaN(p) {
 		p = m.PNone

@@ -12,7 +12,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register/imaging"
-	"ferry/register/report"
+	"ferry/register/match"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -23,7 +23,7 @@ func TestOrder(t *testing.T) {
 		t.Fatal(err)
 	}
 	nan := math.NaN()
-	ms := []report.Match{
+	ms := []match.Row{
 		{ID: "c1", Candidate: "n1", PMatch: 0.99, PNone: 0.01, Status: status.Matched},
 		{ID: "c2", Candidate: "n2", PMatch: 0.7, PNone: 0.2, Status: status.Ambiguous},
 		{ID: "c3", PMatch: nan, PNone: 0.6, Status: status.Unmatched},
@@ -81,7 +81,7 @@ func TestDecideWritesAtOnce(t *testing.T) {
 
 func ExampleOrder() {
 	cells, _ := landmarks.ParsePoints("cells.csv", "cells", strings.NewReader("id,x,y,z\nc1,0,0,0\nc2,0,0,0\nc3,0,0,0\n"))
-	ms := []report.Match{
+	ms := []match.Row{
 		{ID: "c1", Candidate: "n1", PMatch: 0.99, Status: status.Matched},
 		{ID: "c2", Candidate: "n2", PMatch: 0.62, Status: status.Ambiguous},
 		{ID: "c3", PMatch: math.NaN(), PNone: 0.9, Status: status.Unmatched},

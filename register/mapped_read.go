@@ -1,22 +1,21 @@
-package report
+package register
 
 import (
 	"bytes"
 	"errors"
 	"fmt"
-	"math"
 	"os"
-	"strconv"
-	"strings"
 
 	"ferry/landmarks"
-	"ferry/register"
 	"ferry/status"
 	"ferry/transform"
 )
 
-// Cell is one row of the table of `ferry map`.
-type Cell struct {
+// The reader of the table that WriteMappedTable writes (table.go), for the
+// report and any other program that reads the cells back.
+
+// MappedCell is one row of the table of `ferry map` as read back.
+type MappedCell struct {
 	ID string
 	// Target is the mapped position in target micrometres; Placed is false
 	// where the table gives none (status no_inverse).
@@ -27,42 +26,9 @@ type Cell struct {
 	Status status.Status
 }
 
-// Match is one row of the table of `ferry match`. Numbers left empty in the
-// table are NaN.
-type Match struct {
-	ID, Candidate string
-	PMatch        float64
-	DistanceUM    float64
-	RunnerUp      string
-	PRunnerUp     float64
-	// PNone is the probability that the cell has no counterpart, from the
-	// optional p_none column (NaN without it).
-	PNone  float64
-	Status status.Status
-	// Cell and CandidatePos are the target coordinates of the mapped cell
-	// and of its candidate from the optional columns cell_x_um … and
-	// candidate_x_um … (or cell_x_vox …, in target voxels: see InVoxels);
-	// CellPlaced and CandidatePlaced say whether the row gives them.
-	Cell, CandidatePos          transform.Vec
-	CellPlaced, CandidatePlaced bool
-	// InVoxels says the coordinates are target voxel indices.
-	InVoxels bool
-	// R95 is the optional r95_um (NaN when absent or empty).
-	R95 float64
-}
-
-// ReadMapped is ReadMappedTable's cells and dimension.
-func ReadMapped(path string, targetVoxel *transform.Vec) (cells []Cell, dim int, err error) {
-	m, err := ReadMappedTable(path, targetVoxel)
-	if err != nil {
-		return nil, 0, err
-	}
-	return m.Cells, m.Dim, nil
-}
-
-// MappedTable is the table of `ferry map` as the report reads it.
+// MappedTable is the table of `ferry map` as read back (ReadMappedTable).
 type MappedTable struct {
-	Cells []Cell
+	Cells []MappedCell
 	Dim   int
 	// Assumed, when not empty, says what the reader had to assume about
 	// the frame or units of the positions, for the user to hear.
@@ -74,7 +40,7 @@ type MappedTable struct {
 // returned in target micrometres. The frame and units of the positions come
 // from the data, in this order:
 //
-//   - the table's sidecar (path + ".json", see register.Sidecar): x, y, z
+//   - the table's sidecar (path + ".json", see Sidecar): x, y, z
 //     in target µm or target voxels of the size it records;
 //   - without a usable sidecar, the columns target_x_um, target_y_um,
 //     target_z_um that map writes beside x, y, z;
@@ -100,7 +66,7 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 	if err != nil {
 		return nil, err
 	}
-	inverse := &landmarks.InputError{File: path, Msg: "holds source positions (written by ferry map --inverse): the report draws cells mapped forward into the target"}
+	inverse := &landmarks.InputError{File: path, Msg: "holds source positions (written by ferry map --inverse): want cells mapped forward into the target"}
 	out := &MappedTable{}
 	pos, scale, err := mappedPositions(t, data, targetVoxel, out, inverse)
 	if err != nil {
@@ -114,9 +80,9 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 		axes[2] = pos[2]
 	}
 	targetVoxel = scale
-	cells := make([]Cell, t.Len())
+	cells := make([]MappedCell, t.Len())
 	for r := range t.Len() {
-		c := Cell{ID: t.Field(r, cols[0]), Status: status.Status(t.Field(r, cols[4]))}
+		c := MappedCell{ID: t.Field(r, cols[0]), Status: status.Status(t.Field(r, cols[4]))}
 		if c.ID == "" {
 			return nil, t.Fail(r, cols[0], "empty id: every row needs one")
 		}
@@ -155,27 +121,27 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 // voxel size (nil: µm) as ReadMappedTable describes, noting in out what it
 // had to assume.
 func mappedPositions(t *landmarks.Table, data []byte, targetVoxel *transform.Vec, out *MappedTable, inverse error) ([]int, *transform.Vec, error) {
-	side, err := register.ReadSidecar(t.Name(), data)
+	side, err := ReadSidecar(t.Name(), data)
 	var ignored string
 	switch {
 	case err == nil:
 		if c, ok := side.CoordinatesOf("x"); ok {
-			if c.Frame != register.FrameTarget {
+			if c.Frame != FrameTarget {
 				return nil, nil, inverse
 			}
 			idx, err := t.Require(c.Columns...)
 			if err != nil {
 				return nil, nil, err
 			}
-			if c.Units == register.UnitsUM {
+			if c.Units == UnitsUM {
 				return idx, nil, nil
 			}
 			var v transform.Vec
 			copy(v[:], c.VoxelUM)
 			return idx, &v, nil
 		}
-		ignored = register.SidecarPath(t.Name()) + " says nothing of the columns x, y, z"
-	case errors.Is(err, register.ErrNoSidecar):
+		ignored = SidecarPath(t.Name()) + " says nothing of the columns x, y, z"
+	case errors.Is(err, ErrNoSidecar):
 	default:
 		ignored = err.Error()
 	}
@@ -197,13 +163,13 @@ func mappedPositions(t *landmarks.Table, data []byte, targetVoxel *transform.Vec
 		}
 		out.Assumed = t.Name() + ": " + msg
 	}
-	if idx := um(register.FrameTarget); idx != nil {
+	if idx := um(FrameTarget); idx != nil {
 		if ignored != "" {
 			note("positions taken from the columns target_*_um")
 		}
 		return idx, nil, nil
 	}
-	if um(register.FrameSource) != nil {
+	if um(FrameSource) != nil {
 		return nil, nil, inverse
 	}
 	idx, err := t.Require("x", "y")
@@ -219,90 +185,6 @@ func mappedPositions(t *landmarks.Table, data []byte, targetVoxel *transform.Vec
 		note("no sidecar and no target_*_um columns: x, y, z are taken to be target positions in µm")
 	}
 	return idx, targetVoxel, nil
-}
-
-// ReadMatches reads the table of `ferry match` by column name: id,
-// candidate, p_match, distance_um, runner_up, p_runner_up and status, and
-// when present p_none, r95_um and the target coordinates cell_x_um …
-// candidate_z_um (or cell_x_vox …); any other column is ignored.
-func ReadMatches(path string) ([]Match, error) {
-	t, err := landmarks.ReadTable(path)
-	if err != nil {
-		return nil, err
-	}
-	cols, err := t.Require("id", "candidate", "p_match", "distance_um", "runner_up", "p_runner_up", "status")
-	if err != nil {
-		return nil, err
-	}
-	none := t.Column("p_none")
-	r95 := t.Column("r95_um")
-	unit, inVoxels := "_um", false
-	if t.Column("cell_x_um") < 0 && t.Column("cell_x_vox") >= 0 {
-		unit, inVoxels = "_vox", true
-	}
-	var cellCols, candCols []int
-	for _, a := range []string{"x", "y", "z"} {
-		if c := t.Column("cell_" + a + unit); c >= 0 {
-			cellCols = append(cellCols, c)
-		}
-		if c := t.Column("candidate_" + a + unit); c >= 0 {
-			candCols = append(candCols, c)
-		}
-	}
-	out := make([]Match, t.Len())
-	for r := range t.Len() {
-		m := Match{PNone: math.NaN(), R95: math.NaN(), InVoxels: inVoxels,
-			ID:        t.Field(r, cols[0]),
-			Candidate: t.Field(r, cols[1]),
-			RunnerUp:  t.Field(r, cols[4]),
-			Status:    status.Status(strings.ToLower(t.Field(r, cols[6]))),
-		}
-		if m.ID == "" {
-			return nil, t.Fail(r, cols[0], "empty id: every row needs one")
-		}
-		if !m.Status.IsMatching() {
-			return nil, t.Fail(r, cols[6], fmt.Sprintf("%s is not a match status: want matched, ambiguous or unmatched", strconv.Quote(string(m.Status))))
-		}
-		for _, f := range []struct {
-			col int
-			dst *float64
-		}{{cols[2], &m.PMatch}, {cols[3], &m.DistanceUM}, {cols[5], &m.PRunnerUp}} {
-			if *f.dst, _, err = t.Number(r, f.col); err != nil {
-				return nil, err
-			}
-		}
-		if none >= 0 {
-			if m.PNone, _, err = t.Number(r, none); err != nil {
-				return nil, err
-			}
-		}
-		if r95 >= 0 {
-			if m.R95, _, err = t.Number(r, r95); err != nil {
-				return nil, err
-			}
-		}
-		for _, f := range []struct {
-			cols   []int
-			dst    *transform.Vec
-			placed *bool
-		}{{cellCols, &m.Cell, &m.CellPlaced}, {candCols, &m.CandidatePos, &m.CandidatePlaced}} {
-			if len(f.cols) < 2 {
-				continue
-			}
-			all := true
-			for k, c := range f.cols {
-				v, ok, err := t.Number(r, c)
-				if err != nil {
-					return nil, err
-				}
-				all = all && ok
-				f.dst[k] = v
-			}
-			*f.placed = all
-		}
-		out[r] = m
-	}
-	return out, nil
 }
 
 // unwrapPath drops the operation and path of an *os.PathError, which the

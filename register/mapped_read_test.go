@@ -1,4 +1,4 @@
-package report
+package register
 
 import (
 	"bytes"
@@ -14,7 +14,6 @@ import (
 	"github.com/google/go-cmp/cmp/cmpopts"
 
 	"ferry/landmarks"
-	"ferry/register"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -28,7 +27,7 @@ func writeFile(t *testing.T, name, text string) string {
 	return path
 }
 
-// The table that register.WriteMappedTable writes is the one ReadMapped
+// The table that WriteMappedTable writes is the one ReadMappedTable
 // reads: the two must agree on the columns of the contract, and the reader
 // takes the frame and units from the sidecar, from the micrometre columns
 // when the sidecar is gone, and assumes the transform's units only when
@@ -37,12 +36,12 @@ func TestReadMappedRoundTrip(t *testing.T) {
 	cells := &landmarks.PointSet{Dim: 3, ExtraColumns: []string{"osi"}, Points: []landmarks.Point{
 		{ID: "c1", Extra: []string{"0.5"}}, {ID: "c2", Extra: []string{"0.1"}}, {ID: "c3", Extra: []string{""}},
 	}}
-	mapped := []register.Mapped{
+	mapped := []Mapped{
 		{Pos: transform.Vec{10, 20, 30}, R95: 2.5, Status: status.OK},
 		{Pos: transform.Vec{-1.25, 0, 7}, R95: 9, Status: status.Extrapolated},
 		{Status: status.NoInverse},
 	}
-	want := []Cell{
+	want := []MappedCell{
 		{ID: "c1", Target: transform.Vec{10, 20, 30}, Placed: true, R95: 2.5, Status: "ok"},
 		{ID: "c2", Target: transform.Vec{-1.25, 0, 7}, Placed: true, R95: 9, Status: "extrapolated"},
 		{ID: "c3", R95: math.NaN(), Status: "no_inverse"},
@@ -78,7 +77,7 @@ func TestReadMappedRoundTrip(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			path := filepath.Join(t.TempDir(), "mapped.csv")
-			if err := register.WriteMappedTable(context.Background(), path, register.Provenance{Command: "map"}, cells, mapped, register.FrameTarget, tc.written); err != nil {
+			if err := WriteMappedTable(context.Background(), path, Provenance{Command: "map"}, cells, mapped, FrameTarget, tc.written); err != nil {
 				t.Fatal(err)
 			}
 			if tc.edit != nil {
@@ -105,16 +104,16 @@ func TestReadMappedRoundTrip(t *testing.T) {
 // the columns say so.
 func TestReadMappedRefusesSource(t *testing.T) {
 	cells := &landmarks.PointSet{Dim: 2, Points: []landmarks.Point{{ID: "c1"}}}
-	mapped := []register.Mapped{{Pos: transform.Vec{1, 2}, R95: 1, Status: status.OK}}
+	mapped := []Mapped{{Pos: transform.Vec{1, 2}, R95: 1, Status: status.OK}}
 	for _, drop := range []bool{false, true} {
 		path := filepath.Join(t.TempDir(), "back.csv")
-		if err := register.WriteMappedTable(context.Background(), path, register.Provenance{Command: "map"}, cells, mapped, register.FrameSource, nil); err != nil {
+		if err := WriteMappedTable(context.Background(), path, Provenance{Command: "map"}, cells, mapped, FrameSource, nil); err != nil {
 			t.Fatal(err)
 		}
 		if drop {
 			removeSidecar(t, path)
 		}
-		if _, _, err := ReadMapped(path, nil); err == nil || !strings.Contains(err.Error(), "source positions") {
+		if _, _, err := readMapped(path, nil); err == nil || !strings.Contains(err.Error(), "source positions") {
 			t.Errorf("sidecar removed %v: error %v, want a refusal of source positions", drop, err)
 		}
 	}
@@ -122,7 +121,7 @@ func TestReadMappedRefusesSource(t *testing.T) {
 
 func removeSidecar(t *testing.T, path string) {
 	t.Helper()
-	if err := os.Remove(register.SidecarPath(path)); err != nil {
+	if err := os.Remove(SidecarPath(path)); err != nil {
 		t.Fatal(err)
 	}
 }
@@ -175,14 +174,14 @@ func dropColumns(t *testing.T, path, prefix string) {
 func TestReadMapped(t *testing.T) {
 	for _, tc := range []struct {
 		name, text string
-		want       []Cell
+		want       []MappedCell
 		dim        int
 		err        string
 	}{
 		{
 			name: "2-D, BOM, CRLF, comments, quotes, any order and case",
 			text: "\xef\xbb\xbf# made by hand\r\nStatus,R95_UM,y,id,x\r\nok,1.5,2,\"c,1\",1\r\n# a comment\r\n\"isolated\",3,4,c2,3\r\n",
-			want: []Cell{
+			want: []MappedCell{
 				{ID: "c,1", Target: transform.Vec{1, 2}, Placed: true, R95: 1.5, Status: "ok"},
 				{ID: "c2", Target: transform.Vec{3, 4}, Placed: true, R95: 3, Status: "isolated"},
 			},
@@ -199,7 +198,7 @@ func TestReadMapped(t *testing.T) {
 			// taken as target positions.
 			name: "a comment is not read for the frame",
 			text: "# ferry 0.1.0 map; flags: --inverse=true\nid,x,y,z,r95_um,status\nc1,1,2,3,1,ok\n",
-			want: []Cell{{ID: "c1", Target: transform.Vec{1, 2, 3}, Placed: true, R95: 1, Status: "ok"}},
+			want: []MappedCell{{ID: "c1", Target: transform.Vec{1, 2, 3}, Placed: true, R95: 1, Status: "ok"}},
 			dim:  3,
 		},
 		{name: "hexadecimal", text: "id,x,y,z,r95_um,status\nc1,0x1p4,2,3,1,ok\n", err: `mapped.csv:2: column "x": "0x1p4" is not a decimal number`},
@@ -209,7 +208,7 @@ func TestReadMapped(t *testing.T) {
 		{name: "bad quotes", text: "id,x,y,z,r95_um,status\n\"c1,1,2,3,1,ok\n", err: "mapped.csv:2:"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			got, dim, err := ReadMapped(writeFile(t, "mapped.csv", tc.text), nil)
+			got, dim, err := readMapped(writeFile(t, "mapped.csv", tc.text), nil)
 			if tc.err != "" {
 				if err == nil || !strings.Contains(err.Error(), tc.err) {
 					t.Fatalf("error %v, want one holding %q", err, tc.err)
@@ -229,63 +228,11 @@ func TestReadMapped(t *testing.T) {
 	}
 }
 
-func TestReadMatches(t *testing.T) {
-	nan := math.NaN()
-	for _, tc := range []struct {
-		name, text string
-		want       []Match
-		err        string
-	}{
-		{
-			name: "the contract's columns with extras",
-			text: "# ferry match\nid,candidate,p_match,distance_um,runner_up,p_runner_up,status,osi\n" +
-				"c1,n7,0.97,1.5,n8,0.02,matched,0.3\nc2,n9,0.52,3.25,n4,0.44,Ambiguous,0.1\nc3,,,,,,unmatched,\n",
-			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.97, DistanceUM: 1.5, RunnerUp: "n8", PRunnerUp: 0.02, PNone: nan, R95: nan, Status: "matched"},
-				{ID: "c2", Candidate: "n9", PMatch: 0.52, DistanceUM: 3.25, RunnerUp: "n4", PRunnerUp: 0.44, PNone: nan, R95: nan, Status: "ambiguous"},
-				{ID: "c3", PMatch: nan, DistanceUM: nan, PRunnerUp: nan, PNone: nan, R95: nan, Status: "unmatched"},
-			},
-		},
-		{
-			name: "with the probability of no counterpart",
-			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none\n" +
-				"c1,n7,0.74,9.7,,0,ambiguous,0.26\n",
-			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, R95: nan, Status: "ambiguous"},
-			},
-		},
-		{
-			name: "with target coordinates in voxels",
-			text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status,p_none,cell_x_vox,cell_y_vox,cell_z_vox,candidate_x_vox,candidate_y_vox,candidate_z_vox,r95_um\n" +
-				"c1,n7,0.74,9.7,,0,ambiguous,0.26,1,2,3,4,5,6,2.5\nc2,,,,,0,unmatched,0.99,7,8,9,,,,3\n",
-			want: []Match{
-				{ID: "c1", Candidate: "n7", PMatch: 0.74, DistanceUM: 9.7, PRunnerUp: 0, PNone: 0.26, R95: 2.5, Status: "ambiguous",
-					Cell: transform.Vec{1, 2, 3}, CandidatePos: transform.Vec{4, 5, 6}, CellPlaced: true, CandidatePlaced: true, InVoxels: true},
-				{ID: "c2", PMatch: nan, DistanceUM: nan, PRunnerUp: 0, PNone: 0.99, R95: 3, Status: "unmatched",
-					Cell: transform.Vec{7, 8, 9}, CandidatePos: transform.Vec{nan, nan, nan}, CellPlaced: true, InVoxels: true},
-			},
-		},
-		{name: "unknown status", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,1,1,,0,maybe\n", err: `matches.csv:2: column "status": "maybe" is not a match status`},
-		{name: "missing runner-up", text: "id,candidate,p_match,distance_um,p_runner_up,status\n", err: `column "runner_up": missing`},
-		{name: "infinite", text: "id,candidate,p_match,distance_um,runner_up,p_runner_up,status\nc1,n1,inf,1,,0,matched\n", err: `matches.csv:2: column "p_match": "inf" is infinite: want a finite number`},
-	} {
-		t.Run(tc.name, func(t *testing.T) {
-			got, err := ReadMatches(writeFile(t, "matches.csv", tc.text))
-			if tc.err != "" {
-				if err == nil || !strings.Contains(err.Error(), tc.err) {
-					t.Fatalf("error %v, want one holding %q", err, tc.err)
-				}
-				return
-			}
-			if err != nil {
-				t.Fatal(err)
-			}
-			if diff := cmp.Diff(tc.want, got, cmpopts.EquateNaNs()); diff != "" {
-				t.Errorf("matches differ (-want +got):\n%s", diff)
-			}
-		})
+// readMapped is ReadMappedTable's cells and dimension.
+func readMapped(path string, targetVoxel *transform.Vec) ([]MappedCell, int, error) {
+	m, err := ReadMappedTable(path, targetVoxel)
+	if err != nil {
+		return nil, 0, err
 	}
-	if _, err := ReadMatches(filepath.Join(t.TempDir(), "absent.csv")); err == nil || !strings.Contains(err.Error(), "absent.csv: cannot open: no such file") {
-		t.Errorf("absent file: error %v", err)
-	}
+	return m.Cells, m.Dim, nil
 }
