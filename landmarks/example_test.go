@@ -76,7 +76,7 @@ func ExamplePairSet_Exclude() {
 	fmt.Println(err)
 	// Output:
 	// [A C] <nil>
-	// --exclude: no landmark with id "D" in pairs.csv
+	// no landmark with id "D" in pairs.csv
 }
 
 func ExampleCheckSpread() {

@@ -1,10 +1,12 @@
 package landmarks
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"strings"
 
+	"ferry/internal/errkind"
 	"ferry/transform"
 )
 
@@ -165,9 +167,13 @@ func (s *PairSet) ScaleVoxels(src, dst transform.Vec) {
 	}
 }
 
-// Exclude returns a copy of s without the pairs whose ids are listed, as
-// asked by --exclude. It is an error to name an id that s does not hold or
-// to exclude every pair.
+// ErrExclusion is matched (errors.Is) by the errors of Exclude: an id that
+// the set does not hold, or a list that leaves no pair.
+var ErrExclusion = errors.New("cannot leave out these landmarks")
+
+// Exclude returns a copy of s without the pairs whose ids are listed. It is
+// an error (ErrExclusion) to name an id that s does not hold or to exclude
+// every pair.
 func (s *PairSet) Exclude(ids []string) (*PairSet, error) {
 	held := make(map[string]bool, len(s.Pairs))
 	for _, p := range s.Pairs {
@@ -176,7 +182,7 @@ func (s *PairSet) Exclude(ids []string) (*PairSet, error) {
 	drop := make(map[string]bool, len(ids))
 	for _, id := range ids {
 		if !held[id] {
-			return nil, fmt.Errorf("--exclude: no landmark with id %s in %s", quote(id), s.fileName())
+			return nil, errkind.New(ErrExclusion, "no landmark with id %s in %s", quote(id), s.fileName())
 		}
 		drop[id] = true
 	}
@@ -188,7 +194,7 @@ func (s *PairSet) Exclude(ids []string) (*PairSet, error) {
 		}
 	}
 	if len(out.Pairs) == 0 {
-		return nil, fmt.Errorf("--exclude: excludes all %d landmark pairs of %s", len(s.Pairs), s.fileName())
+		return nil, errkind.New(ErrExclusion, "excludes all %d landmark pairs of %s", len(s.Pairs), s.fileName())
 	}
 	return &out, nil
 }

@@ -3,6 +3,7 @@ package register
 import (
 	"context"
 	"errors"
+	"ferry/internal/errkind"
 	"ferry/internal/sample"
 	"ferry/progress"
 	"fmt"
@@ -389,7 +390,7 @@ func (a *Assessment) finite() error {
 func enoughFor(p *Problem, model transform.Kind) error {
 	need := transform.MinPairs(model, p.Dim) + 1
 	if p.Len() < need {
-		return fmt.Errorf("the %s model in %d-D needs at least %d landmark pairs for its leave-one-out check, have %d", model, p.Dim, need, p.Len())
+		return errkind.New(transform.ErrTooFewPairs, "the %s model in %d-D needs at least %d landmark pairs for its leave-one-out check, have %d", model, p.Dim, need, p.Len())
 	}
 	spread := 0
 	switch model {

@@ -70,17 +70,19 @@ type Smoothing struct {
 	Value float64
 }
 
-// ParseSmoothing reads the --smoothing flag: "auto" or a number ≥ 0.
+// ParseSmoothing reads a smoothing as the command line gives it: "auto" or
+// a number ≥ 0. The error speaks of the value; the caller names where it
+// came from.
 func ParseSmoothing(s string) (Smoothing, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return Smoothing{Auto: true}, nil
 	}
 	v, err := landmarks.ParseDecimal(s)
 	if err != nil {
-		return Smoothing{}, fmt.Errorf("--smoothing: want \"auto\" or a number ≥ 0, got %q", s)
+		return Smoothing{}, fmt.Errorf("want \"auto\" or a number ≥ 0, got %q", s)
 	}
 	if v < 0 {
-		return Smoothing{}, fmt.Errorf("--smoothing: %g is negative: want \"auto\" or a number ≥ 0", v)
+		return Smoothing{}, fmt.Errorf("%g is negative: want \"auto\" or a number ≥ 0", v)
 	}
 	return Smoothing{Value: v}, nil
 }
@@ -92,7 +94,8 @@ func (s Smoothing) String() string {
 	return strconv.FormatFloat(s.Value, 'g', -1, 64)
 }
 
-// ParseModel reads the --model flag: "auto" (the empty Kind) or a model.
+// ParseModel reads a model name as the command line gives it: "auto" (the
+// empty Kind) or a model.
 func ParseModel(s string) (transform.Kind, error) {
 	if strings.EqualFold(strings.TrimSpace(s), "auto") {
 		return "", nil
@@ -100,7 +103,7 @@ func ParseModel(s string) (transform.Kind, error) {
 	k, err := transform.ParseKind(strings.ToLower(strings.TrimSpace(s)))
 	if err != nil {
 		// The command line also takes auto, which transform does not know.
-		return "", fmt.Errorf("--model: unknown model %q (want auto, translation, rigid, similarity, affine or tps)", s)
+		return "", fmt.Errorf("unknown model %q (want auto, translation, rigid, similarity, affine or tps)", s)
 	}
 	return k, nil
 }

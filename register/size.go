@@ -9,6 +9,7 @@ import (
 	"strings"
 	"time"
 
+	"ferry/internal/errkind"
 	"ferry/transform"
 )
 
@@ -153,7 +154,7 @@ func (e JobEstimate) CheckMemory(available uint64) error {
 	if available == 0 || e.Bytes <= float64(available) {
 		return nil
 	}
-	return fmt.Errorf("%s, and this machine has %s available (/proc/meminfo): refused before starting; %s",
+	return errkind.New(ErrTooLarge, "%s, and this machine has %s available (/proc/meminfo): refused before starting; %s",
 		e, FormatBytes(float64(available)), e.smaller())
 }
 

@@ -3,6 +3,8 @@ package transform
 import (
 	"fmt"
 	"math"
+
+	"ferry/internal/errkind"
 )
 
 // Fit fits a model of the given kind that maps src[i] to dst[i] in dim
@@ -23,7 +25,7 @@ func Fit(kind Kind, dim int, src, dst []Vec, opt Options) (*Result, error) {
 		if opt.LeaveOneOut {
 			what = "a fit with leave-one-out"
 		}
-		return nil, fmt.Errorf("%s model in %d-D needs at least %d landmark pairs for %s, have %d", kind, dim, need, what, len(src))
+		return nil, errkind.New(ErrTooFewPairs, "%s model in %d-D needs at least %d landmark pairs for %s, have %d", kind, dim, need, what, len(src))
 	}
 	switch kind {
 	case Translation, Rigid, Similarity, Affine:

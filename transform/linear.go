@@ -8,6 +8,8 @@ import (
 	"sync"
 
 	"gonum.org/v1/gonum/mat"
+
+	"ferry/internal/errkind"
 )
 
 // Linear is the map p ↦ A·p + T: a translation, a rigid motion (a rotation,
@@ -45,7 +47,7 @@ func (l *Linear) Jacobian(Vec) Mat { return l.A }
 func (l *Linear) Invert(q Vec) (Vec, error) {
 	inv, ok := l.A.Inverse()
 	if !ok {
-		return Vec{}, fmt.Errorf("%s transform has a singular matrix and cannot be inverted", l.Model)
+		return Vec{}, errkind.New(ErrSingular, "%s transform has a singular matrix and cannot be inverted", l.Model)
 	}
 	return inv.MulVec(q.Sub(l.T)), nil
 }

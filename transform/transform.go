@@ -74,6 +74,14 @@ type Transform interface {
 // ErrNoConvergence is wrapped by Invert when an iterative inverse fails.
 var ErrNoConvergence = errors.New("inverse did not converge")
 
+// ErrSingular is matched (errors.Is) by the error of Invert for a linear
+// map whose matrix is singular: it has no inverse anywhere.
+var ErrSingular = errors.New("singular matrix: no inverse")
+
+// ErrTooFewPairs is matched (errors.Is) by the error of a fit given fewer
+// landmark pairs than its model needs (MinPairs, one more for leave-one-out).
+var ErrTooFewPairs = errors.New("too few landmark pairs")
+
 // Result is a fitted transform with its residuals.
 type Result struct {
 	Transform Transform

@@ -3,6 +3,7 @@ package main
 import (
 	"crypto/sha256"
 	"encoding/hex"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -60,10 +61,10 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 	var job landmarkJob
 	var err error
 	if job.settings.Model, err = register.ParseModel(f.model); err != nil {
-		return nil, err
+		return nil, fmt.Errorf("--model: %w", err)
 	}
 	if job.settings.Smoothing, err = register.ParseSmoothing(f.smoothing); err != nil {
-		return nil, err
+		return nil, fmt.Errorf("--smoothing: %w", err)
 	}
 	if job.exclude, err = landmarks.ParseIDList("--exclude", f.exclude); err != nil {
 		return nil, err
@@ -102,7 +103,7 @@ func (f *modelFlags) load(path string) (*landmarkJob, error) {
 		*t.dst = &v
 	}
 	if job.problem, err = register.PrepareLandmarks(job.set, job.exclude, job.voxels); err != nil {
-		return nil, err
+		return nil, excludeFlag(err)
 	}
 	return &job, nil
 }
@@ -286,4 +287,12 @@ func (d *decimalFlag) Set(s string) error {
 	}
 	*d = decimalFlag(v)
 	return nil
+}
+
+// excludeFlag names the flag --exclude in an error about the ids left out.
+func excludeFlag(err error) error {
+	if errors.Is(err, landmarks.ErrExclusion) {
+		return fmt.Errorf("--exclude: %w", err)
+	}
+	return err
 }

@@ -64,7 +64,7 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 		return grid, fmt.Errorf("imaging: warp: want a 3-D transform")
 	}
 	if err := checkVoxel(opt.VoxelUM); err != nil {
-		return grid, fmt.Errorf("--voxel: %w", err)
+		return grid, fmt.Errorf("imaging: warp: output voxel size of %w", err)
 	}
 	if err := checkVoxel(g.VoxelUM); err != nil {
 		return grid, fmt.Errorf("imaging: warp: voxel size of %s: %w", h.name(), err)
@@ -75,7 +75,7 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 		lo, hi = opt.Bounds[0], opt.Bounds[1]
 		for a := range 3 {
 			if !(hi[a] >= lo[a]) || math.IsInf(lo[a], 0) || math.IsInf(hi[a], 0) {
-				return grid, fmt.Errorf("--bounds: %s from %g to %g µm: want finite numbers with X0 ≤ X1, Y0 ≤ Y1, Z0 ≤ Z1", "xyz"[a:a+1], lo[a], hi[a])
+				return grid, fmt.Errorf("imaging: warp: output box: %s from %g to %g µm: want finite numbers with the lower corner below the upper", "xyz"[a:a+1], lo[a], hi[a])
 			}
 		}
 	} else {
