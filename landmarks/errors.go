@@ -22,6 +22,7 @@ type InputError struct {
 	Msg string
 }
 
+// Error is the one-line message: file, line and column, then what is wrong.
 func (e *InputError) Error() string {
 	var b strings.Builder
 	switch {

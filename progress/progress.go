@@ -125,18 +125,21 @@ type Recorder struct {
 	finish int
 }
 
+// Step records the name of a stage.
 func (r *Recorder) Step(name string, _ int) {
 	r.mu.Lock()
 	defer r.mu.Unlock()
 	r.steps = append(r.steps, name)
 }
 
+// Add records n more units done.
 func (r *Recorder) Add(n int) {
 	r.mu.Lock()
 	defer r.mu.Unlock()
 	r.done += n
 }
 
+// Finish records the end of a stage.
 func (r *Recorder) Finish() {
 	r.mu.Lock()
 	defer r.mu.Unlock()

@@ -87,6 +87,8 @@ func ParseSmoothing(s string) (Smoothing, error) {
 	return Smoothing{Value: v}, nil
 }
 
+// String is the smoothing as ParseSmoothing reads it back: "auto" or the
+// number.
 func (s Smoothing) String() string {
 	if s.Auto {
 		return "auto"
