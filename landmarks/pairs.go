@@ -13,7 +13,7 @@ import (
 // Kind says what structure a landmark marks.
 type Kind string
 
-// The landmark kinds of the contract.
+// The landmark kinds (docs/formats.md).
 const (
 	KindVessel Kind = "vessel" // a branch point of a blood vessel
 	KindSoma   Kind = "soma"   // a cell body

@@ -155,7 +155,7 @@ func WriteMappedTable(ctx context.Context, path string, prov Provenance, cells *
 	})
 }
 
-// WriteMapped writes the mapped cells in the contract's columns, header
+// WriteMapped writes the mapped cells in the columns of docs/formats.md, header
 // row first: id, x, y, z (mapped, in micrometres or, when voxel is not nil,
 // in voxels of that size), sd_x_um, sd_y_um, sd_z_um, r95_um, status, the
 // position again in micrometres under names that say its frame

@@ -1,6 +1,7 @@
 package status
 
-// Status is the verdict on one cell, a word of the file contract.
+// Status is the verdict on one cell, a word of the status columns of
+// docs/formats.md.
 type Status string
 
 // The statuses of a mapped cell, from the least to the most serious; a cell

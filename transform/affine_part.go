@@ -7,7 +7,7 @@ import (
 
 // AffinePart returns the affine part of t in micrometres, f(p) ≈ A·p + b:
 // for a linear model the model itself; for a thin-plate spline the a₀ + A·p
-// of the contract's micrometre form (see the top of tps.go), so that the
+// of the micrometre form of docs/methods.md ("The spline"), so that the
 // spline is exactly A·p + b + Σ_j w_j φ(|p − p_j|); for a chain of linear
 // steps their composition. A chain holding a spline has no single affine
 // part and is refused.

@@ -125,7 +125,7 @@ type Options struct {
 	// Weights, when not nil, give each pair a relative weight (its
 	// precision); nil means equal weights. Only ratios matter.
 	Weights []float64
-	// Smoothing is the thin-plate-spline S ≥ 0 of the contract, in the
+	// Smoothing is the thin-plate-spline S ≥ 0 of docs/methods.md, in the
 	// units of the kernel evaluated in micrometres. Ignored by the other
 	// models.
 	Smoothing float64

@@ -2,8 +2,8 @@
 // volumes of the same tissue from landmark pairs, checks the registration by
 // leave-one-out, and maps and matches imaged cells with their uncertainty.
 //
-// The commands, flags, columns and exit codes are those of the project's
-// contract, documented in docs/usage.md.
+// The commands, flags and exit codes are documented in docs/usage.md, the
+// files and their columns in docs/formats.md.
 package main
 
 import (
@@ -22,7 +22,7 @@ import (
 	"ferry/register/outfile"
 )
 
-// Exit statuses of the contract.
+// Exit statuses (docs/usage.md).
 const (
 	exitOK      = 0
 	exitError   = 1

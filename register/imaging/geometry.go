@@ -15,7 +15,7 @@ import (
 // A Geometry read from a file says what the file records and no more: a side
 // of VoxelUM is 0 where the file records no voxel size along that axis, and
 // HasOrigin is false along an axis whose origin the file does not record
-// (OriginUM is then 0 there, the contract's default).
+// (OriginUM is then 0 there, the default of docs/formats.md, "Images").
 type Geometry struct {
 	VoxelUM   transform.Vec `json:"voxel_um"`
 	OriginUM  transform.Vec `json:"origin_um"`

@@ -98,7 +98,7 @@ func num(v float64) string { return strconv.FormatFloat(v, 'g', 6, 64) }
 // A stack's pages, and a plane whose file records its z position, lie at
 // fixed indices: targetZ must name one of them, and a plane's own index is
 // the default. A plane that records no z position is put at targetZ
-// (default 0), as the contract says.
+// (default 0), as docs/usage.md says of --target-z.
 func PlaneGrid(like *Stack, g Geometry, targetZ *int) (Grid, int, error) {
 	grid := Grid{Width: like.Width, Height: like.Height, Voxel: g.VoxelUM,
 		Origin: transform.Vec{g.OriginUM[0], g.OriginUM[1], 0}}

@@ -16,7 +16,7 @@ const DefaultToleranceUM = 0.05
 // Grid is the pixel grid of one output plane: Width × Height pixels of a
 // space whose voxels measure Voxel µm, at page Z of that space. Pixel (i, j)
 // sits at Origin + (i·Voxel[0], j·Voxel[1], Z·Voxel[2]) µm; Origin is zero
-// for the contract's voxel grid.
+// for the voxel grid of docs/formats.md ("Images").
 type Grid struct {
 	Width, Height int
 	Voxel         transform.Vec
@@ -52,7 +52,7 @@ type ResampleOptions struct {
 	// for a spline, and never needed for accuracy.
 	Exact bool
 	// StackOrigin is the position of the input stack's voxel (0, 0, 0),
-	// µm; zero for the contract's voxel grid.
+	// µm; zero for the voxel grid of docs/formats.md ("Images").
 	StackOrigin transform.Vec
 }
 

@@ -53,7 +53,7 @@ func CoordinateColumns(dim int, voxel *transform.Vec) []string {
 	return append(cols, "r95_um")
 }
 
-// WriteMatches writes the matches in the contract's columns, header row
+// WriteMatches writes the matches in the columns of docs/formats.md, header row
 // first: id, candidate (empty when none),
 // p_match (the posterior probability that the cell is the candidate named;
 // empty when none is named, where p_none says how likely no counterpart

@@ -60,7 +60,7 @@
 //
 // Generate builds a Scenario; its exported fields hold the truth for tests
 // (each cell's true target and candidate, each landmark's wrong flag).
-// Scenario.Write writes the files of the contract and the truth files, each
+// Scenario.Write writes the input files (docs/formats.md) and the truth files, each
 // whole or not at all. docs/simulation.md describes the files and the
 // defaults.
 //
