@@ -28,7 +28,7 @@ func writeFile(t *testing.T, name, text string) string {
 }
 
 // The table that WriteMappedTable writes is the one ReadMappedTable
-// reads: the two must agree on the columns of the contract, and the reader
+// reads: the two must agree on the columns of docs/formats.md, and the reader
 // takes the frame and units from the sidecar, from the micrometre columns
 // when the sidecar is gone, and assumes the transform's units only when
 // neither is there.
