@@ -66,7 +66,7 @@ func ReadMappedTable(path string, targetVoxel *transform.Vec) (*MappedTable, err
 	if err != nil {
 		return nil, err
 	}
-	inverse := &landmarks.InputError{File: path, Msg: "holds source positions (written by ferry map --inverse): want cells mapped forward into the target"}
+	inverse := &landmarks.InputError{File: path, Msg: "holds source positions (cells mapped back from the target): want cells mapped forward into the target"}
 	out := &MappedTable{}
 	pos, scale, err := mappedPositions(t, data, targetVoxel, out, inverse)
 	if err != nil {
