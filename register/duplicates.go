@@ -33,8 +33,8 @@ func repeatedSource(p *Problem) error {
 			if within(p.Target[first], p.Target[second], p.Dim, coincidentUM) {
 				what = "and the same target: the pair is given twice"
 			}
-			return fmt.Errorf("landmarks %s%s and %s%s have the same source position %s, %s; correct one, leave one out (--exclude %s) or use --model affine",
-				p.IDs[first], p.lineOf(first), p.IDs[second], p.lineOf(second), formatVecUM(p.Source[first], p.Dim), what, p.IDs[second])
+			return &PairError{ID: p.IDs[second], Affine: true, Msg: fmt.Sprintf("landmarks %s%s and %s%s have the same source position %s, %s; correct one, leave one out (%s) or use an affine model",
+				p.IDs[first], p.lineOf(first), p.IDs[second], p.lineOf(second), formatVecUM(p.Source[first], p.Dim), what, p.IDs[second])}
 		}
 	}
 	return nil
@@ -108,8 +108,8 @@ func farOutlier(p *Problem) error {
 			}
 		}
 		if dist[worst] > farOutlierFactor*typical {
-			return fmt.Errorf("landmark %s%s: its %s position %s lies %.3g µm from the landmarks' median position, %.2g times farther than the typical landmark (%.3g µm): a typo or a unit slip? Correct it or leave it out (--exclude %s)",
-				p.IDs[worst], p.lineOf(worst), side.name, formatVecUM(side.pos[worst], p.Dim), dist[worst], dist[worst]/typical, typical, p.IDs[worst])
+			return &PairError{ID: p.IDs[worst], Msg: fmt.Sprintf("landmark %s%s: its %s position %s lies %.3g µm from the landmarks' median position, %.2g times farther than the typical landmark (%.3g µm): a typo or a unit slip? Correct it or leave it out",
+				p.IDs[worst], p.lineOf(worst), side.name, formatVecUM(side.pos[worst], p.Dim), dist[worst], dist[worst]/typical, typical)}
 		}
 	}
 	return nil

@@ -12,3 +12,17 @@ import "errors"
 // ErrTooLarge is matched by the refusal of a job that needs more memory
 // than the machine has (JobEstimate.CheckMemory).
 var ErrTooLarge = errors.New("job too large for this machine")
+
+// PairError is a fault of one landmark pair found before any fit: two
+// pairs at one source position (for a spline), or a pair far out of line
+// with all the others. Its message speaks of the pairs; ID names the pair
+// to leave out, and Affine reports that an affine model would fit despite
+// the fault, for a caller to turn into its own advice.
+type PairError struct {
+	ID     string
+	Affine bool
+	Msg    string
+}
+
+// Error is the message.
+func (e *PairError) Error() string { return e.Msg }

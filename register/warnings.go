@@ -38,7 +38,7 @@ func (a *Assessment) MedianLOO() float64 {
 func (a *Assessment) Unresolved(maxError float64) string {
 	limit, what := SomaDiameterUM, "a soma's diameter"
 	if maxError > 0 {
-		limit, what = maxError, "--max-error"
+		limit, what = maxError, "the limit given"
 	}
 	if m := a.MedianLOO(); !(m <= limit) {
 		return fmt.Sprintf("The registration cannot resolve cells: its median leave-one-out error, %.1f µm, exceeds %s (%.0f µm); add or correct landmarks before mapping.", m, what, limit)

@@ -126,7 +126,7 @@ func (f *modelFlags) assessForFit(cmd *cobra.Command, path string, w io.Writer) 
 	}
 	fj, err := register.CheckAndFit(cmd.Context(), job.set, job.exclude, job.voxels, settings, f.keepFlagged)
 	if err != nil {
-		return nil, nil, fmt.Errorf("%s: %w", path, err)
+		return nil, nil, fmt.Errorf("%s: %w", path, pairFlags(err))
 	}
 	job.problem, job.exclude = fj.Problem, fj.Exclude
 	if len(fj.LeftOut) > 0 {
@@ -168,7 +168,7 @@ func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *reg
 	}
 	a, err := register.AssessContext(cmd.Context(), job.problem, settings)
 	if err != nil {
-		return nil, nil, fmt.Errorf("%s: %w", path, err)
+		return nil, nil, fmt.Errorf("%s: %w", path, pairFlags(err))
 	}
 	return job, a, nil
 }
@@ -295,4 +295,17 @@ func excludeFlag(err error) error {
 		return fmt.Errorf("--exclude: %w", err)
 	}
 	return err
+}
+
+// pairFlags adds to the error about one landmark pair the flags that act
+// on it: --exclude with its id, and --model affine where that would fit.
+func pairFlags(err error) error {
+	var pe *register.PairError
+	if !errors.As(err, &pe) {
+		return err
+	}
+	if pe.Affine {
+		return fmt.Errorf("%w (--exclude %s, or --model affine)", err, pe.ID)
+	}
+	return fmt.Errorf("%w (--exclude %s)", err, pe.ID)
 }
