@@ -133,7 +133,8 @@ func familySeeds(t *testing.T) []uint64 {
 // register/internal/families (six clean sets, ten with two planted
 // mistakes each) and holds them to what docs/error-model.md records: few
 // good landmarks flagged, the planted mistakes found, the cells' error no
-// worse than with the mistakes removed by hand, and r95 coverage near 95 %.
+// worse than with the mistakes removed by hand, and r95 coverage near 95 %
+// pooled, in the median and in the worst scenario.
 // Run with -v to see the table.
 func TestFamilies(t *testing.T) {
 	if testing.Short() {
@@ -187,9 +188,16 @@ func TestFamilies(t *testing.T) {
 		for st, p := range pool {
 			c := float64(p.inside) / float64(p.total)
 			t.Logf("  %s cells: %.3f of %d inside r95", st, c, p.total)
-			if c < 0.88 || c > 0.99 {
-				t.Errorf("%s: %.3f of the %s cells inside r95 pooled over the scenarios, want 0.88 to 0.99", group.name, c, st)
+			if c < 0.90 || c > 0.99 {
+				t.Errorf("%s: %.3f of the %s cells inside r95 pooled over the scenarios, want 0.90 to 0.99", group.name, c, st)
 			}
+		}
+		// The worst scenario and status: what docs/error-model.md records
+		// for seeds 1 and 2 (0.842 clean, 0.630 with mistakes, the sparse
+		// m-bumps-24), not the 0.90.
+		worst := map[string]float64{"clean": 0.80, "mistakes": 0.60}[group.name]
+		if covs[0] < worst {
+			t.Errorf("%s: the worst coverage per scenario and status %.3f, want at least %.2f", group.name, covs[0], worst)
 		}
 		if med := covs[len(covs)/2]; med < 0.90 || med > 0.99 {
 			t.Errorf("%s: median coverage per scenario %.3f, want 0.90 to 0.99", group.name, med)
