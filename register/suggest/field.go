@@ -217,20 +217,25 @@ func refineByRefit(g *register.FieldGain, xs, zs []transform.Vec, score []float6
 	for _, j := range chosen {
 		base = append(base, zs[j])
 	}
-	// The mean variance now: a candidate that would not lower it is not
-	// suggested, and the search stops short.
+	// The mean variance and the median r95 now: a candidate that would not
+	// lower the one without raising the other is not suggested, and the
+	// search stops short.
 	now, err := g.Refit(base)
 	if err != nil {
 		return -1, err
 	}
-	bestMean := meanVariance(now.MapAll(xs, cellSD, false))
+	ps := now.MapAll(xs, cellSD, false)
+	bestMean, nowMedian := meanVariance(ps), medianR95(ps)
 	best := -1
 	for _, j := range order {
 		m, err := g.Refit(append(base, zs[j]))
 		if err != nil {
 			return -1, err
 		}
-		if v := meanVariance(m.MapAll(xs, cellSD, false)); v < bestMean {
+		// The mean squared error decides among the candidates that do not
+		// raise the median r95, the figure suggest reports for each row.
+		ps := m.MapAll(xs, cellSD, false)
+		if v := meanVariance(ps); v < bestMean && medianR95(ps) <= nowMedian {
 			best, bestMean = j, v
 		}
 	}
@@ -250,4 +255,13 @@ func meanVariance(ps []register.Mapped) float64 {
 		}
 	}
 	return sum / float64(max(len(ps), 1))
+}
+
+// medianR95 is the cells' median r95.
+func medianR95(ps []register.Mapped) float64 {
+	r := make([]float64, len(ps))
+	for i, p := range ps {
+		r[i] = p.R95
+	}
+	return medianOf(r)
 }
