@@ -193,7 +193,7 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 
 // fieldRefitTop is how many of the best-ranked candidates are tried by
 // refitting before one is chosen.
-const fieldRefitTop = 8
+const fieldRefitTop = 16
 
 // refineByRefit takes the fieldRefitTop candidates the kriging update ranks
 // best and chooses the one whose refitted transform gives the cells the
