@@ -589,7 +589,7 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		worst, worstScore := -1, threshold
 		for k, i := range idx {
 			out.score[i] = scores[k]
-			if scores[k] > worstScore {
+			if scores[k] > worstScore && f.res.LOO[k].Norm() >= minFlagErrorUM {
 				worst, worstScore = i, scores[k]
 			}
 		}
@@ -610,7 +610,7 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		}
 		k := sort.SearchInts(idx, i)
 		out.score[i] = studentise(f.res, p.Dim, s, q.Source, k)[k]
-		if out.score[i] <= studentisedThreshold(p.Dim, len(idx), n) {
+		if out.score[i] <= studentisedThreshold(p.Dim, len(idx), n) || f.res.LOO[k].Norm() < minFlagErrorUM {
 			out.flagged[i] = false
 			continue
 		}

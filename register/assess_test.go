@@ -193,3 +193,25 @@ func TestAssessReportsProgress(t *testing.T) {
 		t.Errorf("stages %q, %d fits reported, %d finished", steps, rec.Done(), rec.Finished())
 	}
 }
+
+// A landmark off by less than half a soma's diameter is never called
+// wrong, however improbable the error model finds it: in a noise-free set
+// a 3 µm error stands far out of the leave-one-out spread, and is still
+// not a wrong correspondence; a 20 µm wrong section in the same set is
+// found.
+func TestFlagFloor(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 3))
+	p := synthetic(rng, 40, warpedTruth, transform.Vec{})
+	p.Target[5][0] += 3
+	p.Target[17][2] += 20
+	a, err := Assess(p, Settings{Smoothing: Smoothing{Auto: true}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Landmarks[5].Flag != "" {
+		t.Errorf("a landmark off by 3 µm (leave-one-out error %.1f µm, score %.1f) flagged: %s", a.Landmarks[5].LOOError, a.Landmarks[5].Score, a.Landmarks[5].Flag)
+	}
+	if a.Landmarks[17].Flag == "" {
+		t.Errorf("a 20 µm wrong section (score %.1f) not flagged", a.Landmarks[17].Score)
+	}
+}

@@ -154,3 +154,24 @@ func TestKindWeights(t *testing.T) {
 		})
 	}
 }
+
+// The small-sample widening of the calibrated variance level is
+// dim·F₀.₉₅(dim, n)/χ²₀.₉₅(dim), the 95 % point of a prediction's
+// standardised squared error with a scale estimated on n degrees of
+// freedom (a multivariate Student t) over that with the scale known. The
+// values are scipy.stats' (f.ppf and chi2.ppf, Debian's python3-scipy,
+// run as /usr/bin/python3 when this test was written).
+func TestSmallSampleFactor(t *testing.T) {
+	for _, tc := range []struct {
+		dim  int
+		n    float64
+		want float64
+	}{
+		{3, 10, 1.42357}, {3, 20, 1.18944}, {3, 28, 1.13120}, {3, 60, 1.05880}, {3, 308, 1.01114},
+		{2, 10, 1.36956}, {2, 60, 1.05163},
+	} {
+		if got := smallSampleFactor(tc.dim, tc.n); math.Abs(got-tc.want) > 1e-4 {
+			t.Errorf("dim %d, n %g: %.5f, want %.5f", tc.dim, tc.n, got, tc.want)
+		}
+	}
+}

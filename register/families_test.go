@@ -134,7 +134,8 @@ func familySeeds(t *testing.T) []uint64 {
 // register/internal/families (six clean sets, ten with two planted
 // mistakes each) and holds them to what docs/error-model.md records: few
 // good landmarks flagged, the planted mistakes found, the cells' error no
-// worse than with the mistakes removed by hand, and r95 coverage near 95 %.
+// worse than with the mistakes removed by hand, and r95 coverage near 95 %
+// pooled, in the median and in the worst scenario.
 // Run with -v to see the table.
 func TestFamilies(t *testing.T) {
 	if testing.Short() {
@@ -173,12 +174,12 @@ func TestFamilies(t *testing.T) {
 			group.name, seeds, falseFl, found, wrong, covs[0], covs[len(covs)-1], covs[len(covs)/2])
 		runs := len(seeds)
 		switch group.name {
-		// The bounds are what docs/error-model.md records for seeds 1 and
-		// 2, per seed: the targets (one flag over six clean sets,
-		// every mistake found) are not met.
+		// The bounds are what docs/error-model.md records for seeds 1 to
+		// 3, per seed: one good landmark flagged over six clean sets (the
+		// issue's target), not every mistake found (the target).
 		case "clean":
-			if falseFl > 2*runs {
-				t.Errorf("%d good landmarks flagged over %d clean sets, want at most %d", falseFl, 6*runs, 2*runs)
+			if falseFl > runs {
+				t.Errorf("%d good landmarks flagged over %d clean sets, want at most %d", falseFl, 6*runs, runs)
 			}
 		case "mistakes":
 			if found < wrong-2*runs || falseFl > 3*runs {
@@ -191,6 +192,13 @@ func TestFamilies(t *testing.T) {
 			if c < 0.88 || c > 0.99 {
 				t.Errorf("%s: %.3f of the %s cells inside r95 pooled over the scenarios, want 0.88 to 0.99", group.name, c, st)
 			}
+		}
+		// The worst scenario and status: what docs/error-model.md records
+		// for seeds 1 to 3 (0.886 clean, 0.630 with mistakes, the sparse
+		// m-bumps-24), not the 0.90.
+		worst := map[string]float64{"clean": 0.85, "mistakes": 0.60}[group.name]
+		if covs[0] < worst {
+			t.Errorf("%s: the worst coverage per scenario and status %.3f, want at least %.2f", group.name, covs[0], worst)
 		}
 		if med := covs[len(covs)/2]; med < 0.90 || med > 0.99 {
 			t.Errorf("%s: median coverage per scenario %.3f, want 0.90 to 0.99", group.name, med)

@@ -74,6 +74,19 @@ type FieldParams struct {
 	Noise transform.Vec `json:"noise"`
 	// Kinds lists the kinds with their relative noise D (first kind 1).
 	Kinds map[landmarks.Kind]float64 `json:"kind_noise"`
+	// Outside is the factor per axis by which the variances of points
+	// outside the landmarks' hull are multiplied (calibrateField: the
+	// leave-one-out errors of the landmarks on the hull set it apart from
+	// those inside); zero means 1, as in files written before it.
+	Outside transform.Vec `json:"outside_scale,omitempty"`
+}
+
+// outsideScale is the factor of axis k for a point outside the hull.
+func (p *FieldParams) outsideScale(k int) float64 {
+	if p.Outside[k] > 0 {
+		return p.Outside[k]
+	}
+	return 1
 }
 
 // corr is the Matérn correlation at distance r (µm).
@@ -252,6 +265,34 @@ func (b *fieldBasis) bestLambda(k int) (lambda, s, ll float64) {
 	return lambda, s, ll
 }
 
+// averagedNoise is axis k's field variance s and noise variance s·λ
+// averaged over λ with weights proportional to the restricted likelihood
+// (a flat prior on log λ over the grid of fieldLambdas): the model's
+// variances are linear in s and s·λ, so the averaged pair gives the
+// variances averaged over λ's posterior (Rasmussen & Williams 2006, §5.2,
+// the marginal over a hyperparameter). With a few dozen landmarks the
+// likelihood hardly tells a rough field from picking noise, and the value
+// at its peak may put all of one in the other: a noise of 0 then leaves a
+// cell's own picking error out of its radius.
+func (b *fieldBasis) averagedNoise(k int) (s, sLambda float64) {
+	lambdas := fieldLambdas()
+	lls := make([]float64, len(lambdas))
+	scales := make([]float64, len(lambdas))
+	top := math.Inf(-1)
+	for i, l := range lambdas {
+		lls[i], scales[i] = b.logLik(k, l)
+		top = math.Max(top, lls[i])
+	}
+	sum := 0.0
+	for i, l := range lambdas {
+		w := math.Exp(lls[i] - top)
+		sum += w
+		s += w * scales[i]
+		sLambda += w * scales[i] * l
+	}
+	return s / sum, sLambda / sum
+}
+
 // evaluate fits every axis's λ and s on the basis and returns the total
 // restricted log-likelihood.
 func (b *fieldBasis) evaluate(dim int) (lambda, s transform.Vec, ll float64) {
@@ -412,6 +453,15 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 	fit := &fieldFit{
 		params: FieldParams{Smoothness: best.nu, Length: best.length, Amplitude: best.s, Noise: best.lambda, Kinds: map[landmarks.Kind]float64{}},
 		logLik: best.ll, dof: n - dim - 1,
+	}
+	if criterion == byLOO {
+		// The model for the radii: λ and s averaged over λ's posterior.
+		for k := range dim {
+			sv, sl := best.b.averagedNoise(k)
+			if sv > 0 {
+				fit.params.Amplitude[k], fit.params.Noise[k] = sv, sl/sv
+			}
+		}
 	}
 	D := dFor(best.kn)
 	for _, k := range kinds {

@@ -66,7 +66,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		worst, worstScore := -1, threshold
 		for k, i := range idx {
 			out.score[i] = f.score[k]
-			if f.score[k] > worstScore {
+			if f.score[k] > worstScore && f.loo[k].Norm() >= minFlagErrorUM {
 				worst, worstScore = i, f.score[k]
 			}
 		}
@@ -99,7 +99,7 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 		}
 		k := sort.SearchInts(idx, i)
 		out.score[i] = f.score[k]
-		if out.score[i] <= studentisedThreshold(dim, f.dof, n) {
+		if out.score[i] <= studentisedThreshold(dim, f.dof, n) || f.loo[k].Norm() < minFlagErrorUM {
 			cleared = true
 			continue
 		}
@@ -122,6 +122,15 @@ func flagByField(p *Problem, radii *RadiusTable) (*flagResult, *fieldFit, error)
 	}
 	return out, fit, nil
 }
+
+// minFlagErrorUM is the smallest leave-one-out error (µm) for which a
+// landmark is called wrong, whatever its score: half a soma's diameter. A
+// wrong correspondence pairs two distinct structures, somata or vessel
+// branch points, which lie farther apart than that; a smaller error that
+// the model finds improbable is where the warp is rougher than the model
+// expects (the noise-free families flagged landmarks 2–3 µm off), and it
+// moves no cell to another's place.
+const minFlagErrorUM = SomaDiameterUM / 2
 
 // trimmedCut is the per-landmark score above which a landmark is left out
 // of the estimation of the field's length, smoothness and kind noises: the

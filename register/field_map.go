@@ -28,6 +28,9 @@ type fieldMapper struct {
 	newD   float64    // D of a mapped point (a cell)
 	weigh  func(xs []transform.Vec) (*mat.Dense, error)
 	rows   [][]float64 // corr's rows, for FieldParams.variance
+	// hull is the landmarks' hull, outside which the variances take the
+	// error model's Outside factor.
+	hull supportHull
 
 	gridOnce sync.Once
 	g        *fieldGrid
@@ -39,7 +42,8 @@ func newFieldMapper(t transform.Transform, u *UncertaintyModel) (*fieldMapper, e
 		return nil, errors.New("no error model")
 	}
 	n := len(u.Source)
-	f := &fieldMapper{dim: t.Dim(), params: u.Field, src: u.Source, d: make([]float64, n), newD: u.CellNoise}
+	f := &fieldMapper{dim: t.Dim(), params: u.Field, src: u.Source, d: make([]float64, n), newD: u.CellNoise,
+		hull: newSupportHull(u.Source, t.Dim())}
 	if len(u.Kinds) != n {
 		return nil, fmt.Errorf("uncertainty model: %d landmarks with %d kinds", n, len(u.Kinds))
 	}
@@ -131,10 +135,22 @@ const fieldGridNodes = 16 * 16 * 16
 // exactly, or, when onGrid, trilinearly interpolated from exact values on
 // the mapper's grid (variancesOnGrid) for the points inside it.
 func (f *fieldMapper) variances(xs []transform.Vec, onGrid bool) []transform.Vec {
+	var out []transform.Vec
 	if !onGrid {
-		return f.exactVariances(xs)
+		out = f.exactVariances(xs)
+	} else {
+		out = f.variancesOnGrid(xs)
 	}
-	return f.variancesOnGrid(xs)
+	if f.params.Outside != (transform.Vec{}) {
+		for i, x := range xs {
+			if !f.hull.contains(x) {
+				for k := range f.dim {
+					out[i][k] *= f.params.outsideScale(k)
+				}
+			}
+		}
+	}
+	return out
 }
 
 // fieldGrid is the grid of variancesOnGrid: the landmarks' bounding box

@@ -26,7 +26,7 @@ func TestFieldGridVariances(t *testing.T) {
 		xs[i] = transform.Vec{-40 + rng.Float64()*580, -40 + rng.Float64()*580, -20 + rng.Float64()*390}
 	}
 	grid := m.field.variances(xs, true)
-	exact := m.field.exactVariances(xs[:2000])
+	exact := m.field.variances(xs[:2000], false)
 	var rel []float64
 	for i, e := range exact {
 		for k := range 3 {

@@ -64,7 +64,7 @@ func ExampleSuggest() {
 			sg.Rank, sg.Source[0], sg.Source[1], sg.Source[2], sg.Target[0], sg.Target[1], sg.Target[2], sg.TargetR95, sg.R95After)
 	}
 	// Output:
-	// median r95 of the cells now: 1.77 µm
-	// 1. landmark at (260, 260, 260) µm, look near (20237, 10239, 3208) µm in EM within 2.0 µm: median r95 0.89 µm
-	// 2. landmark at (150, 150, 150) µm, look near (20138, 10138, 3121) µm in EM within 0.8 µm: median r95 0.89 µm
+	// median r95 of the cells now: 1.66 µm
+	// 1. landmark at (260, 260, 260) µm, look near (20237, 10239, 3208) µm in EM within 1.9 µm: median r95 0.93 µm
+	// 2. landmark at (150, 150, 150) µm, look near (20138, 10138, 3121) µm in EM within 0.8 µm: median r95 0.93 µm
 }

@@ -110,7 +110,6 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 			}
 		}
 	}
-	table := register.Radius95(dim)
 	Z := len(zs)
 	var us, ws [][3][]float64 // corrections over cells and over candidates
 	taken := make([]bool, Z)
@@ -118,14 +117,13 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 	score := make([]float64, Z)
 	for range n {
 		transform.ParallelRanges(Z, 16, func(lo, hi int) {
-			r := make([]float64, len(xs))
 			for j := lo; j < hi; j++ {
 				if taken[j] {
 					score[j] = math.Inf(1)
 					continue
 				}
+				total := 0.0
 				for i := range xs {
-					var c transform.Mat
 					for k := range dim {
 						cij := cross[k][i*Z+j]
 						for l := range us {
@@ -135,11 +133,10 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 						if d := vz[j][k] + noiseNew[k]; d > 0 {
 							v -= cij * cij / d
 						}
-						c[k][k] = math.Max(v, 0) + own[i][k]
+						total += math.Max(v, 0)
 					}
-					r[i] = table.Radius(c)
 				}
-				score[j] = medianOf(r)
+				score[j] = total / float64(len(xs))
 			}
 		})
 		best, err := refineByRefit(g, xs, zs, score, taken, chosen, cellSD)
@@ -196,7 +193,7 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 
 // fieldRefitTop is how many of the best-ranked candidates are tried by
 // refitting before one is chosen.
-const fieldRefitTop = 8
+const fieldRefitTop = 16
 
 // refineByRefit takes the fieldRefitTop candidates the kriging update ranks
 // best and chooses the one whose refitted transform gives the cells the
@@ -220,29 +217,51 @@ func refineByRefit(g *register.FieldGain, xs, zs []transform.Vec, score []float6
 	for _, j := range chosen {
 		base = append(base, zs[j])
 	}
-	r := make([]float64, len(xs))
-	// The median now: a candidate that would not lower it is not
-	// suggested, and the search stops short.
+	// The mean variance and the median r95 now: a candidate that would not
+	// lower the one without raising the other is not suggested, and the
+	// search stops short.
 	now, err := g.Refit(base)
 	if err != nil {
 		return -1, err
 	}
-	for i, p := range now.MapAll(xs, cellSD, false) {
-		r[i] = p.R95
-	}
-	bestMedian := medianOf(r)
+	ps := now.MapAll(xs, cellSD, false)
+	bestMean, nowMedian := meanVariance(ps), medianR95(ps)
 	best := -1
 	for _, j := range order {
 		m, err := g.Refit(append(base, zs[j]))
 		if err != nil {
 			return -1, err
 		}
-		for i, p := range m.MapAll(xs, cellSD, false) {
-			r[i] = p.R95
-		}
-		if med := medianOf(r); med < bestMedian {
-			best, bestMedian = j, med
+		// The mean squared error decides among the candidates that do not
+		// raise the median r95, the figure suggest reports for each row.
+		ps := m.MapAll(xs, cellSD, false)
+		if v := meanVariance(ps); v < bestMean && medianR95(ps) <= nowMedian {
+			best, bestMean = j, v
 		}
 	}
 	return best, nil
+}
+
+// meanVariance is the cells' mean squared error as map predicts it, the
+// trace of each cell's covariance averaged over the cells: the integrated
+// mean squared error of the design literature (Sacks, Welch, Mitchell &
+// Wynn 1989, Statistical Science 4:409–435), which weighs most the cells
+// the map knows worst, the ones that make its high percentiles.
+func meanVariance(ps []register.Mapped) float64 {
+	sum := 0.0
+	for _, p := range ps {
+		for k := range p.Cov {
+			sum += p.Cov[k][k]
+		}
+	}
+	return sum / float64(max(len(ps), 1))
+}
+
+// medianR95 is the cells' median r95.
+func medianR95(ps []register.Mapped) float64 {
+	r := make([]float64, len(ps))
+	for i, p := range ps {
+		r[i] = p.R95
+	}
+	return medianOf(r)
 }

@@ -78,9 +78,10 @@ type Spec struct {
 }
 
 // Cell is one held-out cell: its observed in vivo position (µm, with the
-// picking noise of a soma) and its true position in the target.
+// picking noise of a soma), its true in vivo position and its true
+// position in the target.
 type Cell struct {
-	Source, Truth transform.Vec
+	Source, TrueSource, Truth transform.Vec
 }
 
 // Scenario is a drawn landmark set with its truth.
@@ -183,7 +184,7 @@ func Draw(spec Spec, seed uint64) *Scenario {
 		for k := range 3 {
 			src[k] += rng.NormFloat64() * spec.Noise.SourceSoma[k]
 		}
-		s.Cells = append(s.Cells, Cell{Source: src, Truth: s.truth(x)})
+		s.Cells = append(s.Cells, Cell{Source: src, TrueSource: x, Truth: s.truth(x)})
 	}
 	return s
 }
