@@ -134,6 +134,6 @@ func ExampleMapper_MapAll() {
 		fmt.Printf("(%.0f, %.0f, %.0f) µm, %s, r95 %.1f µm\n", m.Pos[0], m.Pos[1], m.Pos[2], m.Status, m.R95)
 	}
 	// Output:
-	// (155, 125, 85) µm, ok, r95 0.8 µm
-	// (830, 125, 85) µm, extrapolated, r95 9.6 µm
+	// (155, 125, 85) µm, ok, r95 0.9 µm
+	// (830, 125, 85) µm, extrapolated, r95 8.9 µm
 }

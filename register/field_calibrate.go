@@ -119,7 +119,7 @@ func calibrateField(res *transform.Result, src []transform.Vec, w []float64, kin
 		for i, e := range res.LOO {
 			if v[i][k] > 0 {
 				grp := 0
-				if status[i] == StatusExtrapolated {
+				if status[i] == string(StatusExtrapolated) {
 					grp = 1
 				}
 				sum[grp] += e[k] * e[k] / v[i][k]
@@ -138,7 +138,7 @@ func calibrateField(res *transform.Result, src []transform.Vec, w []float64, kin
 		g.Amplitude[k] *= c[0]
 		g.Outside[k] = c[1] / c[0]
 		for i := range v {
-			if status[i] == StatusExtrapolated {
+			if status[i] == string(StatusExtrapolated) {
 				v[i][k] *= c[1]
 			} else {
 				v[i][k] *= c[0]

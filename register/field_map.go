@@ -9,6 +9,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"ferry/landmarks"
+	"ferry/register/internal/hull"
 	"ferry/transform"
 )
 
@@ -30,7 +31,7 @@ type fieldMapper struct {
 	rows   [][]float64 // corr's rows, for FieldParams.variance
 	// hull is the landmarks' hull, outside which the variances take the
 	// error model's Outside factor.
-	hull supportHull
+	hull *hull.Hull
 
 	gridOnce sync.Once
 	g        *fieldGrid
@@ -43,7 +44,7 @@ func newFieldMapper(t transform.Transform, u *UncertaintyModel) (*fieldMapper, e
 	}
 	n := len(u.Source)
 	f := &fieldMapper{dim: t.Dim(), params: u.Field, src: u.Source, d: make([]float64, n), newD: u.CellNoise,
-		hull: newSupportHull(u.Source, t.Dim())}
+		hull: hull.New(u.Source, t.Dim())}
 	if len(u.Kinds) != n {
 		return nil, fmt.Errorf("uncertainty model: %d landmarks with %d kinds", n, len(u.Kinds))
 	}
@@ -143,7 +144,7 @@ func (f *fieldMapper) variances(xs []transform.Vec, onGrid bool) []transform.Vec
 	}
 	if f.params.Outside != (transform.Vec{}) {
 		for i, x := range xs {
-			if !f.hull.contains(x) {
+			if !f.hull.Contains(x) {
 				for k := range f.dim {
 					out[i][k] *= f.params.outsideScale(k)
 				}
