@@ -1039,11 +1039,25 @@ func invertUpper(t blas64.Triangular) bool {
 // part (the others lie on a line or a plane); its (M⁻¹)_ii is 0 and its
 // leave-one-out error undefined, which is an error.
 func (sys *splineSystem) leaveOneOut(w []Vec) (loo []Vec, factor []float64, err error) {
+	if err := sys.checkLeverage(); err != nil {
+		return nil, nil, err
+	}
+	return sys.looFromDiagonal(w)
+}
+
+// checkLeverage refuses a system in which a pair's affine leverage is 1,
+// whose leave-one-out is then undefined.
+func (sys *splineSystem) checkLeverage() error {
 	for i, h := range sys.leverage() {
 		if 1-h <= leverageTol {
-			return nil, nil, fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
+			return fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
 		}
 	}
+	return nil
+}
+
+// looFromDiagonal is leaveOneOut after the leverage check.
+func (sys *splineSystem) looFromDiagonal(w []Vec) (loo []Vec, factor []float64, err error) {
 	d, err := sys.inverseDiagonal()
 	if err != nil {
 		return nil, nil, err
