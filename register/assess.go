@@ -490,9 +490,11 @@ func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 		var loo [][]transform.Vec
 		var errs []error
 		if pathErr == nil {
+			path.Each = func() { rep.Add(1) }
 			loo, errs = path.LeaveOneOut(sms)
+		} else {
+			rep.Add(len(sms))
 		}
-		rep.Add(len(sms))
 		for j := range sms {
 			if pathErr != nil || errs[j] != nil {
 				out[j] = math.Inf(1)
