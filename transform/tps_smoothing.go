@@ -23,8 +23,9 @@ import (
 // the solve and the diagonal of the inverse (leaveOneOut), the cubic parts
 // that depend on S. The answers are those of Fit with LeaveOneOut at each S
 // up to rounding: the same factorisations of the same matrices, summed in a
-// different order. Smoothings are evaluated concurrently, each on its own,
-// so the results do not depend on the number of cores.
+// different order. Smoothings are evaluated concurrently
+// (SmoothingPathWorkers at a time), each on its own, so the results do not
+// depend on the number of cores.
 type SmoothingPath struct {
 	base   *splineSystem // nodes, reflectors, R; smoothing and chol unset
 	n      int           // N − m
@@ -39,6 +40,14 @@ type SmoothingPath struct {
 	// goroutine that did it: a progress count.
 	Each func()
 }
+
+// SmoothingPathWorkers is the most smoothings SmoothingPath.LeaveOneOut
+// evaluates at once. Each holds three (N−m)×(N−m) matrices while it runs
+// (its projected block, the block's factor, the inverse factor reflected),
+// so the number is fixed, not the machine's core count, for the memory a
+// job needs to be known before it starts; the factorisations themselves
+// run on all cores.
+const SmoothingPathWorkers = 2
 
 // NewSmoothingPath prepares the leave-one-out of a spline fitted to src →
 // dst with opt's pair weights at any smoothing. It refuses what Fit with
@@ -126,7 +135,7 @@ func NewSmoothingPath(dim int, src, dst []Vec, opt Options) (*SmoothingPath, err
 func (p *SmoothingPath) LeaveOneOut(smoothings []float64) ([][]Vec, []error) {
 	loo := make([][]Vec, len(smoothings))
 	errs := make([]error, len(smoothings))
-	workers := min(runtime.GOMAXPROCS(0), len(smoothings))
+	workers := min(runtime.GOMAXPROCS(0), SmoothingPathWorkers, len(smoothings))
 	var next int
 	var mu sync.Mutex
 	var wg sync.WaitGroup
