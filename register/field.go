@@ -384,15 +384,25 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		if enough {
 			for _, k := range ks[1:] {
 				base := best
-				for _, r := range []float64{1.0 / 4, 1.0 / 2, 2, 4} {
-					kn := map[landmarks.Kind]float64{}
+				ratios := []float64{1.0 / 4, 1.0 / 2, 2, 4}
+				kns := make([]map[landmarks.Kind]float64, len(ratios))
+				for i, r := range ratios {
+					kns[i] = map[landmarks.Kind]float64{}
 					for kk, v := range base.kn {
-						kn[kk] = v
+						kns[i][kk] = v
 					}
-					kn[k] = r
-					t, err := try(base.nu, base.length, kn)
-					if err != nil {
-						return nil, err
+					kns[i][k] = r
+				}
+				// As the grid: side by side, considered in order.
+				ts, errs := make([]*trial, len(kns)), make([]error, len(kns))
+				transform.ParallelRanges(len(kns), 1, func(lo, hi int) {
+					for i := lo; i < hi; i++ {
+						ts[i], errs[i] = try(base.nu, base.length, kns[i])
+					}
+				})
+				for i, t := range ts {
+					if errs[i] != nil {
+						return nil, errs[i]
 					}
 					consider(t)
 				}
