@@ -174,6 +174,9 @@ func Assess(p *Problem, s Settings) (*Assessment, error) {
 // the next once ctx is cancelled.
 func AssessContext(ctx context.Context, p *Problem, s Settings) (*Assessment, error) {
 	s.ctx = ctx
+	if s.fits == nil {
+		s.fits = newFitCache()
+	}
 	if p.Len() == 0 {
 		return nil, errors.New("no landmark pairs")
 	}
@@ -445,6 +448,10 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	if err := s.cancelled(); err != nil {
 		return nil, err
 	}
+	if f := s.fits.get(kind, p, weights, s); f != nil {
+		progress.Of(s.Progress).Add(1)
+		return f, nil
+	}
 	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true, Context: s.ctx}
 	if kind == transform.TPS {
 		if s.Smoothing.Auto {
@@ -462,7 +469,9 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	if err != nil {
 		return nil, fmt.Errorf("%s fit: %w", kind, err)
 	}
-	return &fitted{kind: kind, smoothing: opt.Smoothing, res: res}, nil
+	f := &fitted{kind: kind, smoothing: opt.Smoothing, res: res}
+	s.fits.put(kind, p, weights, s, f)
+	return f, nil
 }
 
 // chooseSmoothing picks the spline's S by minimising the weighted mean
@@ -474,35 +483,55 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 	rep := progress.Of(s.Progress)
 	unit := kernelScale(q)
-	cost := func(sm float64) float64 {
-		if s.cancelled() != nil {
-			return math.Inf(1)
+	// Every S of the grid shares the kernel matrix and its projection, and
+	// the fits at the S of one pass run side by side (SmoothingPath).
+	path, pathErr := transform.NewSmoothingPath(q.Dim, q.Source, q.Target,
+		transform.Options{Weights: w, Context: s.ctx})
+	costs := func(sms []float64) []float64 {
+		out := make([]float64, len(sms))
+		var loo [][]transform.Vec
+		var errs []error
+		if pathErr == nil {
+			path.Each = func() { rep.Add(1) }
+			loo, errs = path.LeaveOneOut(sms)
+		} else {
+			rep.Add(len(sms))
 		}
-		res, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
-			transform.Options{Weights: w, Smoothing: sm, LeaveOneOut: true, Context: s.ctx})
-		rep.Add(1)
-		if err != nil {
-			return math.Inf(1)
+		for j := range sms {
+			if pathErr != nil || errs[j] != nil {
+				out[j] = math.Inf(1)
+				continue
+			}
+			c := 0.0
+			for i, r := range loo[j] {
+				c += w[i] * r.Dot(r)
+			}
+			out[j] = c
 		}
-		c := 0.0
-		for i, r := range res.LOO {
-			c += w[i] * r.Dot(r)
-		}
-		return c
+		return out
 	}
-	best, bestCost := 0.0, cost(0)
-	bestExp := math.Inf(-1)
+	var exps []float64
+	sms := []float64{0}
 	for e := -6.0; e <= 1.0; e += 0.5 {
-		sm := unit * math.Pow(10, e)
-		if c := cost(sm); c < bestCost {
-			best, bestCost, bestExp = sm, c, e
+		exps = append(exps, e)
+		sms = append(sms, unit*math.Pow(10, e))
+	}
+	cs := costs(sms)
+	best, bestCost := 0.0, cs[0]
+	bestExp := math.Inf(-1)
+	for j, e := range exps {
+		if c := cs[1+j]; c < bestCost {
+			best, bestCost, bestExp = sms[1+j], c, e
 		}
 	}
 	if !math.IsInf(bestExp, -1) {
+		var near []float64
 		for _, de := range []float64{-0.25, 0.25} {
-			sm := unit * math.Pow(10, bestExp+de)
-			if c := cost(sm); c < bestCost {
-				best, bestCost = sm, c
+			near = append(near, unit*math.Pow(10, bestExp+de))
+		}
+		for j, c := range costs(near) {
+			if c < bestCost {
+				best, bestCost = near[j], c
 			}
 		}
 	}

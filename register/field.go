@@ -135,8 +135,10 @@ type fieldFit struct {
 type fieldBasis struct {
 	n, m int
 	d    []float64 // √D_i
-	w    *mat.Dense
-	mu   []float64
+	// ps holds the projected kernel ZᵀK̃Z reduced once for every λ
+	// (transform.ProjectedSym); mu are its eigenvalues, clipped at 0.
+	ps *transform.ProjectedSym
+	mu []float64
 	// logCorr is −½Σlog D_i − ½log|P̃ᵀP̃| (P̃ = D^−½·P): the restricted likelihood of
 	// the raw targets differs from that of the whitened ones by it.
 	logCorr float64
@@ -175,39 +177,28 @@ func newFieldBasis(dim int, src, dst []transform.Vec, D []float64, nu, length fl
 		return nil, errors.New("the landmarks do not span the volume")
 	}
 	b.logCorr -= 0.5 * chol.LogDet()
-	var qr mat.QR
-	qr.Factorize(P)
-	var Q mat.Dense
-	qr.QTo(&Q)
-	Z := Q.Slice(0, n, m, n)
-	K := mat.NewSymDense(n, nil)
+	cols := make([][]float64, m)
+	for l := range m {
+		cols[l] = make([]float64, n)
+		for i := range n {
+			cols[l][i] = P.At(i, l)
+		}
+	}
+	K := make([]float64, n*n)
 	for i := range n {
 		for j := i; j < n; j++ {
-			K.SetSym(i, j, maternCorr(nu, src[i].Sub(src[j]).Norm()/length)/(b.d[i]*b.d[j]))
+			v := maternCorr(nu, src[i].Sub(src[j]).Norm()/length) / (b.d[i] * b.d[j])
+			K[i*n+j], K[j*n+i] = v, v
 		}
 	}
-	var kz mat.Dense
-	kz.Mul(K, Z)
-	A := mat.NewSymDense(n-m, nil)
-	var zkz mat.Dense
-	zkz.Mul(Z.T(), &kz)
-	for i := range n - m {
-		for j := i; j < n-m; j++ {
-			A.SetSym(i, j, 0.5*(zkz.At(i, j)+zkz.At(j, i)))
-		}
+	var err error
+	if b.ps, err = transform.NewProjectedSym(cols, K); err != nil {
+		return nil, fmt.Errorf("the error model: %w", err)
 	}
-	var es mat.EigenSym
-	if !es.Factorize(A, true) {
-		return nil, errors.New("the error model's eigendecomposition failed")
-	}
-	b.mu = es.Values(nil)
+	b.mu = append([]float64(nil), b.ps.Eigenvalues()...)
 	for j := range b.mu {
 		b.mu[j] = math.Max(b.mu[j], 0)
 	}
-	var V mat.Dense
-	es.VectorsTo(&V)
-	b.w = new(mat.Dense)
-	b.w.Mul(Z, &V)
 	// Targets relative to their mean: the trend absorbs the mean exactly,
 	// and EM coordinates near 1e5 µm would otherwise cost digits.
 	var mean transform.Vec
@@ -220,20 +211,16 @@ func newFieldBasis(dim int, src, dst []transform.Vec, D []float64, nu, length fl
 		for i, q := range dst {
 			b.y[k][i] = (q[k] - mean[k]) / b.d[i]
 		}
-		c := mat.NewVecDense(n-m, nil)
-		c.MulVec(b.w.T(), mat.NewVecDense(n, b.y[k]))
-		b.c[k] = c.RawVector().Data
+		b.c[k] = b.ps.Contrasts(b.y[k])
 	}
 	return b, nil
 }
 
 // logLik is the restricted log-likelihood of axis k at noise λ, and ŝ.
 func (b *fieldBasis) logLik(k int, lambda float64) (float64, float64) {
-	q, logdet := 0.0, 0.0
-	for j, mu := range b.mu {
-		v := mu + lambda
-		q += b.c[k][j] * b.c[k][j] / v
-		logdet += math.Log(v)
+	q, logdet := b.ps.QuadForm(b.c[k], lambda), 0.0
+	for _, mu := range b.mu {
+		logdet += math.Log(mu + lambda)
 	}
 	dof := float64(b.n - b.m)
 	s := q / dof
@@ -397,14 +384,25 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 			l := math.Max(spacing, 0.02*extent) * math.Pow(2*extent/math.Max(spacing, 0.02*extent), float64(e)/5)
 			lengths = append(lengths, l)
 		}
+		// The grid's trials are independent: they run side by side and
+		// are considered in the grid's order, as one after the other.
+		var grid [][2]float64
 		for _, nu := range []float64{0.5, 1.5, 2.5} {
 			for _, l := range lengths {
-				t, err := try(nu, l, kinds0)
-				if err != nil {
-					return nil, err
-				}
-				consider(t)
+				grid = append(grid, [2]float64{nu, l})
 			}
+		}
+		trials, errs := make([]*trial, len(grid)), make([]error, len(grid))
+		transform.ParallelRanges(len(grid), 1, func(lo, hi int) {
+			for i := lo; i < hi; i++ {
+				trials[i], errs[i] = try(grid[i][0], grid[i][1], kinds0)
+			}
+		})
+		for i, t := range trials {
+			if errs[i] != nil {
+				return nil, errs[i]
+			}
+			consider(t)
 		}
 		// The kinds' relative noise, one kind at a time, where each kind
 		// has enough landmarks to speak for itself. Variance ratios from
@@ -427,15 +425,25 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 		if enough {
 			for _, k := range ks[1:] {
 				base := best
-				for _, r := range []float64{1.0 / 4, 1.0 / 2, 2, 4} {
-					kn := map[landmarks.Kind]float64{}
+				ratios := []float64{1.0 / 4, 1.0 / 2, 2, 4}
+				kns := make([]map[landmarks.Kind]float64, len(ratios))
+				for i, r := range ratios {
+					kns[i] = map[landmarks.Kind]float64{}
 					for kk, v := range base.kn {
-						kn[kk] = v
+						kns[i][kk] = v
 					}
-					kn[k] = r
-					t, err := try(base.nu, base.length, kn)
-					if err != nil {
-						return nil, err
+					kns[i][k] = r
+				}
+				// As the grid: side by side, considered in order.
+				ts, errs := make([]*trial, len(kns)), make([]error, len(kns))
+				transform.ParallelRanges(len(kns), 1, func(lo, hi int) {
+					for i := lo; i < hi; i++ {
+						ts[i], errs[i] = try(base.nu, base.length, kns[i])
+					}
+				})
+				for i, t := range ts {
+					if errs[i] != nil {
+						return nil, errs[i]
 					}
 					consider(t)
 				}
@@ -489,21 +497,16 @@ func (b *fieldBasis) leaveOneOut(dim int, lambda, s transform.Vec) (loo, vars []
 	n := b.n
 	loo, vars, score = make([]transform.Vec, n), make([]transform.Vec, n), make([]float64, n)
 	dof := float64(b.n - b.m)
-	raw := b.w.RawMatrix()
 	for k := range dim {
-		h := make([]float64, len(b.mu))
-		hc := make([]float64, len(b.mu))
-		for j, mu := range b.mu {
-			h[j] = 1 / (mu + lambda[k])
-			hc[j] = h[j] * b.c[k][j]
+		giis, gys, err := b.ps.LeaveOneOut(b.c[k], lambda[k])
+		if err != nil {
+			for i := range n {
+				score[i] = math.Inf(1)
+			}
+			continue
 		}
 		for i := range n {
-			row := raw.Data[i*raw.Stride : i*raw.Stride+len(b.mu)]
-			gii, gy := 0.0, 0.0
-			for j, w := range row {
-				gii += w * w * h[j]
-				gy += w * hc[j]
-			}
+			gii, gy := giis[i], gys[i]
 			e := gy / gii
 			v := s[k] / gii
 			loo[i][k] = b.d[i] * e

@@ -2,6 +2,8 @@ package register
 
 import (
 	"math/rand/v2"
+	"strconv"
+	"syscall"
 	"testing"
 
 	"ferry/transform"
@@ -38,4 +40,37 @@ func BenchmarkAssess(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
+}
+
+// BenchmarkAssessLarge runs the check with default settings (model and
+// smoothing chosen automatically) on 1,000 and 2,000 landmarks of a warped
+// volume, five of them wrong by 25 µm so that the flags' sequential
+// deletion runs too. The figures go into docs/benchmarks.md.
+func BenchmarkAssessLarge(b *testing.B) {
+	for _, n := range []int{1000, 2000} {
+		rng := rand.New(rand.NewPCG(uint64(n), 3))
+		p := synthetic(rng, n, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+		for i := range 5 {
+			p.Target[i*97][0] += 25
+		}
+		b.Run(strconv.Itoa(n), func(b *testing.B) {
+			cpu0 := cpuSeconds()
+			for b.Loop() {
+				if _, err := Assess(p, Settings{Smoothing: Smoothing{Auto: true}}); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
+		})
+	}
+}
+
+// cpuSeconds is the CPU time (user and system) this process has used: on a
+// machine shared with other work it moves far less than the wall time.
+func cpuSeconds() float64 {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return float64(ru.Utime.Sec+ru.Stime.Sec) + float64(ru.Utime.Usec+ru.Stime.Usec)/1e6
 }

@@ -127,6 +127,9 @@ type Settings struct {
 
 	// ctx, when set by AssessContext, is checked between fits.
 	ctx context.Context
+	// fits, when set by AssessContext or CheckAndFit, keeps the check's
+	// fits for the steps that ask for the same one again (fitcache.go).
+	fits *fitCache
 }
 
 // cancelled returns the context's error, if any.

@@ -28,9 +28,20 @@ const (
 	// less; the estimate is said to be this machine's pace.
 	secondsPerCube = 6e-10
 	// autoSmoothingFits is how many times longer the check takes with
-	// --smoothing auto: the search fits the spline 16 times at every step
-	// (12.6 s against 0.77 s at n = 1000).
-	autoSmoothingFits = 16
+	// --smoothing auto: the search factorises the spline's projected block
+	// at 17 smoothings at every step, two at a time, sharing the kernel
+	// matrix (transform.SmoothingPath): 4.0 s of CPU for a clean set of
+	// 1 000 landmarks and 25 s for 2 000, against 0.77 s and 4.7 s with the
+	// smoothing given (docs/benchmarks.md). It was 16 when every smoothing
+	// was a fit of its own.
+	autoSmoothingFits = 5
+	// autoSmoothingMatrices is how many more n×n matrices the smoothing
+	// search holds: the projected kernel it keeps, the kernel matrix while
+	// it is projected, and three for each smoothing evaluated at once, with
+	// the collector's slack one more each. Peak resident memory of
+	// `ferry check` of 2 000 landmarks with auto smoothing: 530 MB, 16.5
+	// matrices of 2 004² float64.
+	autoSmoothingMatrices = 2 + 4*transform.SmoothingPathWorkers
 	// announceAfter is the estimated time from which a command says, before
 	// starting, how long the job will take.
 	announceAfter = 10 * time.Second
@@ -102,12 +113,14 @@ func EstimateJob(p *Problem, s Settings) JobEstimate {
 	}
 	n := float64(p.Len() + p.Dim + 1)
 	secs := secondsPerCube * n * n * n
+	matrices := float64(denseMatrices)
 	if s.Smoothing.Auto {
 		secs *= autoSmoothingFits
+		matrices += autoSmoothingMatrices
 	}
 	return JobEstimate{
 		Landmarks:     p.Len(),
-		Bytes:         denseMatrices * n * n * 8,
+		Bytes:         matrices * n * n * 8,
 		Duration:      time.Duration(math.Min(secs, 1e9) * float64(time.Second)),
 		AutoSmoothing: s.Smoothing.Auto,
 	}

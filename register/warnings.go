@@ -80,6 +80,9 @@ func CheckAndFit(ctx context.Context, set *landmarks.PairSet, exclude []string, 
 	if err != nil {
 		return nil, err
 	}
+	// The second check starts from the first one's clean set: the fits
+	// they share are made once.
+	s.fits = newFitCache()
 	a, err := AssessContext(ctx, p, s)
 	if err != nil {
 		return nil, err

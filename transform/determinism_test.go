@@ -27,3 +27,25 @@ func TestSplineFitSameOnAnyCores(t *testing.T) {
 		}
 	}
 }
+
+// The smoothing path runs several smoothings at once: each must still be
+// the same to the last bit whatever the number of cores.
+func TestSmoothingPathSameOnAnyCores(t *testing.T) {
+	src, dst := benchLandmarks(400)
+	sms := []float64{0, 0.05, 0.5, 5, 50}
+	run := func(procs int) string {
+		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+		p, err := NewSmoothingPath(3, src, dst, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		loo, errs := p.LeaveOneOut(sms)
+		return fmt.Sprintf("%x %v", loo, errs)
+	}
+	one := run(1)
+	for _, procs := range []int{2, 3} {
+		if run(procs) != one {
+			t.Errorf("GOMAXPROCS=%d gives other bits than GOMAXPROCS=1", procs)
+		}
+	}
+}

@@ -654,36 +654,7 @@ func (sys *splineSystem) factorAffine() error {
 			}
 		}
 	}
-	sys.v = make([][]float64, m)
-	sys.tau = make([]float64, m)
-	sys.r = make([][]float64, m)
-	for k := range m {
-		sys.r[k] = make([]float64, m)
-		x := cols[k]
-		norm := 0.0
-		for i := k; i < N; i++ {
-			norm += x[i] * x[i]
-		}
-		norm = math.Sqrt(norm)
-		v := make([]float64, N)
-		v[k] = 1
-		beta := x[k]
-		if norm > 0 {
-			// LAPACK's dlarfg convention: β = −sign(x_k)|x|.
-			beta = -math.Copysign(norm, x[k])
-			sys.tau[k] = (beta - x[k]) / beta
-			inv := 1 / (x[k] - beta)
-			for i := k + 1; i < N; i++ {
-				v[i] = x[i] * inv
-			}
-		}
-		sys.v[k] = v
-		sys.r[k][k] = beta
-		for j := k + 1; j < m; j++ {
-			applyReflector(cols[j], v, sys.tau[k], k)
-			sys.r[k][j] = cols[j][k]
-		}
-	}
+	sys.v, sys.tau, sys.r = householderColumns(cols)
 	rb := mat.NewDense(dim, dim, nil)
 	for i := range dim {
 		for j := i; j < dim; j++ {
@@ -701,6 +672,44 @@ func (sys *splineSystem) factorAffine() error {
 			flatShape(dim), sv[dim-1]/root*sys.scale, sv[0]/root*sys.scale)
 	}
 	return nil
+}
+
+// householderColumns computes the Householder QR of the N×m matrix whose
+// columns are cols (overwritten): the reflectors v_k (zero above row k, one
+// at row k) with their τ_k, and R (m×m, upper triangular).
+func householderColumns(cols [][]float64) (v [][]float64, tau []float64, r [][]float64) {
+	m, N := len(cols), len(cols[0])
+	v = make([][]float64, m)
+	tau = make([]float64, m)
+	r = make([][]float64, m)
+	for k := range m {
+		r[k] = make([]float64, m)
+		x := cols[k]
+		norm := 0.0
+		for i := k; i < N; i++ {
+			norm += x[i] * x[i]
+		}
+		norm = math.Sqrt(norm)
+		vk := make([]float64, N)
+		vk[k] = 1
+		beta := x[k]
+		if norm > 0 {
+			// LAPACK's dlarfg convention: β = −sign(x_k)|x|.
+			beta = -math.Copysign(norm, x[k])
+			tau[k] = (beta - x[k]) / beta
+			inv := 1 / (x[k] - beta)
+			for i := k + 1; i < N; i++ {
+				vk[i] = x[i] * inv
+			}
+		}
+		v[k] = vk
+		r[k][k] = beta
+		for j := k + 1; j < m; j++ {
+			applyReflector(cols[j], vk, tau[k], k)
+			r[k][j] = cols[j][k]
+		}
+	}
+	return v, tau, r
 }
 
 // applyReflector overwrites x with (I − τ v vᵀ) x, v being zero above row k.
@@ -723,10 +732,15 @@ func applyReflector(x, v []float64, tau float64, k int) {
 // at a time from both sides: with p = τ a v and w = p − (τ/2)(pᵀv) v,
 // H a H = a − v wᵀ − w vᵀ, which costs 4N² per reflector.
 func (sys *splineSystem) project(a []float64) {
-	N := len(sys.nodes)
+	projectSym(a, len(sys.nodes), sys.v, sys.tau)
+}
+
+// projectSym overwrites the symmetric N×N matrix a with Qᵀ a Q for Q the
+// product of the reflectors v, tau (householderColumns), as project.
+func projectSym(a []float64, N int, vs [][]float64, taus []float64) {
 	p := make([]float64, N)
-	for k := range sys.m {
-		v, tau := sys.v[k], sys.tau[k]
+	for k := range vs {
+		v, tau := vs[k], taus[k]
 		if tau == 0 {
 			continue
 		}
@@ -1039,11 +1053,25 @@ func invertUpper(t blas64.Triangular) bool {
 // part (the others lie on a line or a plane); its (M⁻¹)_ii is 0 and its
 // leave-one-out error undefined, which is an error.
 func (sys *splineSystem) leaveOneOut(w []Vec) (loo []Vec, factor []float64, err error) {
+	if err := sys.checkLeverage(); err != nil {
+		return nil, nil, err
+	}
+	return sys.looFromDiagonal(w)
+}
+
+// checkLeverage refuses a system in which a pair's affine leverage is 1,
+// whose leave-one-out is then undefined.
+func (sys *splineSystem) checkLeverage() error {
 	for i, h := range sys.leverage() {
 		if 1-h <= leverageTol {
-			return nil, nil, fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
+			return fmt.Errorf("leave-one-out of pair %d is undefined: it alone fixes a direction of the spline's affine part (leverage %.12f); the other pairs lie on a %s", i, h, flatShape(sys.dim))
 		}
 	}
+	return nil
+}
+
+// looFromDiagonal is leaveOneOut after the leverage check.
+func (sys *splineSystem) looFromDiagonal(w []Vec) (loo []Vec, factor []float64, err error) {
 	d, err := sys.inverseDiagonal()
 	if err != nil {
 		return nil, nil, err

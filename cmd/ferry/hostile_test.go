@@ -141,7 +141,7 @@ func TestOutputOntoStdoutLink(t *testing.T) {
 }
 
 // TestHugeJobRefused: a spline on 100 000 landmarks, the default model's
-// choice, needs hundreds of gigabytes. It is refused in one line before
+// choice, needs more than a terabyte. It is refused in one line before
 // starting, with the estimate and the way out. Before, the program died
 // with "fatal error: runtime: out of memory" and a long stack trace.
 func TestHugeJobRefused(t *testing.T) {
@@ -160,7 +160,7 @@ func TestHugeJobRefused(t *testing.T) {
 		}
 		start := time.Now()
 		o := ferry(t, args...)
-		oneLine(t, o, "landmarks.csv", "100000 landmarks", "GB of memory", "available", "--model affine")
+		oneLine(t, o, "landmarks.csv", "100000 landmarks", "TB of memory", "available", "--model affine")
 		if d := time.Since(start); d > 20*time.Second {
 			t.Errorf("%s took %v to refuse", cmd, d)
 		}

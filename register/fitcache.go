@@ -1,0 +1,121 @@
+package register
+
+import (
+	"encoding/binary"
+	"hash/fnv"
+	"math"
+	"sync"
+
+	"ferry/transform"
+)
+
+// fitCache remembers the fits of one check, and of the second check fit
+// runs without the flagged landmarks, by everything a fit depends on: the
+// model, the pairs, their weights and the smoothing asked for. The
+// sequential deletion's last fit is the clean set's, which the model
+// comparison and the clean fit then ask for again, and the second check
+// starts from that same set; each of those is a smoothing search of
+// seventeen fits. A fit found here is the very result computed before, so
+// nothing changes but the time.
+type fitCache struct {
+	mu   sync.Mutex
+	fits map[fitKey][]fitEntry
+	// off makes a cache that never answers, for the tests that compare.
+	off bool
+}
+
+// fitKey is a hash of a fit's inputs; fitEntry keeps the inputs in full so
+// that a collision can never return another set's fit.
+type fitKey uint64
+
+type fitEntry struct {
+	kind      transform.Kind
+	dim       int
+	src, dst  []transform.Vec
+	weights   []float64
+	smoothing Smoothing
+	noMirror  bool
+	fit       *fitted
+}
+
+func newFitCache() *fitCache { return &fitCache{fits: map[fitKey][]fitEntry{}} }
+
+func hashFit(kind transform.Kind, p *Problem, weights []float64, s Settings) fitKey {
+	h := fnv.New64a()
+	var b [8]byte
+	put := func(x float64) {
+		binary.LittleEndian.PutUint64(b[:], math.Float64bits(x))
+		h.Write(b[:])
+	}
+	h.Write([]byte(kind))
+	put(float64(p.Dim))
+	for i := range p.Source {
+		for k := range 3 {
+			put(p.Source[i][k])
+			put(p.Target[i][k])
+		}
+	}
+	for _, w := range weights {
+		put(w)
+	}
+	put(s.Smoothing.Value)
+	if s.Smoothing.Auto {
+		put(1)
+	}
+	if s.NoMirror {
+		put(2)
+	}
+	return fitKey(h.Sum64())
+}
+
+func (e *fitEntry) matches(kind transform.Kind, p *Problem, weights []float64, s Settings) bool {
+	if e.kind != kind || e.dim != p.Dim || e.smoothing != s.Smoothing || e.noMirror != s.NoMirror ||
+		len(e.src) != len(p.Source) || len(e.weights) != len(weights) || (e.weights == nil) != (weights == nil) {
+		return false
+	}
+	for i := range e.src {
+		if e.src[i] != p.Source[i] || e.dst[i] != p.Target[i] {
+			return false
+		}
+	}
+	for i := range e.weights {
+		if math.Float64bits(e.weights[i]) != math.Float64bits(weights[i]) {
+			return false
+		}
+	}
+	return true
+}
+
+// get returns the fit of these inputs made before, or nil.
+func (c *fitCache) get(kind transform.Kind, p *Problem, weights []float64, s Settings) *fitted {
+	if c == nil || c.off {
+		return nil
+	}
+	key := hashFit(kind, p, weights, s)
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	for i := range c.fits[key] {
+		if e := &c.fits[key][i]; e.matches(kind, p, weights, s) {
+			return e.fit
+		}
+	}
+	return nil
+}
+
+// put remembers the fit of these inputs.
+func (c *fitCache) put(kind transform.Kind, p *Problem, weights []float64, s Settings, f *fitted) {
+	if c == nil || c.off {
+		return
+	}
+	key := hashFit(kind, p, weights, s)
+	e := fitEntry{
+		kind: kind, dim: p.Dim, smoothing: s.Smoothing, noMirror: s.NoMirror, fit: f,
+		src: append([]transform.Vec(nil), p.Source...), dst: append([]transform.Vec(nil), p.Target...),
+	}
+	if weights != nil {
+		e.weights = append([]float64(nil), weights...)
+	}
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.fits[key] = append(c.fits[key], e)
+}

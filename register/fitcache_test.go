@@ -1,0 +1,81 @@
+package register
+
+import (
+	"fmt"
+	"math/rand/v2"
+	"testing"
+
+	"ferry/transform"
+)
+
+// TestFitCacheReturnsOnlyTheSameFit checks that the check's fit cache
+// answers only for the very inputs a fit was made from: the model, every
+// coordinate, every weight and the smoothing asked for.
+func TestFitCacheReturnsOnlyTheSameFit(t *testing.T) {
+	rng := rand.New(rand.NewPCG(4, 5))
+	p := synthetic(rng, 30, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	w := equalWeights(p.Len())
+	s := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+	f, err := fitModel(p, transform.TPS, w, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g, _ := fitModel(p, transform.TPS, w, s); g != f {
+		t.Fatal("the same inputs were fitted again")
+	}
+	moved := p.subset(func(int) bool { return true })
+	moved.Target[7][2] += 1e-9
+	w2 := append([]float64(nil), w...)
+	w2[3] = 1.5
+	for _, c := range []struct {
+		name string
+		kind transform.Kind
+		p    *Problem
+		w    []float64
+		s    Settings
+	}{
+		{"other model", transform.Affine, p, w, s},
+		{"a target moved", transform.TPS, moved, w, s},
+		{"other weights", transform.TPS, p, w2, s},
+		{"no weights", transform.TPS, p, nil, s},
+		{"fixed smoothing", transform.TPS, p, w, Settings{Smoothing: Smoothing{Value: 3}, fits: s.fits}},
+		{"fewer pairs", transform.TPS, p.subset(func(i int) bool { return i != 4 }), w[1:], s},
+	} {
+		if s.fits.get(c.kind, c.p, c.w, c.s) != nil {
+			t.Errorf("%s: the cache answered", c.name)
+		}
+	}
+}
+
+// TestCheckSameWithCache checks that the check with its fit cache gives
+// what it gives without one, to the last bit, on a set with wrong
+// landmarks (the cache serves the clean set's fits again).
+func TestCheckSameWithCache(t *testing.T) {
+	rng := rand.New(rand.NewPCG(6, 7))
+	p := synthetic(rng, 40, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	p.Target[5][0] += 30
+	p.Target[17][1] -= 25
+	s := Settings{Smoothing: Smoothing{Auto: true}, TargetSD: &transform.Vec{0.8, 0.8, 2.5}}
+	with, err := Assess(p, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// A cache that never answers: every fit made afresh.
+	without, err := assessUncached(p, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(with.Flagged()) == 0 {
+		t.Fatal("no landmark flagged: the test does not reach the cached fits")
+	}
+	a, b := fmt.Sprintf("%v %v %x", with.Landmarks, with.Models, with.Result.LOO), fmt.Sprintf("%v %v %x", without.Landmarks, without.Models, without.Result.LOO)
+	if a != b {
+		t.Errorf("the check differs with its fit cache:\n%s\n%s", a, b)
+	}
+}
+
+// assessUncached is Assess with every fit made afresh.
+func assessUncached(p *Problem, s Settings) (*Assessment, error) {
+	s.fits = &fitCache{off: true}
+	return Assess(p, s)
+}
