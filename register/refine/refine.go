@@ -161,7 +161,8 @@ type Result struct {
 	// PairCalibration counts the pairs whose leave-one-out error lies
 	// inside their 95 % radius.
 	PairCalibration register.Calibration
-	// HeldOut are the node pairs' held-out predictions (register.HeldOut).
+	// HeldOut are the node pairs' held-out predictions (register.HeldOut),
+	// then the other somata whose factor the local calibration widened.
 	HeldOut []register.HeldOut
 	// Uncertainty is the refined fit's uncertainty model.
 	Uncertainty *register.UncertaintyModel
