@@ -35,6 +35,8 @@ const (
 // pairs' held-out predictions, and for any other soma whose factor grows a
 // held-out entry with the fit's own prediction (no pair of its own is in
 // the fit), so that map and match read the wider factor at its position.
+// The pairs' own reported radii keep the fit's scale: the widening comes
+// from the pairs' errors, and judging the pairs by it would be circular.
 func (r *refiner) inflateLocally(st *fitState) error {
 	if len(st.pairs) < localPairs+1 {
 		return nil
@@ -127,9 +129,6 @@ func (r *refiner) inflateLocally(st *fitState) error {
 		}
 		f := ratio(i)
 		if k, ok := pairOf[i]; ok {
-			for a := range dim {
-				st.pairFactor[k][a] *= f[a]
-			}
 			if h, ok := held[r.in.SomaIDs[i]]; ok && st.pairs[k].Node {
 				for a := range dim {
 					st.heldOut[h].Factor[a] *= f[a]
@@ -150,7 +149,5 @@ func (r *refiner) inflateLocally(st *fitState) error {
 		seenSource[x] = true
 		st.heldOut = append(st.heldOut, register.HeldOut{ID: r.in.SomaIDs[i], Source: x, Predicted: st.transform.Apply(x), Factor: fac})
 	}
-	st.uncertainty.Scale = st.scale
-	r.pairRadii(st)
 	return nil
 }
