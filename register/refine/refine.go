@@ -223,6 +223,9 @@ func Refine(in Input, opt Options) (*Result, error) {
 		prev, before map[int]int
 	)
 	hint := [2]float64{a.Smoothing, a.Smoothing}
+	// confirming is set once the rounds are stable but for proposals: no
+	// soma is proposed after that.
+	confirming := false
 	for round := 0; round < opt.MaxRounds; round++ {
 		threshold := opt.MinP
 		if round < len(startP) {
@@ -233,7 +236,7 @@ func Refine(in Input, opt Options) (*Result, error) {
 		rep.Step(fmt.Sprintf("refining with %d somata, round %d (fits and matchings)", len(in.Somata), round+1), 0)
 		// The last round proposes nothing: every pair it keeps is clear
 		// where the refitted spline, without the pair, maps its soma.
-		pairs, proposed, err := r.choosePairs(mapper, threshold, round < opt.MaxRounds-1)
+		pairs, proposed, err := r.choosePairs(mapper, threshold, round < opt.MaxRounds-1 && !confirming)
 		if err != nil {
 			rep.Finish()
 			return nil, err
@@ -296,14 +299,19 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if mapper, err = r.mapper(cur); err != nil {
 			return nil, err
 		}
-		// Stable, and no pair waits for the spline to confirm it.
-		if threshold == opt.MinP && round >= len(startP) && proposed == 0 && rd.Changed() <= max(stableLeast, int(stableShare*float64(len(pairs)))) {
-			break
-		}
-		// A few pairs at the threshold may go out and come back in turn:
-		// the same pairs as two rounds ago is as stable as it gets.
-		if proposed == 0 && samePairs(now, before) {
-			break
+		// Stable: at most a few pairs changed (proposals counted among
+		// them), or the same pairs as two rounds ago (a few at the
+		// threshold may go out and come back in turn). The rounds stop
+		// there when no pair waits for the spline to confirm it; else one
+		// more round, proposing nothing, confirms or drops the last
+		// proposals, and proposals end.
+		stable := threshold == opt.MinP && round >= len(startP) &&
+			rd.Changed()+proposed <= max(stableLeast, int(stableShare*float64(len(pairs))))
+		if stable || samePairs(now, before) {
+			if proposed == 0 {
+				break
+			}
+			confirming = true
 		}
 		before = prev0
 	}
