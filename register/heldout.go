@@ -11,7 +11,9 @@ import (
 // fitted to (a cell whose correspondence became a node of the spline), made
 // from every other node: its exact leave-one-out prediction. Map and match
 // judge such a cell by it, so that its own correspondence does not vouch for
-// it.
+// it. Refine also records a soma that is not a node when the nearby pairs'
+// held-out errors widen its factor; its prediction is then the transform's
+// own.
 type HeldOut struct {
 	// ID names the cell.
 	ID string `json:"id"`

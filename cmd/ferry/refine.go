@@ -218,9 +218,9 @@ func writeRefineSummary(w io.Writer, res *refine.Result, rec refine.Record) {
 	a := res.Landmark
 	fmt.Fprintf(w, "Landmark fit: %s (%s).\n", a.Chosen, a.Reason)
 	fmt.Fprintf(w, "Rounds (somata %d, candidates %d):\n", rec.Somata, rec.Candidates)
-	fmt.Fprintf(w, "  round  min p   pairs  nodes  added  dropped  switched  landmark LOO RMS µm\n")
+	fmt.Fprintf(w, "  round  min p   pairs  nodes  added  dropped  switched  proposed  landmark LOO RMS µm\n")
 	for i, r := range res.Rounds {
-		fmt.Fprintf(w, "  %5d  %.3f  %6d  %5d  %5d  %7d  %8d  %.2f\n", i+1, r.Threshold, r.Pairs, r.Nodes, r.Added, r.Dropped, r.Switched, r.LandmarkRMS)
+		fmt.Fprintf(w, "  %5d  %.3f  %6d  %5d  %5d  %7d  %8d  %8d  %.2f\n", i+1, r.Threshold, r.Pairs, r.Nodes, r.Added, r.Dropped, r.Switched, r.Proposed, r.LandmarkRMS)
 	}
 	if rec.PairsUsed == 0 {
 		fmt.Fprintln(w, "No pair was clear enough to use: the transform is the landmark fit.")

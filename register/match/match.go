@@ -186,6 +186,28 @@ func Match(m *register.Mapper, cells []transform.Vec, cellSD *transform.Vec, can
 	return matchMapped(mapped, cands, opt)
 }
 
+// MatchMapped is Match of cells already mapped: each cell's position and
+// covariance in the target are taken as given. A caller that corrects the
+// mapped positions (refine, from the cells' neighbours) matches with it;
+// the mapped cells' statuses (folded, say) count as in Match.
+func MatchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) ([]Result, error) {
+	opt, err := opt.withDefaults(len(mapped), len(cands))
+	if err != nil {
+		return nil, err
+	}
+	for i, mp := range mapped {
+		if mp.Status != register.StatusNoInverse && !mp.Pos.IsFinite() {
+			return nil, fmt.Errorf("match: cell %s has a mapped position that is not finite", opt.cellName(i))
+		}
+	}
+	for j, p := range cands {
+		if !p.IsFinite() {
+			return nil, fmt.Errorf("match: candidate %s has a position that is not finite", opt.candName(j))
+		}
+	}
+	return matchMapped(mapped, cands, opt)
+}
+
 // matchReachable is Match of cells already mapped against candidates they
 // can all reach; opt has its defaults.
 func matchReachable(mapped []register.Mapped, cands []transform.Vec, opt Options) ([]Result, error) {

@@ -24,13 +24,21 @@
 // rounds as their temperature is there; unlike it, only confident pairs
 // enter the fit, so a doubtful one cannot pull the spline towards itself.
 //
+// Where the fit is off by more than its radius, a soma is matched once at
+// the offset on which most of its neighbours find a candidate each (a local
+// Hough vote over translations, constellation.go); its pair must then be
+// confirmed by the refitted spline in the rounds after. At the end each
+// soma's radius is widened where the nearby pairs' held-out errors exceed
+// the fit's scale (local.go).
+//
 // # Honesty
 //
 // A cell whose pair is a node of the refined spline is judged (by map and
 // match) by its exact leave-one-out prediction, recorded in the transform
 // file (register.HeldOut): its own pair never vouches for it. The landmarks
 // are independent evidence: their leave-one-out errors before and after are
-// reported, and a refinement that predicts them worse is refused. Past
+// reported, and a refinement that predicts them worse is refused, as is
+// one whose pairs' held-out errors share a common offset. Past
 // Options.MaxNodes nodes, only a spatially even subset of the pairs become
 // nodes; the other cells are then held out by construction.
 package refine

@@ -115,6 +115,11 @@ type Round struct {
 	Added    int `json:"added"`
 	Dropped  int `json:"dropped"`
 	Switched int `json:"switched"`
+	// Proposed is how many of the pairs were found at the offset the
+	// soma's neighbours agreed on (constellation.go) rather than where the
+	// fit maps it: each soma once, to be confirmed by the refitted spline
+	// in the rounds after.
+	Proposed int `json:"proposed"`
 	// Smoothing is the spline's S along x and y, SmoothingZ along z;
 	// LandmarkRMS the landmarks' leave-one-out RMS error (µm) in the fit.
 	Smoothing   float64 `json:"smoothing"`
@@ -156,7 +161,8 @@ type Result struct {
 	// PairCalibration counts the pairs whose leave-one-out error lies
 	// inside their 95 % radius.
 	PairCalibration register.Calibration
-	// HeldOut are the node pairs' held-out predictions (register.HeldOut).
+	// HeldOut are the node pairs' held-out predictions (register.HeldOut),
+	// then the other somata whose factor the local calibration widened.
 	HeldOut []register.HeldOut
 	// Uncertainty is the refined fit's uncertainty model.
 	Uncertainty *register.UncertaintyModel
@@ -217,6 +223,9 @@ func Refine(in Input, opt Options) (*Result, error) {
 		prev, before map[int]int
 	)
 	hint := [2]float64{a.Smoothing, a.Smoothing}
+	// confirming is set once the rounds are stable but for proposals: no
+	// soma is proposed after that.
+	confirming := false
 	for round := 0; round < opt.MaxRounds; round++ {
 		threshold := opt.MinP
 		if round < len(startP) {
@@ -225,12 +234,14 @@ func Refine(in Input, opt Options) (*Result, error) {
 		// One stage a round; its units are the matchings and the spline
 		// fits, each a second or more on a large block.
 		rep.Step(fmt.Sprintf("refining with %d somata, round %d (fits and matchings)", len(in.Somata), round+1), 0)
-		pairs, err := r.choosePairs(mapper, threshold)
+		// The last round proposes nothing: every pair it keeps is clear
+		// where the refitted spline, without the pair, maps its soma.
+		pairs, proposed, err := r.choosePairs(mapper, threshold, round < opt.MaxRounds-1 && !confirming)
 		if err != nil {
 			rep.Finish()
 			return nil, err
 		}
-		rd := Round{Threshold: threshold, Pairs: len(pairs)}
+		rd := Round{Threshold: threshold, Pairs: len(pairs), Proposed: proposed}
 		now := make(map[int]int, len(pairs))
 		for _, pr := range pairs {
 			now[pr.Soma] = pr.Candidate
@@ -288,13 +299,19 @@ func Refine(in Input, opt Options) (*Result, error) {
 		if mapper, err = r.mapper(cur); err != nil {
 			return nil, err
 		}
-		if threshold == opt.MinP && round >= len(startP) && rd.Changed() <= max(stableLeast, int(stableShare*float64(len(pairs)))) {
-			break
-		}
-		// A few pairs at the threshold may go out and come back in turn:
-		// the same pairs as two rounds ago is as stable as it gets.
-		if samePairs(now, before) {
-			break
+		// Stable: at most a few pairs changed (proposals counted among
+		// them), or the same pairs as two rounds ago (a few at the
+		// threshold may go out and come back in turn). The rounds stop
+		// there when no pair waits for the spline to confirm it; else one
+		// more round, proposing nothing, confirms or drops the last
+		// proposals, and proposals end.
+		stable := threshold == opt.MinP && round >= len(startP) &&
+			rd.Changed()+proposed <= max(stableLeast, int(stableShare*float64(len(pairs))))
+		if stable || samePairs(now, before) {
+			if proposed == 0 {
+				break
+			}
+			confirming = true
 		}
 		before = prev0
 	}
@@ -309,6 +326,9 @@ func Refine(in Input, opt Options) (*Result, error) {
 	err = r.calibrate(cur, calibrationRounds)
 	rep.Finish()
 	if err != nil {
+		return nil, err
+	}
+	if err := r.inflateLocally(cur); err != nil {
 		return nil, err
 	}
 	r.finish(res, cur)
@@ -358,6 +378,10 @@ type refiner struct {
 	candIDs []string
 	// dec are the input's decisions with the candidates indexed into cand.
 	dec *match.Decisions
+	// proposed are the somata already looked for at the offset their
+	// neighbours agreed on: each is proposed once, and its pair stays only
+	// while the spline refitted with it matches it where it maps the soma.
+	proposed map[int]bool
 }
 
 // landmarkNoise is the landmarks' noise variance per target axis (µm²):
@@ -426,17 +450,32 @@ func (r *refiner) relativePairWeight() float64 {
 
 // choosePairs matches every soma under mapper and keeps the clear pairs:
 // matched one to one with posterior probability at least threshold, the
-// runner-up below 1 − threshold, the mapping not folded.
-func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pair, error) {
-	res, err := match.Match(mapper, r.in.Somata, r.opt.CellSD, r.candPos, match.Options{
+// runner-up below 1 − threshold, the mapping not folded. With propose, a
+// soma not proposed before whose neighbours agree that the fit maps it off
+// is matched where they put it (constellation.go); proposed counts the
+// pairs found so.
+func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64, propose bool) (pairs []Pair, proposed int, err error) {
+	mapped := mapper.MapAll(r.in.Somata, r.opt.CellSD, false)
+	var shift []transform.Vec
+	var apply []bool
+	if propose {
+		shift, apply = r.localShifts(mapped)
+		for i := range mapped {
+			if apply[i] && !r.proposed[i] {
+				mapped[i].Pos = mapped[i].Pos.Add(shift[i])
+			} else {
+				apply[i] = false
+			}
+		}
+	}
+	res, err := match.MatchMapped(mapped, r.candPos, match.Options{
 		Dim: r.dim, CandidateSD: r.opt.CandidateSD, MinPMatch: threshold,
 		CellIDs: r.in.SomaIDs, CandidateIDs: r.candIDs, Decisions: r.dec,
 	})
 	r.rep.Add(1)
 	if err != nil {
-		return nil, err
+		return nil, 0, err
 	}
-	var pairs []Pair
 	for i, m := range res {
 		// A decided soma is never a pair: accepted, it is a landmark
 		// already; with no counterpart, it has none.
@@ -446,11 +485,18 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64) ([]Pai
 		if m.Status != match.StatusMatched || m.PMatch < threshold || m.PRunnerUp > 1-threshold {
 			continue
 		}
+		if apply != nil && apply[i] {
+			if r.proposed == nil {
+				r.proposed = map[int]bool{}
+			}
+			r.proposed[i] = true
+			proposed++
+		}
 		j := r.cand[m.Candidate]
 		pairs = append(pairs, Pair{Soma: i, Candidate: j, P: m.PMatch,
 			Source: r.in.Somata[i], Target: r.in.Candidates[j]})
 	}
-	return pairs, nil
+	return pairs, proposed, nil
 }
 
 // mapper builds the mapper that map and match would read from the
@@ -505,6 +551,56 @@ func (r *refiner) finish(res *Result, fit *fitState) {
 		}
 	}
 	res.Worse, res.WorseReason = worse(before, after)
+	if !res.Worse {
+		res.Worse, res.WorseReason = pairBias(res.Pairs, r.dim)
+	}
+}
+
+// pairBiasUM is the mean offset (µm, along any axis) of the pairs'
+// leave-one-out errors from which pairBias refuses, when it is also beyond
+// pairBiasSEs standard errors of that mean.
+const (
+	pairBiasUM  = 1.0
+	pairBiasSEs = 4.0
+)
+
+// pairBias refuses a refinement whose pairs disagree with the fit as a
+// whole: their held-out errors (candidate minus the prediction without the
+// pair) should scatter about zero; a common offset along an axis says the
+// candidates are offset from the landmarks (two exports placed apart, a
+// nucleus centre taken off its soma's) and the pairs were found at that
+// offset rather than confirming the landmarks' map.
+func pairBias(pairs []Pair, dim int) (bool, string) {
+	var sum, sq transform.Vec
+	n := 0
+	for _, pr := range pairs {
+		if !pr.Node {
+			continue
+		}
+		n++
+		for a := range dim {
+			sum[a] += pr.LOO[a]
+			sq[a] += pr.LOO[a] * pr.LOO[a]
+		}
+	}
+	if n < minPairsForScale {
+		return false, ""
+	}
+	var mean transform.Vec
+	biased := false
+	for a := range dim {
+		mean[a] = sum[a] / float64(n)
+		v := (sq[a] - float64(n)*mean[a]*mean[a]) / float64(n-1)
+		se := math.Sqrt(math.Max(v, 0) / float64(n))
+		if math.Abs(mean[a]) > pairBiasUM && math.Abs(mean[a]) > pairBiasSEs*se {
+			biased = true
+		}
+	}
+	if !biased {
+		return false, ""
+	}
+	return true, fmt.Sprintf("the pairs fit the refined transform worse than noise allows: their leave-one-out errors are offset by (%.2f, %.2f, %.2f) µm on average over %d pairs, so the candidates sit apart from where the landmarks put the somata (a shift between the exports, or candidate centres off the somata's)",
+		mean[0], mean[1], mean[2], n)
 }
 
 // worse compares the landmarks' leave-one-out errors before and after by

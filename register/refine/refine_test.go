@@ -28,7 +28,26 @@ func TestHeldOutCellIsPredictedWithoutItsPair(t *testing.T) {
 		t.Fatal(err)
 	}
 	sp := res.Transform.(*transform.Spline)
-	for _, k := range []int{0, len(res.HeldOut) / 2, len(res.HeldOut) - 1} {
+	// The node pairs' entries come first; the entries after them are
+	// somata whose factor the local calibration widened, predicted by the
+	// refined spline itself (they are not in the fit).
+	nodes := 0
+	for _, pr := range res.Pairs {
+		if pr.Node {
+			nodes++
+		}
+	}
+	for _, h := range res.HeldOut[nodes:] {
+		if got, want := m.Map(h.Source, nil).Pos, res.Transform.Apply(h.Source); got.Sub(want).Norm() > 1e-9 {
+			t.Errorf("soma %s, not a node, mapped to %v, want the spline's %v", h.ID, got, want)
+		}
+		for _, x := range res.Nodes {
+			if x == h.Source {
+				t.Errorf("soma %s has a widened entry but is a node", h.ID)
+			}
+		}
+	}
+	for _, k := range []int{0, nodes / 2, nodes - 1} {
 		h := res.HeldOut[k]
 		got := m.Map(h.Source, nil).Pos
 		// Refit without the node.
