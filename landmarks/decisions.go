@@ -53,12 +53,7 @@ var DecisionColumns = []string{"id", "candidate", "decision", "decided_at", "not
 // ReadDecisions reads and checks the decisions file at path (see
 // ParseDecisions).
 func ReadDecisions(path string) (*DecisionSet, error) {
-	f, err := openFile(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	return ParseDecisions(path, f)
+	return parseFile(path, ParseDecisions)
 }
 
 // ParseDecisions reads a decisions file from r: the columns id (a cell),

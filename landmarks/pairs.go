@@ -69,12 +69,7 @@ var pairColumns2D = []string{"id", "kind", "source_x", "source_y", "target_x", "
 // ReadPairs reads and checks the landmark file at path. Every fault of the
 // file is reported as an *InputError.
 func ReadPairs(path string) (*PairSet, error) {
-	f, err := openFile(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	return ParsePairs(path, f)
+	return parseFile(path, ParsePairs)
 }
 
 // ParsePairs reads and checks a landmark table from r; name is the file name

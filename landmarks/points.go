@@ -36,12 +36,9 @@ type PointSet struct {
 // candidates, as what says ("cells", "candidates"), which is used in
 // messages. Every fault of the file is reported as an *InputError.
 func ReadPoints(path, what string) (*PointSet, error) {
-	f, err := openFile(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	return ParsePoints(path, what, f)
+	return parseFile(path, func(name string, r io.Reader) (*PointSet, error) {
+		return ParsePoints(name, what, r)
+	})
 }
 
 // ParsePoints reads and checks a table of points from r; name is the file

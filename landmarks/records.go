@@ -28,12 +28,7 @@ type Table struct {
 
 // ReadTable reads the CSV table at path (see Table).
 func ReadTable(path string) (*Table, error) {
-	f, err := openFile(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	return ParseTable(path, f)
+	return parseFile(path, ParseTable)
 }
 
 // ParseTable reads a CSV table from r; name is the file named in messages.
@@ -126,14 +121,11 @@ func (tb *Table) Number(row, col int) (v float64, ok bool, err error) {
 // rules of Table, to tell one kind of table from another without reading
 // it whole.
 func ReadHeader(path string) ([]string, error) {
-	f, err := openFile(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	t, err := openTable(path, f)
-	if err != nil {
-		return nil, err
-	}
-	return t.header, nil
+	return parseFile(path, func(name string, r io.Reader) ([]string, error) {
+		t, err := openTable(name, r)
+		if err != nil {
+			return nil, err
+		}
+		return t.header, nil
+	})
 }

@@ -344,6 +344,18 @@ func (b *stringBlock) take(n int) []string {
 }
 
 // openFile opens path for reading, or returns an *InputError saying why not.
+// parseFile opens the file at path and parses it with parse, naming the
+// file in parse's messages as the path given.
+func parseFile[T any](path string, parse func(name string, r io.Reader) (T, error)) (T, error) {
+	f, err := openFile(path)
+	if err != nil {
+		var zero T
+		return zero, err
+	}
+	defer f.Close()
+	return parse(path, f)
+}
+
 func openFile(path string) (*os.File, error) {
 	f, err := os.Open(path)
 	if err != nil {
