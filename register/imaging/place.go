@@ -88,7 +88,8 @@ func (g Geometry) Describe() string {
 	return s
 }
 
-// The inputs that messages about placing an output ask to change.
+// The inputs that messages about placing or warping an output ask to
+// change, in those messages' words; read only, never assigned.
 var (
 	targetPage  = remedy.Ref{Input: remedy.TargetPage, Words: "target page"}
 	thePage     = remedy.Ref{Input: remedy.TargetPage, Words: "the target page"}
