@@ -89,7 +89,7 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 				return err
 			}
 			for _, n := range res.Notes {
-				fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %s\n", n)
+				fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %s\n", n.Named(flagName))
 			}
 			printExport(cmd, res)
 			return nil

@@ -13,6 +13,7 @@ import (
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
 
+	"ferry/internal/remedy"
 	"ferry/landmarks"
 	"ferry/progress"
 	"ferry/register"
@@ -287,6 +288,30 @@ func (d *decimalFlag) Set(s string) error {
 	}
 	*d = decimalFlag(v)
 	return nil
+}
+
+// flagName is the flag that gives an input a library message asks to
+// change: the one place where the library's inputs meet the flags' names.
+func flagName(in remedy.Input) string {
+	switch in {
+	case remedy.OutputVoxel:
+		return "--voxel"
+	case remedy.OutputBox:
+		return "--bounds"
+	case remedy.MemoryLimit:
+		return "--memory-gib"
+	case remedy.TargetPage:
+		return "--target-z"
+	case remedy.TargetVoxel:
+		return "--target-voxel"
+	case remedy.GridSpacing:
+		return "--spacing"
+	case remedy.GridMargin:
+		return "--margin"
+	case remedy.TransformFile:
+		return "--transform"
+	}
+	return ""
 }
 
 // excludeFlag names the flag --exclude in an error about the ids left out.

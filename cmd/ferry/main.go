@@ -19,6 +19,7 @@ import (
 	"time"
 	"unicode"
 
+	"ferry/internal/remedy"
 	"ferry/register/outfile"
 )
 
@@ -92,10 +93,11 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 }
 
-// oneLineMessage is err's message on one line: a control character (a line
+// oneLineMessage is err's message on one line, with the inputs it asks to
+// change named by their flags (flagName): a control character (a line
 // break in a file name, say) is written with Go's escape, \n.
 func oneLineMessage(err error) string {
-	msg := err.Error()
+	msg := remedy.Named(err, flagName)
 	if strings.IndexFunc(msg, unicode.IsControl) < 0 {
 		return msg
 	}

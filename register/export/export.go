@@ -13,6 +13,7 @@ import (
 	"slices"
 	"strconv"
 
+	"ferry/internal/remedy"
 	"ferry/progress"
 	"ferry/register"
 	"ferry/register/imaging"
@@ -75,8 +76,9 @@ type Result struct {
 	// Points and Unplaced count the cells of the point list written and
 	// left out (no position in the mapped table).
 	Points, Unplaced int
-	// Notes say what had to be assumed, for the user to hear.
-	Notes []string
+	// Notes say what had to be assumed, for the user to hear; a note's
+	// String is in words, and Named names the inputs it asks to change.
+	Notes []remedy.Message
 }
 
 // Manifest is export.json.
@@ -166,7 +168,7 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		}
 		res.Points, res.Unplaced = len(points.rows), points.unplaced
 		if points.note != "" {
-			res.Notes = append(res.Notes, points.note)
+			res.Notes = append(res.Notes, remedy.Sprintf("%s", points.note))
 		}
 		m.Points = &PointsRecord{File: PointsFile, Count: len(points.rows), Unplaced: points.unplaced, TargetVoxelUM: [3]float64(*vox)}
 	}
@@ -185,7 +187,7 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		}
 		res.TotalError, res.SequenceError = res.Field.Errors(s, g.RandomPoints(n, opt.Seed))
 		if points != nil {
-			if note := points.outsideNote(s, g); note != "" {
+			if note := points.outsideNote(s, g); note.String() != "" {
 				res.Notes = append(res.Notes, note)
 			}
 		}
@@ -316,7 +318,8 @@ type pointList struct {
 // µm; vox is the voxel size they are to be written in.
 func readPoints(path string, fileVoxel, vox *transform.Vec) (*pointList, error) {
 	if vox == nil {
-		return nil, fmt.Errorf("%s: the transform file records no target voxel size, so the point list has none to be written in: give --target-voxel X,Y,Z (µm per voxel)", path)
+		return nil, remedy.Errorf("%s: the transform file records no target voxel size, so the point list has none to be written in: give %s (µm per voxel)",
+			path, remedy.Ref{Input: remedy.TargetVoxel, Words: "a target voxel size", Form: "X,Y,Z"})
 	}
 	m, err := register.ReadMappedTable(path, fileVoxel)
 	if err != nil {
@@ -336,8 +339,8 @@ func readPoints(path string, fileVoxel, vox *transform.Vec) (*pointList, error) 
 // outsideNote counts the cells whose source position, t⁻¹ of their mapped
 // position, lies outside the field's grid, where a program applying the
 // field has no displacement to interpolate, and says how to cover them;
-// "" when every cell is inside.
-func (pl *pointList) outsideNote(t transform.Transform, g Grid) string {
+// empty when every cell is inside.
+func (pl *pointList) outsideNote(t transform.Transform, g Grid) remedy.Message {
 	end := g.End()
 	outside := 0
 	for _, c := range pl.rows {
@@ -354,7 +357,7 @@ func (pl *pointList) outsideNote(t transform.Transform, g Grid) string {
 		}
 	}
 	if outside == 0 {
-		return ""
+		return remedy.Message{}
 	}
 	box := fmt.Sprintf("x %.1f to %.1f, y %.1f to %.1f", g.Origin[0], end[0], g.Origin[1], end[1])
 	flag := "X0,Y0,X1,Y1"
@@ -366,8 +369,8 @@ func (pl *pointList) outsideNote(t transform.Transform, g Grid) string {
 	if outside == 1 {
 		verb = "lies"
 	}
-	return fmt.Sprintf("%d of the %d mapped cells %s outside the displacement field's box (source %s µm), where a program applying the field finds no displacement; give --bounds %s in source µm (the in vivo stack's box, say) to cover them",
-		outside, len(pl.rows), verb, box, flag)
+	return remedy.Sprintf("%d of the %d mapped cells %s outside the displacement field's box (source %s µm), where a program applying the field finds no displacement; give %s in source µm (the in vivo stack's box, say) to cover them",
+		outside, len(pl.rows), verb, box, remedy.Ref{Input: remedy.OutputBox, Words: "a box", Form: flag})
 }
 
 // PointColumns are the point list's columns in dim dimensions.

@@ -12,6 +12,7 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/internal/remedy"
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/status"
@@ -94,8 +95,9 @@ func TestFieldGrid(t *testing.T) {
 			t.Errorf("axis %d: the grid ends at %g µm, more than a spacing past %g µm", k, end[k], hi+5)
 		}
 	}
-	if _, err := FieldGrid(s, GridOptions{Spacing: transform.Vec{0.1, 0.1, 0.1}, Margin: 5}); err == nil || !strings.Contains(err.Error(), "--spacing") {
-		t.Errorf("a 0.1 µm grid: error %v, want a refusal naming --spacing", err)
+	if _, err := FieldGrid(s, GridOptions{Spacing: transform.Vec{0.1, 0.1, 0.1}, Margin: 5}); err == nil || !strings.Contains(err.Error(), "give a larger spacing or a smaller margin") ||
+		!strings.Contains(remedy.Named(err, flagOf), "give a larger --spacing or a smaller --margin") {
+		t.Errorf("a 0.1 µm grid: error %v, want a refusal asking for a larger spacing (--spacing)", err)
 	}
 	d, err := FieldGrid(s, GridOptions{Margin: -1})
 	if err != nil {
@@ -249,7 +251,7 @@ func TestFieldGridBounds(t *testing.T) {
 }
 
 // Cells whose source position lies outside the field's grid are counted
-// in a note that names --bounds; a box that holds them has no note.
+// in a note that asks for a box (--bounds); a box that holds them has no note.
 func TestWriteNotesCellsOutsideTheField(t *testing.T) {
 	s := testSpline(t, 3)
 	file := &transform.File{Transform: s}
@@ -281,10 +283,25 @@ func TestWriteNotesCellsOutsideTheField(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			notes := strings.Join(res.Notes, "\n")
-			if tc.want == "" && notes != "" || tc.want != "" && (!strings.Contains(notes, tc.want) || !strings.Contains(notes, "--bounds")) {
-				t.Errorf("notes %q, want %q", notes, tc.want)
+			var words, named []string
+			for _, n := range res.Notes {
+				words = append(words, n.String())
+				named = append(named, n.Named(flagOf))
+			}
+			notes, flagged := strings.Join(words, "\n"), strings.Join(named, "\n")
+			if tc.want == "" && notes != "" || tc.want != "" && (!strings.Contains(notes, tc.want) || !strings.Contains(notes, "give a box in source µm")) {
+				t.Errorf("notes %q, want %q and the box to give", notes, tc.want)
+			}
+			// The input to change is the box, which a command line names
+			// with its own flag and the box's form.
+			if tc.want != "" && (!strings.Contains(flagged, tc.want) || !strings.Contains(flagged, "give --bounds X0,Y0,Z0,X1,Y1,Z1 in source µm") || strings.Contains(notes, "--")) {
+				t.Errorf("named notes %q, want %q and --bounds; in words %q, want no flag", flagged, tc.want, notes)
 			}
 		})
 	}
+}
+
+// flagOf names the inputs of a message as a command line might.
+func flagOf(in remedy.Input) string {
+	return map[remedy.Input]string{remedy.OutputBox: "--bounds", remedy.TargetVoxel: "--target-voxel", remedy.GridSpacing: "--spacing", remedy.GridMargin: "--margin"}[in]
 }

@@ -8,6 +8,7 @@ import (
 	"slices"
 
 	"ferry/internal/parallel"
+	"ferry/internal/remedy"
 	"ferry/progress"
 	"ferry/transform"
 )
@@ -116,12 +117,12 @@ func FieldGrid(s *transform.Spline, opt GridOptions) (Grid, error) {
 		n := math.Ceil((hi[k]+margin-g.Origin[k])/spacing[k]-1e-9) + 1
 		total *= math.Max(n, 2)
 		if total > MaxSamples {
-			smaller := "--margin"
+			smaller := remedy.Ref{Input: remedy.GridMargin, Words: "margin"}
 			if opt.Bounds != nil {
-				smaller = "--bounds"
+				smaller = remedy.Ref{Input: remedy.OutputBox, Words: "box"}
 			}
-			return Grid{}, fmt.Errorf("a grid of spacing %g × %g × %g µm over %.0f µm would hold more than %d samples: give a larger --spacing or a smaller %s",
-				spacing[0], spacing[1], spacing[2], longest+2*margin, MaxSamples, smaller)
+			return Grid{}, remedy.Errorf("a grid of spacing %g × %g × %g µm over %.0f µm would hold more than %d samples: give a larger %s or a smaller %s",
+				spacing[0], spacing[1], spacing[2], longest+2*margin, MaxSamples, remedy.Ref{Input: remedy.GridSpacing, Words: "spacing"}, smaller)
 		}
 		g.Size[k] = int(math.Max(n, 2))
 	}

@@ -5,6 +5,7 @@ import (
 	"math"
 	"strconv"
 
+	"ferry/internal/remedy"
 	"ferry/transform"
 )
 
@@ -87,6 +88,18 @@ func (g Geometry) Describe() string {
 	return s
 }
 
+// The inputs that messages about placing or warping an output ask to
+// change, in those messages' words; read only, never assigned.
+var (
+	targetPage  = remedy.Ref{Input: remedy.TargetPage, Words: "target page"}
+	thePage     = remedy.Ref{Input: remedy.TargetPage, Words: "the target page"}
+	pageIndex   = remedy.Ref{Input: remedy.TargetPage, Words: "the page index"}
+	targetVoxel = remedy.Ref{Input: remedy.TargetVoxel, Words: "the target voxel size", Form: "X,Y,Z"}
+	outputBox   = remedy.Ref{Input: remedy.OutputBox, Words: "output box"}
+	theBox      = remedy.Ref{Input: remedy.OutputBox, Words: "the output box"}
+	outputVoxel = remedy.Ref{Input: remedy.OutputVoxel, Words: "output voxel size"}
+)
+
 // num formats a length for a message.
 func num(v float64) string { return strconv.FormatFloat(v, 'g', 6, 64) }
 
@@ -104,12 +117,12 @@ func PlaneGrid(like *Stack, g Geometry, targetZ *int) (Grid, int, error) {
 		Origin: transform.Vec{g.OriginUM[0], g.OriginUM[1], 0}}
 	vz := g.VoxelUM[2]
 	if targetZ != nil && *targetZ < 0 {
-		return grid, 0, fmt.Errorf("--target-z %d is negative: want a page index ≥ 0", *targetZ)
+		return grid, 0, remedy.Errorf("%s %d is negative: want a page index ≥ 0", targetPage, *targetZ)
 	}
 	if like.Depth == 1 && !g.HasOrigin[2] {
 		if targetZ != nil {
 			if !(vz > 0) {
-				return grid, 0, fmt.Errorf("--target-z %d: %s records no section spacing to place page %d at; give --target-voxel X,Y,Z in µm", *targetZ, like.name(), *targetZ)
+				return grid, 0, remedy.Errorf("%s %d: %s records no section spacing to place page %d at; give %s in µm", targetPage, *targetZ, like.name(), *targetZ, targetVoxel)
 			}
 			grid.Z = *targetZ
 		}
@@ -120,26 +133,26 @@ func PlaneGrid(like *Stack, g Geometry, targetZ *int) (Grid, int, error) {
 		return grid, 0, nil
 	}
 	if !(vz > 0) {
-		return grid, 0, fmt.Errorf("--target-z %d: %s records its z position (%s µm) but no section spacing to count pages in; leave --target-z out or give --target-voxel X,Y,Z in µm",
-			*targetZ, like.name(), num(g.OriginUM[2]))
+		return grid, 0, remedy.Errorf("%s %d: %s records its z position (%s µm) but no section spacing to count pages in; leave %s out or give %s in µm",
+			targetPage, *targetZ, like.name(), num(g.OriginUM[2]), thePage, targetVoxel)
 	}
 	first := g.OriginUM[2] / vz
 	page := float64(*targetZ) - first
 	k := int(math.Round(page))
 	if math.Abs(page-float64(k)) > 1e-6 || k < 0 || k >= like.Depth {
 		if like.Depth == 1 {
-			return grid, 0, fmt.Errorf("--target-z %d: %s is the section at page %s (z = %s µm, %s µm sections), not page %d; leave --target-z out or give the image of page %d",
-				*targetZ, like.name(), num(first), num(g.OriginUM[2]), num(vz), *targetZ, *targetZ)
+			return grid, 0, remedy.Errorf("%s %d: %s is the section at page %s (z = %s µm, %s µm sections), not page %d; leave %s out or give the image of page %d",
+				targetPage, *targetZ, like.name(), num(first), num(g.OriginUM[2]), num(vz), *targetZ, thePage, *targetZ)
 		}
 		// Pages are counted in the volume, from z = 0, not in the file:
 		// say so where the two differ, or "pages 1 to 69" of a 69-page
 		// file reads as a mistake.
-		counted := ""
+		var counted remedy.Message
 		if first != 0 {
-			counted = fmt.Sprintf("; --target-z counts %s µm sections from z = 0, so the file's first page is page %s", num(vz), num(first))
+			counted = remedy.Sprintf("; %s counts %s µm sections from z = 0, so the file's first page is page %s", pageIndex, num(vz), num(first))
 		}
-		return grid, 0, fmt.Errorf("--target-z %d is outside %s, which holds pages %s to %s (z = %s to %s µm%s)",
-			*targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz), counted)
+		return grid, 0, remedy.Errorf("%s %d is outside %s, which holds pages %s to %s (z = %s to %s µm%s)",
+			targetPage, *targetZ, like.name(), num(first), num(first+float64(like.Depth-1)), num(g.OriginUM[2]), num(g.OriginUM[2]+float64(like.Depth-1)*vz), counted)
 	}
 	grid.Origin[2] += float64(k) * vz
 	return grid, k, nil
@@ -195,22 +208,24 @@ func MappedBox(t transform.Transform, width, height, depth int, g Geometry, inve
 	return lo, hi, ok
 }
 
-// NoOverlap is the error for an output that the stack does not reach at
-// all: rather than a blank image, the user learns where the stack maps and
-// where the output lies, µm in the output's space.
+// NoOverlap is the error for a plane (the file out) that the stack does
+// not reach at all: rather than a blank image, the user learns where the
+// stack maps and where the plane lies, µm in the plane's space, and that
+// the plane's page is among the inputs to check.
 func NoOverlap(stack *Stack, g Geometry, t transform.Transform, inverse bool, out string, outLo, outHi transform.Vec) error {
+	return noOverlap(stack, g, t, inverse, out, thePage, outLo, outHi)
+}
+
+// noOverlap is NoOverlap for an output named by out (a file name or a
+// Ref) and placed by the input placed: a warp's output box, or the page
+// of resample's and overlay's plane.
+func noOverlap(stack *Stack, g Geometry, t transform.Transform, inverse bool, out any, placed remedy.Ref, outLo, outHi transform.Vec) error {
 	lo, hi, ok := MappedBox(t, stack.Width, stack.Height, stack.Depth, g, inverse)
 	where := "nowhere the transform can map"
 	if ok {
 		where = "x " + span(lo[0], hi[0]) + ", y " + span(lo[1], hi[1]) + ", z " + span(lo[2], hi[2]) + " µm"
 	}
-	// The flag that placed the output is the one to check: warp's
-	// --bounds, or the page (--target-z) of resample's and overlay's plane.
-	placed := "--target-z"
-	if out == "--bounds" {
-		placed = "--bounds"
-	}
-	return fmt.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, %s and the transform",
+	return remedy.Errorf("%s (%s) does not reach %s: the stack maps to %s, %s covers x %s, y %s, z %s µm; check the voxel sizes, %s and the transform",
 		stack.name(), g.Describe(), out, where, out, span(outLo[0], outHi[0]), span(outLo[1], outHi[1]), span(outLo[2], outHi[2]), placed)
 }
 

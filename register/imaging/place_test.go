@@ -5,6 +5,7 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/internal/remedy"
 	"ferry/transform"
 )
 
@@ -73,13 +74,15 @@ func TestPlaneGrid(t *testing.T) {
 		{"a page of a stack", stack, placed, z(13), 26, 3, ""},
 		{"before the stack", stack, placed, z(9), 0, 0, "holds pages 10 to 14 (z = 20 to 28 µm; --target-z counts 2 µm sections from z = 0, so the file's first page is page 10)"},
 		{"after the stack", stack, loose, z(5), 0, 0, "holds pages 0 to 4 (z = 0 to 8 µm)"},
-		{"negative", stack, loose, z(-1), 0, 0, "negative"},
+		{"negative", stack, loose, z(-1), 0, 0, "--target-z -1 is negative"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
 			grid, page, err := PlaneGrid(tt.like, tt.g, tt.z)
 			if tt.errSay != "" {
-				if err == nil || !strings.Contains(err.Error(), tt.errSay) {
-					t.Fatalf("error %v, want one saying %q", err, tt.errSay)
+				// The library's message speaks of the page; a command line
+				// names it by its flag, word for word otherwise.
+				if err == nil || !strings.Contains(remedy.Named(err, flagOf), tt.errSay) || strings.Contains(err.Error(), "--") {
+					t.Fatalf("error %v, want one saying %q when named, and no flag in words", err, tt.errSay)
 				}
 				return
 			}
@@ -90,6 +93,10 @@ func TestPlaneGrid(t *testing.T) {
 				t.Errorf("plane at z = %g µm, page %d; want %g µm, page %d", got, page, tt.planeZ, tt.page)
 			}
 		})
+	}
+	_, _, err := PlaneGrid(stack, placed, z(9))
+	if want := "the page index counts 2 µm sections from z = 0"; err == nil || !strings.Contains(err.Error(), want) {
+		t.Errorf("error %v, want one saying %q", err, want)
 	}
 }
 

@@ -8,6 +8,7 @@ import (
 	"math"
 
 	"ferry/internal/parallel"
+	"ferry/internal/remedy"
 	"ferry/progress"
 	"ferry/register/outfile"
 	"ferry/transform"
@@ -82,7 +83,7 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 		var ok bool
 		lo, hi, ok = MappedBox(t, h.Width, h.Height, h.Depth, g, opt.Inverse)
 		if !ok {
-			return grid, fmt.Errorf("imaging: warp: no point of %s's box could be mapped; give --bounds", h.name())
+			return grid, remedy.Errorf("imaging: warp: no point of %s's box could be mapped; give %s", h.name(), remedy.Ref{Input: remedy.OutputBox, Words: "an output box"})
 		}
 		for a := range 3 {
 			lo[a] = math.Floor(lo[a]/opt.VoxelUM[a]) * opt.VoxelUM[a]
@@ -93,19 +94,19 @@ func PlanWarp(t transform.Transform, h *Stack, g Geometry, opt WarpOptions) (War
 		// An output the stack cannot reach would be a file of zeros.
 		mlo, mhi, ok := MappedBox(t, h.Width, h.Height, h.Depth, g, opt.Inverse)
 		if ok && (mlo[0] > hi[0] || mhi[0] < lo[0] || mlo[1] > hi[1] || mhi[1] < lo[1] || mlo[2] > hi[2] || mhi[2] < lo[2]) {
-			return grid, NoOverlap(h, g, t, opt.Inverse, "--bounds", lo, hi)
+			return grid, noOverlap(h, g, t, opt.Inverse, theBox, theBox, lo, hi)
 		}
 	}
 	grid.OriginUM = lo
 	for a := range 3 {
 		n := math.Floor((hi[a]-lo[a])/opt.VoxelUM[a]+1e-9) + 1
 		if n > 1<<24 {
-			return grid, fmt.Errorf("imaging: warp: %.0f voxels along %s: at most 16777216; choose a coarser --voxel or smaller --bounds", n, "xyz"[a:a+1])
+			return grid, remedy.Errorf("imaging: warp: %.0f voxels along %s: at most 16777216; choose a coarser %s or smaller %s", n, "xyz"[a:a+1], outputVoxel, outputBox)
 		}
 		grid.Size[a] = int(n)
 	}
 	if _, err := voxelCount(grid.Size[0], grid.Size[1], grid.Size[2]); err != nil {
-		return grid, fmt.Errorf("imaging: warp: output of %w; choose a coarser --voxel or smaller --bounds", err)
+		return grid, remedy.Errorf("imaging: warp: output of %w; choose a coarser %s or smaller %s", err, outputVoxel, outputBox)
 	}
 	return grid, nil
 }
@@ -133,15 +134,15 @@ func (g WarpGrid) CheckWritable(path string, bits int) error {
 	l := g.layout(bits)
 	if err := l.check(path); err != nil {
 		if _, tooMany := voxelCount(l.width, l.height, l.depth); tooMany == nil && (l.bits == 8 || l.bits == 16) && l.size() > maxClassicTIFF {
-			// The way out is in warp's own flags.
-			return fmt.Errorf("%s: %d × %d × %d voxels of %d bits make %.1f GiB, more than the 4 GiB a classic TIFF holds; give a coarser --voxel or a smaller --bounds",
-				path, l.width, l.height, l.depth, l.bits, float64(l.size())/(1<<30))
+			// The way out is in warp's own inputs.
+			return remedy.Errorf("%s: %d × %d × %d voxels of %d bits make %.1f GiB, more than the 4 GiB a classic TIFF holds; give a coarser %s or a smaller %s",
+				path, l.width, l.height, l.depth, l.bits, float64(l.size())/(1<<30), outputVoxel, outputBox)
 		}
 		return err
 	}
 	if free, ok := freeBytes(path); ok && free < uint64(l.size()) {
-		return fmt.Errorf("%s: the warped stack needs %.1f GiB and the disk has %.1f GiB free; free some space, give a coarser --voxel or a smaller --bounds",
-			path, float64(l.size())/(1<<30), float64(free)/(1<<30))
+		return remedy.Errorf("%s: the warped stack needs %.1f GiB and the disk has %.1f GiB free; free some space, give a coarser %s or a smaller %s",
+			path, float64(l.size())/(1<<30), float64(free)/(1<<30), outputVoxel, outputBox)
 	}
 	return nil
 }
@@ -211,8 +212,8 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 	// the bound is reached.
 	need := func(k0, k1 int) error {
 		if k1-k0+1 > maxPages {
-			return fmt.Errorf("imaging: warp: 64 output rows reach %d pages of %s, more than the %d that fit in %.0f MiB; raise --memory-gib or warp a smaller --bounds",
-				k1-k0+1, h.name(), maxPages, float64(budget)/(1<<20))
+			return remedy.Errorf("imaging: warp: 64 output rows reach %d pages of %s, more than the %d that fit in %.0f MiB; raise %s or warp a smaller %s",
+				k1-k0+1, h.name(), maxPages, float64(budget)/(1<<20), remedy.Ref{Input: remedy.MemoryLimit, Words: "the memory limit"}, outputBox)
 		}
 		for k := k0; k <= k1; k++ {
 			if pages[k] != nil {

@@ -12,6 +12,7 @@ import (
 	"strings"
 	"testing"
 
+	"ferry/internal/remedy"
 	"ferry/transform"
 )
 
@@ -127,7 +128,8 @@ func TestPlanWarp(t *testing.T) {
 	}
 	// Bounds the stack does not reach are refused, saying where it maps.
 	far := [2]transform.Vec{{500, 500, 500}, {600, 600, 600}}
-	if _, err := PlanWarp(tilt, s, g, WarpOptions{VoxelUM: transform.Vec{1, 1, 1}, Bounds: &far}); err == nil || !strings.Contains(err.Error(), "does not reach --bounds: the stack maps to x") {
+	if _, err := PlanWarp(tilt, s, g, WarpOptions{VoxelUM: transform.Vec{1, 1, 1}, Bounds: &far}); err == nil || !strings.Contains(err.Error(), "does not reach the output box: the stack maps to x") ||
+		!strings.Contains(remedy.Named(err, flagOf), "does not reach --bounds: the stack maps to x") {
 		t.Errorf("error %v, want a refusal of bounds the stack does not reach", err)
 	}
 	// Too large for a classic TIFF: refused before anything is written,
@@ -137,7 +139,8 @@ func TestPlanWarp(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "huge.tif")
-	if err := huge.CheckWritable(out, 16); err == nil || !strings.Contains(err.Error(), "4 GiB") || !strings.Contains(err.Error(), "coarser --voxel or a smaller --bounds") {
+	if err := huge.CheckWritable(out, 16); err == nil || !strings.Contains(err.Error(), "4 GiB") || !strings.Contains(err.Error(), "coarser output voxel size or a smaller output box") ||
+		!strings.Contains(remedy.Named(err, flagOf), "coarser --voxel or a smaller --bounds") {
 		t.Errorf("error %v, want a refusal naming the 4 GiB limit and the way out", err)
 	}
 }
@@ -203,4 +206,10 @@ func TestOpenPagesReadsWhatReadStackReads(t *testing.T) {
 			}
 		})
 	}
+}
+
+// flagOf names the inputs of a message as ferry's command line does.
+func flagOf(in remedy.Input) string {
+	return map[remedy.Input]string{remedy.OutputVoxel: "--voxel", remedy.OutputBox: "--bounds", remedy.MemoryLimit: "--memory-gib",
+		remedy.TargetPage: "--target-z", remedy.TargetVoxel: "--target-voxel"}[in]
 }

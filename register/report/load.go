@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"fmt"
 
+	"ferry/internal/remedy"
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/match"
@@ -23,8 +24,8 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 		return err
 	}
 	if file.Landmarks.SHA256 != "" && set.SHA256 != file.Landmarks.SHA256 {
-		return fmt.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out --transform to check this one",
-			landmarkPath, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256))
+		return remedy.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out %s to check this one",
+			landmarkPath, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256), remedy.Ref{Input: remedy.TransformFile, Words: "the transform file"})
 	}
 	if len(file.Summary) == 0 {
 		return fmt.Errorf("%s holds no leave-one-out check: refit it with ferry fit", transformPath)
