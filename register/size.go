@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"ferry/internal/errkind"
+	"ferry/internal/remedy"
 	"ferry/transform"
 )
 
@@ -130,35 +131,46 @@ func EstimateJob(p *Problem, s Settings) JobEstimate {
 // starts.
 func (e JobEstimate) Announce() bool { return e.Duration >= announceAfter }
 
-// String says what the job costs, in one line.
-func (e JobEstimate) String() string {
-	how := "with the smoothing given"
+// String says what the job costs, in one line, in the library's words
+// (Describe names the inputs for a caller).
+func (e JobEstimate) String() string { return e.Describe().String() }
+
+// Describe says what the job costs, in one line, as a message whose inputs
+// (the smoothing) a caller may name.
+func (e JobEstimate) Describe() remedy.Message {
+	var how any = "with the smoothing given"
 	if e.AutoSmoothing {
-		how = "with --smoothing auto"
+		how = remedy.Sprintf("with %v", autoSmoothingRef)
 	}
 	if e.Mapping {
 		how = "to map through"
 	}
-	return fmt.Sprintf("a thin-plate spline on %d landmarks needs about %s of memory and takes about %s on a 2-core machine %s",
+	return remedy.Sprintf("a thin-plate spline on %d landmarks needs about %s of memory and takes about %s on a 2-core machine %v",
 		e.Landmarks, FormatBytes(e.Bytes), FormatDuration(e.Duration), how)
 }
 
+// The inputs the way out of a large job asks to change.
+var (
+	autoSmoothingRef = remedy.Ref{Input: remedy.Smoothing, Words: "the smoothing chosen by cross-validation", Form: "auto"}
+	zeroSmoothingRef = remedy.Ref{Input: remedy.Smoothing, Words: "0, interpolation", Form: "0"}
+	affineModelRef   = remedy.Ref{Input: remedy.Model, Words: "affine", Form: "affine"}
+)
+
 // WayOut says what makes the job shorter and smaller.
-func (e JobEstimate) WayOut() string {
-	s := e.smaller()
+func (e JobEstimate) WayOut() remedy.Message {
 	if e.AutoSmoothing {
-		s = "give the smoothing (--smoothing 0, or a value from a check of a subset), " + s
+		return remedy.Sprintf("give the smoothing (%v, or a value from a check of a subset), %v", zeroSmoothingRef, e.smaller())
 	}
-	return s
+	return e.smaller()
 }
 
 // smaller says what makes the job need less memory; the smoothing does
 // not.
-func (e JobEstimate) smaller() string {
+func (e JobEstimate) smaller() remedy.Message {
 	if e.Mapping {
-		return "refit on fewer landmarks or with a linear model (--model affine) on a machine that can, or map on a machine with more memory"
+		return remedy.Sprintf("refit on fewer landmarks or with a linear model (%v) on a machine that can, or map on a machine with more memory", affineModelRef)
 	}
-	return "use a linear model (--model affine), which needs memory only in proportion to the landmarks, or fewer landmarks"
+	return remedy.Sprintf("use a linear model (%v), which needs memory only in proportion to the landmarks, or fewer landmarks", affineModelRef)
 }
 
 // CheckMemory refuses the job when it needs more memory than available
@@ -167,8 +179,8 @@ func (e JobEstimate) CheckMemory(available uint64) error {
 	if available == 0 || e.Bytes <= float64(available) {
 		return nil
 	}
-	return errkind.New(ErrTooLarge, "%s, and this machine has %s available (/proc/meminfo): refused before starting; %s",
-		e, FormatBytes(float64(available)), e.smaller())
+	return errkind.New(ErrTooLarge, "%w", remedy.Errorf("%v, and this machine has %s available (/proc/meminfo): refused before starting; %v",
+		e.Describe(), FormatBytes(float64(available)), e.smaller()))
 }
 
 // AvailableMemory is the memory the machine can give a new job, from the

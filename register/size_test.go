@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"ferry/internal/remedy"
 	"ferry/transform"
 )
 
@@ -57,10 +58,25 @@ func TestEstimateJob(t *testing.T) {
 	if err == nil {
 		t.Fatal("a job of 1.3 TB on 16 GB was not refused")
 	}
-	for _, want := range []string{"100000 landmarks", "TB of memory", "16 GB available", "--model affine"} {
+	for _, want := range []string{"100000 landmarks", "TB of memory", "16 GB available", "a linear model (affine)", "the smoothing chosen by cross-validation"} {
 		if !strings.Contains(err.Error(), want) {
 			t.Errorf("refusal %q does not say %q", err, want)
 		}
+	}
+	if strings.Contains(err.Error(), "--") {
+		t.Errorf("the library's refusal %q names a command-line flag", err)
+	}
+	// A caller that takes the inputs under its own names gets them so.
+	named := remedy.Named(err, func(in remedy.Input) string {
+		return map[remedy.Input]string{remedy.Model: "--model", remedy.Smoothing: "--smoothing"}[in]
+	})
+	for _, want := range []string{"with --smoothing auto", "a linear model (--model affine)"} {
+		if !strings.Contains(named, want) {
+			t.Errorf("named refusal %q does not say %q", named, want)
+		}
+	}
+	if way := big.WayOut().String(); !strings.Contains(way, "give the smoothing (0, interpolation, or a value") {
+		t.Errorf("way out %q", way)
 	}
 	if err := big.CheckMemory(0); err != nil {
 		t.Errorf("unknown memory refused: %v", err)

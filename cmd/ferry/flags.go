@@ -149,7 +149,7 @@ func sizedSettings(cmd *cobra.Command, path string, job *landmarkJob) (register.
 		return register.Settings{}, fmt.Errorf("%s: %w", path, err)
 	}
 	if est.Announce() {
-		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: %s: %s; Ctrl-C stops it. To make it smaller: %s.\n", path, est, est.WayOut())
+		fmt.Fprintf(cmd.ErrOrStderr(), "ferry: %s: %s; Ctrl-C stops it. To make it smaller: %s.\n", path, est.Describe().Named(flagName), est.WayOut().Named(flagName))
 	}
 	settings := job.settings
 	settings.Progress = progress.Terminal(os.Stderr)
@@ -310,6 +310,10 @@ func flagName(in remedy.Input) string {
 		return "--margin"
 	case remedy.TransformFile:
 		return "--transform"
+	case remedy.Smoothing:
+		return "--smoothing"
+	case remedy.Model:
+		return "--model"
 	}
 	return ""
 }

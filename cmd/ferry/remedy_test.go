@@ -20,13 +20,13 @@ func TestFlagNameOfEveryInput(t *testing.T) {
 	for _, c := range newRootCommand(nil, nil).Commands() {
 		c.Flags().VisitAll(func(f *pflag.Flag) { flags["--"+f.Name] = true })
 	}
-	for in := remedy.OutputVoxel; in <= remedy.TransformFile; in++ {
+	for in := remedy.OutputVoxel; in <= remedy.Model; in++ {
 		name := flagName(in)
 		if name == "" || !flags[name] {
 			t.Errorf("input %d: flag %q, want one of a command's flags", in, name)
 		}
 	}
-	if flagName(remedy.TransformFile+1) != "" {
+	if flagName(remedy.Model+1) != "" {
 		t.Error("an input past the last has a flag")
 	}
 }

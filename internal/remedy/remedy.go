@@ -38,6 +38,11 @@ const (
 	GridMargin
 	// TransformFile is a transform file given with other inputs.
 	TransformFile
+	// Smoothing is the smoothing of a thin-plate spline, or how it is
+	// chosen.
+	Smoothing
+	// Model is the kind of transform fitted.
+	Model
 )
 
 // Ref is an input as a message names it: Words in the library's message;
