@@ -6,7 +6,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/status"
 	"ferry/transform"
 )
@@ -49,7 +49,7 @@ func mapperFor(t testing.TB, p *Problem, s Settings) (*Mapper, *Assessment) {
 	return m, a
 }
 
-// Over many simulated scenarios with known truth (register/simulate), the
+// Over many simulated scenarios with known truth (simulate), the
 // 95 % radius of map holds the true position of 90 to 99 % of the cells
 // that lie inside the landmarks' hull, and the radii are not wider than
 // they need be: scaled down by a fifth they would hold clearly fewer.

@@ -5,7 +5,7 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

@@ -12,7 +12,7 @@ import (
 	"os"
 	"path/filepath"
 
-	"ferry/register/outfile"
+	"ferry/outfile"
 	"ferry/transform"
 )
 
@@ -88,7 +88,7 @@ type Sidecar struct {
 func SidecarPath(table string) string { return table + SidecarSuffix }
 
 // WriteTable writes a CSV table and its sidecar whole or not at all (see
-// register/outfile): fill writes the table, beginning with its header row;
+// outfile): fill writes the table, beginning with its header row;
 // the sidecar records prov, the table's checksum and coords.
 func WriteTable(ctx context.Context, path string, prov Provenance, coords []Coordinates, fill func(w io.Writer) error) error {
 	if outfile.IsStream(path) {

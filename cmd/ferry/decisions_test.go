@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 // readRows reads a CSV file written by ferry or the simulator into maps by

@@ -6,7 +6,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"ferry/register/demo"
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 func newDemoCommand() *cobra.Command {

@@ -13,12 +13,12 @@ import (
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
 
+	"ferry/imaging"
 	"ferry/internal/remedy"
 	"ferry/landmarks"
+	"ferry/outfile"
 	"ferry/progress"
 	"ferry/register"
-	"ferry/register/imaging"
-	"ferry/register/outfile"
 	"ferry/transform"
 )
 

@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"ferry/register/imaging"
+	"ferry/imaging"
 	"ferry/status"
 )
 

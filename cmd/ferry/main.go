@@ -20,7 +20,7 @@ import (
 	"unicode"
 
 	"ferry/internal/remedy"
-	"ferry/register/outfile"
+	"ferry/outfile"
 )
 
 // Exit statuses (docs/usage.md).

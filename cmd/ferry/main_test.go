@@ -16,7 +16,7 @@ import (
 	"sync"
 	"testing"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 // binDir holds the program built for the child-process tests; it is made

@@ -9,8 +9,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/outfile"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/status"
 	"ferry/transform"
 )

@@ -7,14 +7,14 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"ferry/register/outfile"
+	"ferry/outfile"
 )
 
 // stdoutName is the -o value that means standard output.
 const stdoutName = "-"
 
 // writeOutput writes a command's output file through fill, whole or not at
-// all: to standard output for "-o -", else through register/outfile, which
+// all: to standard output for "-o -", else through outfile, which
 // writes into a device or pipe as a stream and never replaces one.
 func writeOutput(cmd *cobra.Command, out string, fill func(w io.Writer) error) error {
 	if out == stdoutName {

@@ -12,9 +12,9 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/imaging"
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/status"
 	"ferry/transform"

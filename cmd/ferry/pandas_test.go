@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 // requirePython returns /usr/bin/python3 when it can import every module

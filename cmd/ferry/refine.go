@@ -10,10 +10,10 @@ import (
 	"github.com/spf13/cobra"
 
 	"ferry/landmarks"
+	"ferry/outfile"
 	"ferry/progress"
 	"ferry/register"
 	"ferry/register/match"
-	"ferry/register/outfile"
 	"ferry/register/refine"
 )
 

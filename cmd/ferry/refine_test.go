@@ -10,7 +10,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

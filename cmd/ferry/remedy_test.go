@@ -8,8 +8,8 @@ import (
 
 	"github.com/spf13/pflag"
 
+	"ferry/imaging"
 	"ferry/internal/remedy"
-	"ferry/register/imaging"
 	"ferry/transform"
 )
 

@@ -6,8 +6,8 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/outfile"
 	"ferry/register"
-	"ferry/register/outfile"
 	"ferry/register/report"
 )
 

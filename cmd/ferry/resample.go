@@ -8,8 +8,8 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/imaging"
 	"ferry/landmarks"
-	"ferry/register/imaging"
 	"ferry/transform"
 )
 

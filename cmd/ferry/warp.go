@@ -6,10 +6,10 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/imaging"
 	"ferry/landmarks"
 	"ferry/progress"
 	"ferry/register"
-	"ferry/register/imaging"
 	"ferry/transform"
 )
 

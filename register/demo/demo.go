@@ -10,14 +10,14 @@ import (
 	"strings"
 	"time"
 
+	"ferry/imaging"
 	"ferry/landmarks"
+	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/export"
-	"ferry/register/imaging"
 	"ferry/register/match"
-	"ferry/register/outfile"
 	"ferry/register/refine"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/status"
 	"ferry/transform"
 )

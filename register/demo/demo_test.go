@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"ferry/register/imaging"
+	"ferry/imaging"
 )
 
 // The whole job on the built-in scenario: the check finds exactly the

@@ -5,5 +5,5 @@
 // a user would have, and then compares what it found with the truth.
 //
 // The scenario belongs to no real experiment: its lab, numbers and names are
-// our own (register/simulate, docs/simulation.md).
+// our own (simulate, docs/simulation.md).
 package demo

@@ -8,9 +8,9 @@ import (
 	"fmt"
 	"io"
 
+	"ferry/imaging"
+	"ferry/outfile"
 	"ferry/register"
-	"ferry/register/imaging"
-	"ferry/register/outfile"
 	"ferry/register/report"
 	"ferry/status"
 	"ferry/transform"

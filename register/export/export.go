@@ -13,11 +13,11 @@ import (
 	"slices"
 	"strconv"
 
+	"ferry/imaging"
 	"ferry/internal/remedy"
+	"ferry/outfile"
 	"ferry/progress"
 	"ferry/register"
-	"ferry/register/imaging"
-	"ferry/register/outfile"
 	"ferry/transform"
 )
 

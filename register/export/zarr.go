@@ -139,7 +139,7 @@ const chunkPlanes = 8
 // WriteZarr writes the field as a Zarr v3 store (Zarr specification
 // version 3: zarr.json metadata documents, little-endian raw chunks, no
 // compression) into dir, which must not exist yet; callers write into a
-// temporary folder and rename it into place (see register/outfile).
+// temporary folder and rename it into place (see outfile).
 func (fd *Field) WriteZarr(dir string) error {
 	shape := fd.ArrayShape()
 	chunk := append([]int(nil), shape...)

@@ -4,7 +4,7 @@ import (
 	"testing"
 
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/status"
 	"ferry/transform"
 )

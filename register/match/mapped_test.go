@@ -6,7 +6,7 @@ import (
 
 	"github.com/google/go-cmp/cmp"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

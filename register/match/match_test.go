@@ -10,7 +10,7 @@ import (
 
 	"ferry/progress"
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/status"
 	"ferry/transform"
 )

@@ -7,7 +7,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/status"
 	"ferry/transform"
 )

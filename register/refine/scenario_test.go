@@ -13,7 +13,7 @@ import (
 )
 
 // The scenarios of these tests are our own, independent of
-// register/simulate: a block of cortex with somata packed at the density of
+// simulate: a block of cortex with somata packed at the density of
 // EM nuclei, warped by one of several kinds of distortion on top of an
 // affine change (rotation, EM shrinkage), with landmarks, imaged cells and
 // nuclei picked with noise. They are invented for the tests.

@@ -1,11 +1,11 @@
 package report
 
 import (
-	"ferry/register/imaging"
+	"ferry/imaging"
 	"ferry/status"
 )
 
-// swatch is a colour of the palette: the one register/imaging holds, so
+// swatch is a colour of the palette: the one imaging holds, so
 // that the report's figures and the overlay share their values.
 type swatch = imaging.Colour
 

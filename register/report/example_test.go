@@ -10,7 +10,7 @@ import (
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/report"
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 // A report of a landmark file checked and fitted here, as `ferry report`

@@ -16,10 +16,10 @@ import (
 	"github.com/chromedp/cdproto/network"
 	"github.com/chromedp/chromedp"
 
+	"ferry/imaging"
 	"ferry/landmarks"
 	"ferry/register"
 	"ferry/register/demo"
-	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/transform"
 )

@@ -13,7 +13,7 @@
 // the stacks (imaging.Volume). The HTTP handlers serve the page and its
 // scripts from files embedded in the binary: nothing is fetched from the
 // network. Decisions are kept in a landmarks.DecisionSet and the whole file
-// is rewritten through register/outfile after each one, so it is always
+// is rewritten through outfile after each one, so it is always
 // whole, and a later session with the same file resumes where the last one
 // stopped.
 package review

@@ -8,7 +8,7 @@ import (
 	"math"
 	"slices"
 
-	"ferry/register/imaging"
+	"ferry/imaging"
 	"ferry/transform"
 )
 

@@ -10,11 +10,11 @@ import (
 	"sync"
 	"time"
 
+	"ferry/imaging"
 	"ferry/landmarks"
+	"ferry/outfile"
 	"ferry/register"
-	"ferry/register/imaging"
 	"ferry/register/match"
-	"ferry/register/outfile"
 	"ferry/status"
 	"ferry/transform"
 )

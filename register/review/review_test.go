@@ -10,8 +10,8 @@ import (
 	"testing"
 	"time"
 
+	"ferry/imaging"
 	"ferry/landmarks"
-	"ferry/register/imaging"
 	"ferry/register/match"
 	"ferry/status"
 	"ferry/transform"

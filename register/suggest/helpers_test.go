@@ -5,7 +5,7 @@ import (
 
 	"ferry/landmarks"
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

@@ -5,7 +5,7 @@ import (
 	"testing"
 
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

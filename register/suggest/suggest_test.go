@@ -14,7 +14,7 @@ import (
 	"ferry/landmarks"
 	"ferry/progress"
 	"ferry/register"
-	"ferry/register/simulate"
+	"ferry/simulate"
 	"ferry/transform"
 )
 

@@ -1,5 +1,5 @@
 #!/usr/bin/python3
-"""Write the small test images of ferry/register/imaging, or verify one.
+"""Write the small test images of ferry/imaging, or verify one.
 
 Run with Debian's interpreter, which has tifffile, numpy and Pillow:
 

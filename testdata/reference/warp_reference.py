@@ -31,7 +31,7 @@ ferry rounds. An output voxel whose position lies within 1e-6 voxel of the
 box's faces is written as -1 and skipped by the Go test: there the two
 programs may fairly disagree on inside and outside.
 
-The Go test (register/imaging/warp_reference_test.go) reads the committed
+The Go test (imaging/warp_reference_test.go) reads the committed
 file, so go test needs no Python. --check regenerates into memory and exits
 1 when any expected value differs from the committed one by more than 1 (a
 rounding tie), or anything else differs.

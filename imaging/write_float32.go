@@ -33,7 +33,7 @@ type Float32Stack struct {
 // ImageJ stores a calibration's origin), so that ImageJ and tifffile
 // find the hyperstack's shape and scale by themselves.
 //
-// It writes to w; callers that write files go through register/outfile.
+// It writes to w; callers that write files go through outfile.
 func WriteFloat32TIFF(w io.Writer, s *Float32Stack) error {
 	if s.Width <= 0 || s.Height <= 0 || s.Depth <= 0 || s.Channels <= 0 {
 		return fmt.Errorf("imaging: a float32 stack of %d × %d × %d with %d channels holds nothing", s.Width, s.Height, s.Depth, s.Channels)

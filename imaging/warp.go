@@ -9,8 +9,8 @@ import (
 
 	"ferry/internal/parallel"
 	"ferry/internal/remedy"
+	"ferry/outfile"
 	"ferry/progress"
-	"ferry/register/outfile"
 	"ferry/transform"
 )
 

@@ -10,12 +10,12 @@ import (
 	"path/filepath"
 	"strconv"
 
-	"ferry/register/outfile"
+	"ferry/outfile"
 	"ferry/transform"
 )
 
 // Generator names this package in the files it writes.
-const Generator = "ferry/register/simulate"
+const Generator = "ferry/simulate"
 
 // The scenario file's format name and version.
 const (
@@ -41,7 +41,7 @@ type Files struct {
 }
 
 // Write writes the scenario's files into dir, creating it if need be. Each
-// file is written whole or not at all (see register/outfile). A folder
+// file is written whole or not at all (see outfile). A folder
 // that holds a file of the same name as one the simulator writes, and is not
 // a scenario folder written before, is refused (CheckFolder).
 func (s *Scenario) Write(dir string) (Files, error) {
@@ -49,7 +49,7 @@ func (s *Scenario) Write(dir string) (Files, error) {
 }
 
 // WriteContext is Write with the run's context, which carries its output
-// tracker (register/outfile); the writes are not cut short.
+// tracker (outfile); the writes are not cut short.
 func (s *Scenario) WriteContext(ctx context.Context, dir string) (Files, error) {
 	if err := CheckFolder(dir, FileNames()...); err != nil {
 		return Files{}, fmt.Errorf("simulate: %w", err)

@@ -7,7 +7,7 @@ import (
 	"path/filepath"
 	"sort"
 
-	"ferry/register/imaging"
+	"ferry/imaging"
 	"ferry/transform"
 )
 
@@ -67,7 +67,7 @@ func (s *Scenario) WriteImages(dir string, ip ImageParams) (stack, plane string,
 }
 
 // WriteImagesContext is WriteImages with the run's context, which carries
-// its output tracker (register/outfile); the writes are not cut short.
+// its output tracker (outfile); the writes are not cut short.
 func (s *Scenario) WriteImagesContext(ctx context.Context, dir string, ip ImageParams) (stack, plane string, err error) {
 	st, err := s.InVivoStack(ip)
 	if err != nil {

@@ -7,7 +7,7 @@ import (
 	"os"
 	"path/filepath"
 
-	"ferry/register/imaging"
+	"ferry/imaging"
 	"ferry/transform"
 )
 

@@ -8,7 +8,7 @@ import (
 	"io"
 	"os"
 
-	"ferry/register/outfile"
+	"ferry/outfile"
 )
 
 // WriteTIFF writes s as a classic little-endian multi-page TIFF: one
@@ -23,7 +23,7 @@ import (
 func WriteTIFF(path string, s *Stack) error { return WriteTIFFContext(context.Background(), path, s) }
 
 // WriteTIFFContext is WriteTIFF with the run's context, whose output tracker
-// (register/outfile) learns of the temporary file, so that a signal handler
+// (outfile) learns of the temporary file, so that a signal handler
 // can remove it. The write is not cut short by a cancelled ctx: a caller
 // checks for an interrupt before it starts.
 func WriteTIFFContext(ctx context.Context, path string, s *Stack) error {
@@ -86,7 +86,7 @@ func refuseOwnInput(path, input string) error {
 }
 
 // writeAtomic writes a file through fill, whole or not at all, by the one
-// output path every ferry command takes (register/outfile), which buffers
+// output path every ferry command takes (outfile), which buffers
 // fill's writes. A write of an image takes well under a second, so it is not
 // cancelled with ctx (a caller checks for an interrupt before it starts);
 // ctx only carries the output tracker.

@@ -6,7 +6,7 @@ import (
 	"os"
 	"path/filepath"
 
-	"ferry/register/simulate"
+	"ferry/simulate"
 )
 
 func Example() {
