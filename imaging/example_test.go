@@ -14,7 +14,7 @@ import (
 // The test stacks of testdata/images hold voxel values that follow a
 // pattern: (7i + 11j + 37k + 3) mod 256 for the 8-bit ones.
 func ExampleReadStack() {
-	s, err := imaging.ReadStack("../../testdata/images/stack8_lzw.tif")
+	s, err := imaging.ReadStack("../testdata/images/stack8_lzw.tif")
 	if err != nil {
 		log.Fatal(err)
 	}
@@ -121,7 +121,7 @@ func ExampleWarp() {
 func ExampleOpenVolume() {
 	// A crop of a stack on disk: only the pages and strips it needs are
 	// read, so the stack may be larger than memory.
-	v, err := imaging.OpenVolume("../../testdata/images/stack16_tiled.tif")
+	v, err := imaging.OpenVolume("../testdata/images/stack16_tiled.tif")
 	if err != nil {
 		log.Fatal(err)
 	}

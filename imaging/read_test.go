@@ -13,7 +13,7 @@ import (
 )
 
 // testdata is the folder written by testdata/images/make_images.py.
-const testdata = "../../testdata/images"
+const testdata = "../testdata/images"
 
 // The value patterns of make_images.py.
 func pattern8(i, j, k int) uint16  { return uint16((7*i + 11*j + 37*k + 3) % 256) }

@@ -45,7 +45,7 @@ func TestVolumeCrop(t *testing.T) {
 // rows, tiles, LZW, Deflate, PackBits, both byte orders; a folder of
 // planes) agree with the stacks read whole.
 func TestVolumeCropSamples(t *testing.T) {
-	dir := filepath.Join("..", "..", "testdata", "images")
+	dir := filepath.Join("..", "testdata", "images")
 	for _, name := range []string{"stack8_le.tif", "stack16_be.tif", "stack16_deflate.tif", "stack16_tiled.tif", "stack8_deflate_be.tif", "stack8_lzw.tif", "stack8_packbits.tif", "miniswhite8.tif", "planes", "plane16.png"} {
 		path := filepath.Join(dir, name)
 		whole, err := ReadStack(path)
@@ -94,7 +94,7 @@ func (c *countingReader) ReadAt(p []byte, off int64) (int, error) {
 func TestVolumeReadsOnlyWhatItNeeds(t *testing.T) {
 	checked := 0
 	for _, name := range []string{"stack16_tiled.tif", "stack8_lzw.tif", "stack8_le.tif"} {
-		v, err := OpenVolume(filepath.Join("..", "..", "testdata", "images", name))
+		v, err := OpenVolume(filepath.Join("..", "testdata", "images", name))
 		if err != nil {
 			t.Fatal(err)
 		}

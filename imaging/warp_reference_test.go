@@ -42,7 +42,7 @@ type warpReference struct {
 // (Exact) so that the comparison is of the interpolation and the inverse;
 // for the affine case, where the adaptive grid is exact too, also without.
 func TestWarpMatchesSciPy(t *testing.T) {
-	b, err := os.ReadFile(filepath.Join("..", "..", "testdata", "reference", "warp_reference.json"))
+	b, err := os.ReadFile(filepath.Join("..", "testdata", "reference", "warp_reference.json"))
 	if err != nil {
 		t.Fatal(err)
 	}
