@@ -85,3 +85,39 @@ func smoothingCosts(t *testing.T, p *Problem, w []float64, sms []float64) []floa
 	}
 	return out
 }
+
+// BenchmarkSmoothingSearch times one smoothing search of 1,000 landmarks
+// over the whole grid (the check's first search) and started from the
+// grid's best (every later search of the check, the sets differing by a
+// landmark or two). The figures go into docs/benchmarks.md.
+func BenchmarkSmoothingSearch(b *testing.B) {
+	rng := rand.New(rand.NewPCG(1000, 3))
+	p := synthetic(rng, 1000, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	w := equalWeights(p.Len())
+	first := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+	if _, err := chooseSmoothing(p, w, first); err != nil {
+		b.Fatal(err)
+	}
+	hint, ok := first.fits.smoothingHint()
+	if !ok {
+		b.Fatal("the whole grid chose S = 0: nothing to start from")
+	}
+	for _, c := range []struct {
+		name string
+		warm bool
+	}{{"whole", false}, {"warm", true}} {
+		b.Run(c.name, func(b *testing.B) {
+			cpu0 := cpuSeconds()
+			for b.Loop() {
+				s := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+				if c.warm {
+					s.fits.setSmoothingHint(hint)
+				}
+				if _, err := chooseSmoothing(p, w, s); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
+		})
+	}
+}
