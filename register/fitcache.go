@@ -41,6 +41,10 @@ func (c *fitCache) smoothingHint() (int, bool) {
 	return c.hint, c.hasHint
 }
 
+// searchWhole says whether every smoothing search covers the whole grid:
+// for a cache that is off, the reference the tests compare against.
+func (c *fitCache) searchWhole() bool { return c != nil && c.off }
+
 // setSmoothingHint remembers the grid index of a search's best, −1 for
 // S = 0.
 func (c *fitCache) setSmoothingHint(k int) {

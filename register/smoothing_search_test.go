@@ -10,8 +10,9 @@ import (
 
 // TestWarmSmoothingSearchMatchesWhole checks that the smoothing search
 // started from any point of the grid (as the check's later searches start
-// from the previous one's best) chooses the very S that the search of the
-// whole grid chooses, on warps that want little, some and much smoothing,
+// from the previous one's best), and the first search of a check (every
+// other point of the grid, then warm), choose the very S that the search
+// of the whole grid chooses, on warps that want little, some and much smoothing,
 // and that the warm start does answer without the whole grid on most of
 // them (else the test would only exercise the fallback).
 func TestWarmSmoothingSearchMatchesWhole(t *testing.T) {
@@ -33,7 +34,7 @@ func TestWarmSmoothingSearchMatchesWhole(t *testing.T) {
 		{"warped, noisy, one wrong", warpedTruth, 80, transform.Vec{2, 2, 4}, 1},
 		{"bump", bumps, 70, transform.Vec{0.5, 0.5, 1}, 0},
 	}
-	answered := 0
+	answered, firstAnswered := 0, 0
 	for i, tt := range tests {
 		rng := rand.New(rand.NewPCG(uint64(i+1), 11))
 		p := synthetic(rng, tt.n, tt.truth, tt.sd)
@@ -41,10 +42,19 @@ func TestWarmSmoothingSearchMatchesWhole(t *testing.T) {
 			p.Target[3+j][1] += 30
 		}
 		w := equalWeights(p.Len())
-		whole := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+		whole := Settings{Smoothing: Smoothing{Auto: true}, fits: &fitCache{off: true}}
 		want, err := chooseSmoothing(p, w, whole)
 		if err != nil {
 			t.Fatalf("%s: %v", tt.name, err)
+		}
+		first := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+		if got, err := chooseSmoothing(p, w, first); err != nil || math.Float64bits(got) != math.Float64bits(want) {
+			t.Errorf("%s, a check's first search: S = %v (%v), the whole grid gives %v", tt.name, got, err, want)
+		}
+		coarse := &smoothingSearch{unit: kernelScale(p), cost: map[float64]float64{}}
+		coarse.eval = func(sms []float64) []float64 { return smoothingCosts(t, p, w, sms) }
+		if _, ok := coarse.coarse(); ok {
+			firstAnswered++
 		}
 		for k := range smoothingGridLen {
 			s := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
@@ -63,7 +73,10 @@ func TestWarmSmoothingSearchMatchesWhole(t *testing.T) {
 			}
 		}
 	}
-	t.Logf("the warm start answered %d times of %d", answered, len(tests)*smoothingGridLen)
+	t.Logf("the warm start answered %d times of %d; the first search without the whole grid %d times of %d", answered, len(tests)*smoothingGridLen, firstAnswered, len(tests))
+	if firstAnswered == 0 {
+		t.Error("every first search fell back to the whole grid")
+	}
 	if answered < len(tests)*smoothingGridLen/3 {
 		t.Errorf("the warm start answered %d times of %d: the fallback did nearly all the work", answered, len(tests)*smoothingGridLen)
 	}
