@@ -100,9 +100,10 @@ func smoothingCosts(t *testing.T, p *Problem, w []float64, sms []float64) []floa
 }
 
 // BenchmarkSmoothingSearch times one smoothing search of 1,000 landmarks
-// over the whole grid (the check's first search) and started from the
-// grid's best (every later search of the check, the sets differing by a
-// landmark or two). The figures go into docs/benchmarks.md.
+// over the whole grid, as a check's first search (every other grid point,
+// then a walk) and started from the grid's best (every later search of the
+// check, the sets differing by a landmark or two). The figures go into
+// docs/benchmarks.md.
 func BenchmarkSmoothingSearch(b *testing.B) {
 	rng := rand.New(rand.NewPCG(1000, 3))
 	p := synthetic(rng, 1000, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
@@ -113,19 +114,24 @@ func BenchmarkSmoothingSearch(b *testing.B) {
 	}
 	hint, ok := first.fits.smoothingHint()
 	if !ok {
-		b.Fatal("the whole grid chose S = 0: nothing to start from")
+		b.Fatal("the search chose S = 0: nothing to start from")
 	}
 	for _, c := range []struct {
-		name string
-		warm bool
-	}{{"whole", false}, {"warm", true}} {
+		name  string
+		cache func() *fitCache
+	}{
+		{"whole", func() *fitCache { return &fitCache{off: true} }},
+		{"first", newFitCache},
+		{"warm", func() *fitCache {
+			c := newFitCache()
+			c.setSmoothingHint(hint)
+			return c
+		}},
+	} {
 		b.Run(c.name, func(b *testing.B) {
 			cpu0 := cpuSeconds()
 			for b.Loop() {
-				s := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
-				if c.warm {
-					s.fits.setSmoothingHint(hint)
-				}
+				s := Settings{Smoothing: Smoothing{Auto: true}, fits: c.cache()}
 				if _, err := chooseSmoothing(p, w, s); err != nil {
 					b.Fatal(err)
 				}
