@@ -22,6 +22,38 @@ type fitCache struct {
 	fits map[fitKey][]fitEntry
 	// off makes a cache that never answers, for the tests that compare.
 	off bool
+	// hint is the grid index of the last smoothing search's best
+	// (chooseSmoothing), where the next search of the check starts; hasHint
+	// is false before the first search and after one that chose S = 0.
+	hint    int
+	hasHint bool
+}
+
+// smoothingHint returns where the check's next smoothing search starts.
+// A cache that is off never hints: every search then covers the whole
+// grid, which the tests compare against.
+func (c *fitCache) smoothingHint() (int, bool) {
+	if c == nil || c.off {
+		return 0, false
+	}
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.hint, c.hasHint
+}
+
+// searchWhole says whether every smoothing search covers the whole grid:
+// for a cache that is off, the reference the tests compare against.
+func (c *fitCache) searchWhole() bool { return c != nil && c.off }
+
+// setSmoothingHint remembers the grid index of a search's best, −1 for
+// S = 0.
+func (c *fitCache) setSmoothingHint(k int) {
+	if c == nil || c.off {
+		return
+	}
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.hint, c.hasHint = k, k >= 0
 }
 
 // fitKey is a hash of a fit's inputs; fitEntry keeps the inputs in full so
