@@ -116,8 +116,8 @@ type Assessment struct {
 	Scale       transform.Vec
 	Calibration Calibration
 	// CalibrationByStatus splits Calibration by the status each landmark
-	// would have on the map when predicted from the others: StatusOK
-	// inside their hull, StatusExtrapolated outside.
+	// would have on the map when predicted from the others: status.OK
+	// inside their hull, status.Extrapolated outside.
 	CalibrationByStatus map[string]Calibration
 	// FlagLimit is the most landmarks the check could flag: 0 when the set
 	// is too small for any to be told wrong.

@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"ferry/internal/parallel"
 	"ferry/landmarks"
 	"ferry/transform"
 )
@@ -393,7 +394,7 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 			}
 		}
 		trials, errs := make([]*trial, len(grid)), make([]error, len(grid))
-		transform.ParallelRanges(len(grid), 1, func(lo, hi int) {
+		parallel.Ranges(len(grid), 1, func(lo, hi int) {
 			for i := lo; i < hi; i++ {
 				trials[i], errs[i] = try(grid[i][0], grid[i][1], kinds0)
 			}
@@ -436,7 +437,7 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 				}
 				// As the grid: side by side, considered in order.
 				ts, errs := make([]*trial, len(kns)), make([]error, len(kns))
-				transform.ParallelRanges(len(kns), 1, func(lo, hi int) {
+				parallel.Ranges(len(kns), 1, func(lo, hi int) {
 					for i := lo; i < hi; i++ {
 						ts[i], errs[i] = try(base.nu, base.length, kns[i])
 					}

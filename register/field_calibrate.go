@@ -7,6 +7,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -112,14 +113,14 @@ func calibrateField(res *transform.Result, src []transform.Vec, w []float64, kin
 	if err != nil {
 		return nil, nil, err
 	}
-	status := looStatus(src, dim)
+	looSt := looStatus(src, dim)
 	g := *f
 	for k := range dim {
 		var sum, n [2]float64 // inside, on the hull
 		for i, e := range res.LOO {
 			if v[i][k] > 0 {
 				grp := 0
-				if status[i] == string(StatusExtrapolated) {
+				if looSt[i] == string(status.Extrapolated) {
 					grp = 1
 				}
 				sum[grp] += e[k] * e[k] / v[i][k]
@@ -138,7 +139,7 @@ func calibrateField(res *transform.Result, src []transform.Vec, w []float64, kin
 		g.Amplitude[k] *= c[0]
 		g.Outside[k] = c[1] / c[0]
 		for i := range v {
-			if status[i] == string(StatusExtrapolated) {
+			if looSt[i] == string(status.Extrapolated) {
 				v[i][k] *= c[1]
 			} else {
 				v[i][k] *= c[0]

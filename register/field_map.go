@@ -8,6 +8,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"ferry/internal/parallel"
 	"ferry/landmarks"
 	"ferry/register/internal/hull"
 	"ferry/transform"
@@ -302,7 +303,7 @@ func (g *fieldGrid) at(x transform.Vec, dim int) transform.Vec {
 func (f *fieldMapper) exactVariances(xs []transform.Vec) []transform.Vec {
 	out := make([]transform.Vec, len(xs))
 	const block = 256
-	transform.ParallelRanges((len(xs)+block-1)/block, 1, func(lo, hi int) {
+	parallel.Ranges((len(xs)+block-1)/block, 1, func(lo, hi int) {
 		for b := lo; b < hi; b++ {
 			s, e := b*block, min((b+1)*block, len(xs))
 			a, err := f.weigh(xs[s:e])

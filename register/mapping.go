@@ -13,18 +13,6 @@ import (
 	"ferry/transform"
 )
 
-// The statuses of a mapped point under their former names.
-//
-// Deprecated: the statuses are package status's; these names stay until
-// the packages that still use them move over.
-const (
-	StatusNoInverse    = status.NoInverse
-	StatusFolded       = status.Folded
-	StatusExtrapolated = status.Extrapolated
-	StatusIsolated     = status.Isolated
-	StatusOK           = status.OK
-)
-
 // Mapped is one mapped point with its uncertainty.
 type Mapped struct {
 	// Pos is the mapped position (µm); meaningless when Status is

@@ -7,6 +7,8 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/lapack/gonum"
+
+	"ferry/internal/parallel"
 )
 
 // ProjectedSym is a symmetric matrix K (N×N) projected on the contrasts
@@ -180,7 +182,7 @@ func (s *ProjectedSym) LeaveOneOut(t []float64, lambda float64) (gii, gy []float
 		x[j] -= l[j] * x[j+1]
 	}
 	gii, gy = make([]float64, N), make([]float64, N)
-	ParallelRanges(N, 32, func(lo, hi int) {
+	parallel.Ranges(N, 32, func(lo, hi int) {
 		for r := lo; r < hi; r++ {
 			row := s.basis[r*n : (r+1)*n]
 			diag, dot, z := 0.0, 0.0, 0.0
@@ -216,7 +218,7 @@ func (s *ProjectedSym) formBasis() {
 	copy(b[m*n:], q)
 	const block = 64
 	nb := (n + block - 1) / block
-	ParallelRanges(nb, 1, func(b0, b1 int) {
+	parallel.Ranges(nb, 1, func(b0, b1 int) {
 		for c := b0; c < b1; c++ {
 			c0, c1 := c*block, min((c+1)*block, n)
 			for k := m - 1; k >= 0; k-- {

@@ -10,6 +10,8 @@ import (
 	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/lapack/lapack64"
 	"gonum.org/v1/gonum/mat"
+
+	"ferry/internal/parallel"
 )
 
 // The thin-plate spline of the contract (Bookstein 1989, IEEE TPAMI
@@ -948,7 +950,7 @@ func (sys *splineSystem) inverseDiagonal() ([]float64, error) {
 	const block = 64
 	nb := (n + block - 1) / block
 	parts := make([]float64, nb*N)
-	ParallelRanges(nb, 1, func(b0, b1 int) {
+	parallel.Ranges(nb, 1, func(b0, b1 int) {
 		for b := b0; b < b1; b++ {
 			c0, c1 := b*block, min((b+1)*block, n)
 			for k := m - 1; k >= 0; k-- {
@@ -1093,4 +1095,4 @@ func (sys *splineSystem) looFromDiagonal(w []Vec) (loo []Vec, factor []float64, 
 
 // parallelRows runs work over [0, n) on all cores for work of O(n) or more
 // per index.
-func parallelRows(n int, work func(lo, hi int)) { ParallelRanges(n, 64, work) }
+func parallelRows(n int, work func(lo, hi int)) { parallel.Ranges(n, 64, work) }

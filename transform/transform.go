@@ -161,13 +161,6 @@ func ApplyAll(t Transform, dst, src []Vec) {
 	})
 }
 
-// ParallelRanges is parallel.Ranges, kept while the packages that still
-// call it by this name move over.
-//
-// Deprecated: geometry is no place for a worker pool; use
-// ferry/internal/parallel.Ranges.
-func ParallelRanges(n, minChunk int, work func(lo, hi int)) { parallel.Ranges(n, minChunk, work) }
-
 // Det is the determinant of m.
 func (m Mat) Det() float64 {
 	return m[0][0]*(m[1][1]*m[2][2]-m[1][2]*m[2][1]) -

@@ -17,16 +17,6 @@ import (
 	"ferry/transform"
 )
 
-// The statuses of a match under their former names.
-//
-// Deprecated: the statuses are package status's; these names stay until
-// the packages that still use them move over.
-const (
-	StatusMatched   = status.Matched
-	StatusAmbiguous = status.Ambiguous
-	StatusUnmatched = status.Unmatched
-)
-
 // The defaults of Options.
 const (
 	// DefaultCandidateSD (µm, per axis) is the offset between a candidate's
@@ -92,7 +82,7 @@ type Options struct {
 	// means it is estimated from the cells (see the package documentation).
 	PriorCounterpart float64
 	// MinPMatch is the posterior probability from which an assignment is
-	// StatusMatched, in (0.5, 1). Zero means DefaultMinPMatch.
+	// status.Matched, in (0.5, 1). Zero means DefaultMinPMatch.
 	MinPMatch float64
 	// Decisions, when not nil, are a person's verdicts by index into the
 	// cells and candidates: an accepted cell is given its candidate (with
@@ -196,7 +186,7 @@ func MatchMapped(mapped []register.Mapped, cands []transform.Vec, opt Options) (
 		return nil, err
 	}
 	for i, mp := range mapped {
-		if mp.Status != register.StatusNoInverse && !mp.Pos.IsFinite() {
+		if mp.Status != status.NoInverse && !mp.Pos.IsFinite() {
 			return nil, fmt.Errorf("match: cell %s has a mapped position that is not finite", opt.cellName(i))
 		}
 	}
@@ -308,7 +298,7 @@ func matchReachable(mapped []register.Mapped, cands []transform.Vec, opt Options
 		pos := flatten(mapped[i].Pos, opt.Dim)
 		switch {
 		case out.Candidate < 0:
-			out.Status = StatusUnmatched
+			out.Status = status.Unmatched
 			out.PMatch = out.PNone
 			if _, d := sp.tree.nearest(pos); sp.tree.n > 0 {
 				out.DistanceUM = d
@@ -317,14 +307,14 @@ func matchReachable(mapped []register.Mapped, cands []transform.Vec, opt Options
 			out.DistanceUM = ranked[chosen[r]].Sub(pos).Norm()
 			// A folded mapping is not one-to-one here: its position cannot
 			// be trusted, so its match is never called clear.
-			if out.PMatch >= opt.MinPMatch && mapped[i].Status != register.StatusFolded {
-				out.Status = StatusMatched
+			if out.PMatch >= opt.MinPMatch && mapped[i].Status != status.Folded {
+				out.Status = status.Matched
 			} else {
-				out.Status = StatusAmbiguous
+				out.Status = status.Ambiguous
 			}
 		}
 		if j, ok := opt.Decisions.accepted(i); ok {
-			out = Result{Candidate: j, PMatch: 1, RunnerUp: -1, Status: StatusMatched, Decision: "accepted",
+			out = Result{Candidate: j, PMatch: 1, RunnerUp: -1, Status: status.Matched, Decision: "accepted",
 				DistanceUM: flatten(cands[j], opt.Dim).Sub(pos).Norm(), Outside: o.outside, InReach: o.inReach,
 				Mapped: mapped[i], Prior: out.Prior, PriorCounterpart: prior}
 		} else if opt.Decisions != nil && opt.Decisions.None[i] {
@@ -494,7 +484,7 @@ type cellOptions struct {
 // options weighs the candidates near one mapped cell.
 func (sp *space) options(mp register.Mapped) cellOptions {
 	var o cellOptions
-	if sp.tree.n == 0 || mp.Status == register.StatusNoInverse {
+	if sp.tree.n == 0 || mp.Status == status.NoInverse {
 		return o
 	}
 	dim := sp.dim

@@ -3,8 +3,8 @@ package refine
 import (
 	"math"
 
-	"ferry/register"
 	"ferry/register/match"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -55,7 +55,7 @@ func (r *refiner) calibrate(st *fitState, rounds int) error {
 				j int
 				p float64
 			}{{m.Candidate, m.PMatch}, {m.RunnerUp, m.PRunnerUp}} {
-				if c.j < 0 || c.p <= 0 || m.Mapped.Status == register.StatusFolded {
+				if c.j < 0 || c.p <= 0 || m.Mapped.Status == status.Folded {
 					continue
 				}
 				e := r.candPos[c.j].Sub(m.Mapped.Pos)

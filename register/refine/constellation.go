@@ -7,6 +7,7 @@ import (
 	"gonum.org/v1/gonum/spatial/kdtree"
 
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -82,7 +83,7 @@ func (r *refiner) localShifts(mapped []register.Mapped) ([]transform.Vec, []bool
 	candTree := kdtree.New(cands, false)
 	// Each soma's votes: its candidates' offsets from its mapped position.
 	usable := func(m register.Mapped) bool {
-		return m.Status != register.StatusNoInverse && m.Status != register.StatusFolded &&
+		return m.Status != status.NoInverse && m.Status != status.Folded &&
 			m.Pos.IsFinite() && m.R95 > 0 && !math.IsInf(m.R95, 0)
 	}
 	votes := make([][]transform.Vec, n)

@@ -7,6 +7,7 @@ import (
 
 	"ferry/register"
 	"ferry/register/match"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -36,12 +37,12 @@ func evaluate(t testing.TB, s *scenario, f *transform.File) scores {
 			withCounterpart++
 		}
 		switch r.Status {
-		case match.StatusMatched:
+		case status.Matched:
 			sc.Matched++
 			if r.Candidate == s.Counterpart[i] {
 				right++
 			}
-		case match.StatusAmbiguous:
+		case status.Ambiguous:
 			sc.Ambiguous++
 		}
 	}

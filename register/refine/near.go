@@ -4,6 +4,7 @@ import (
 	"math"
 
 	"ferry/register"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -33,7 +34,7 @@ func nearCandidates(mapper *register.Mapper, somata []transform.Vec, cellSD *tra
 	}
 	marked := map[[3]int]bool{}
 	for _, m := range mapped {
-		if m.Status == register.StatusNoInverse || !m.Pos.IsFinite() {
+		if m.Status == status.NoInverse || !m.Pos.IsFinite() {
 			continue
 		}
 		d := nearMarginUM + nearR95s*m.R95

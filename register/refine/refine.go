@@ -11,6 +11,7 @@ import (
 	"ferry/progress"
 	"ferry/register"
 	"ferry/register/match"
+	"ferry/status"
 	"ferry/transform"
 )
 
@@ -482,7 +483,7 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64, propos
 		if m.Decision != "" {
 			continue
 		}
-		if m.Status != match.StatusMatched || m.PMatch < threshold || m.PRunnerUp > 1-threshold {
+		if m.Status != status.Matched || m.PMatch < threshold || m.PRunnerUp > 1-threshold {
 			continue
 		}
 		if apply != nil && apply[i] {

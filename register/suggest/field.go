@@ -6,6 +6,7 @@ import (
 	"math"
 	"sort"
 
+	"ferry/internal/parallel"
 	"ferry/register"
 	"ferry/transform"
 )
@@ -116,7 +117,7 @@ func fieldGreedy(g *register.FieldGain, mapper *register.Mapper, xs, zs []transf
 	var chosen []int
 	score := make([]float64, Z)
 	for range n {
-		transform.ParallelRanges(Z, 16, func(lo, hi int) {
+		parallel.Ranges(Z, 16, func(lo, hi int) {
 			for j := lo; j < hi; j++ {
 				if taken[j] {
 					score[j] = math.Inf(1)

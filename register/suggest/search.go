@@ -8,6 +8,7 @@ import (
 	"sync"
 	"sync/atomic"
 
+	"ferry/internal/parallel"
 	"ferry/transform"
 )
 
@@ -68,7 +69,7 @@ func forCandidates(count, n int, work func(j int, scratch []float64)) {
 
 // parallelRange runs work over [0, n) on all cores, for work of O(cells)
 // or more per index.
-func parallelRange(n int, work func(lo, hi int)) { transform.ParallelRanges(n, 64, work) }
+func parallelRange(n int, work func(lo, hi int)) { parallel.Ranges(n, 64, work) }
 
 // radiusKnots is the number of knots of a cell's table of r95 against its
 // remaining variance.

@@ -54,8 +54,8 @@ type Suggestion struct {
 	// covariance of the current fit there, picking noise included.
 	TargetSD  transform.Vec
 	TargetR95 float64
-	// Status is the map status of the location (register.StatusOK,
-	// StatusExtrapolated, …).
+	// Status is the map status of the location (status.OK,
+	// status.Extrapolated, …).
 	Status string
 	// R95After is the median r95 (µm) of the cells once suggestions 1 to
 	// Rank are added, and Gain (µm) how much this one lowered it.
