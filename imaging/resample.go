@@ -154,16 +154,7 @@ func ResampleWithReport(t transform.Transform, src *Stack, srcVoxel transform.Ve
 	}
 	out.Geometry = grid.Geometry()
 
-	mapPoint := func(q transform.Vec) (transform.Vec, bool) {
-		p, err := t.Invert(q)
-		return p, err == nil && p.IsFinite()
-	}
-	if opt.Inverse {
-		mapPoint = func(q transform.Vec) (transform.Vec, bool) {
-			p := t.Apply(q)
-			return p, p.IsFinite()
-		}
-	}
+	mapPoint := targetToSource(t, opt.Inverse)
 	f := &field{grid: grid, mapPoint: mapPoint, check: tol / 2, exact: opt.Exact}
 	smp := newSampler(src, srcVoxel, opt.StackOrigin)
 	var outside, failed atomic.Int64
@@ -299,3 +290,19 @@ func (sm *sampler) sampleRow(out []uint16, pos []transform.Vec, ok []bool) (outs
 }
 
 func lerp(a, b, t float64) float64 { return a + t*(b-a) }
+
+// targetToSource maps an output (target) point back to where it is read in
+// the source stack: through t's inverse, or through t itself when t maps
+// target to source (inverse). The point is false where there is none.
+func targetToSource(t transform.Transform, inverse bool) func(q transform.Vec) (transform.Vec, bool) {
+	if inverse {
+		return func(q transform.Vec) (transform.Vec, bool) {
+			p := t.Apply(q)
+			return p, p.IsFinite()
+		}
+	}
+	return func(q transform.Vec) (transform.Vec, bool) {
+		p, err := t.Invert(q)
+		return p, err == nil && p.IsFinite()
+	}
+}

@@ -150,48 +150,35 @@ func (t *tiffWriter) finish() error {
 	resAt := extraAt
 	descAt := resAt + 16
 	desc := l.description()
-	const short, long, ascii, rat = 3, 4, 2, 5
 	at := ifdAt
 	for k := range l.depth {
 		size := l.ifdSize(k)
 		n := (size - 6) / 12
 		ifd := make([]byte, size)
 		le.PutUint16(ifd, uint16(n))
-		e := 0
-		put := func(tag, typ uint16, count, value uint32) {
-			b := ifd[2+12*e:]
-			e++
-			le.PutUint16(b, tag)
-			le.PutUint16(b[2:], typ)
-			le.PutUint32(b[4:], count)
-			if typ == short && count == 1 {
-				le.PutUint16(b[8:], uint16(value))
-			} else {
-				le.PutUint32(b[8:], value)
-			}
-		}
+		put := (&ifdEntries{dir: ifd}).put
 		// Entries in ascending tag order, as TIFF 6.0 requires.
-		put(254, long, 1, 0) // NewSubfileType: a full-resolution image
-		put(tagImageWidth, long, 1, uint32(l.width))
-		put(tagImageLength, long, 1, uint32(l.height))
-		put(tagBitsPerSample, short, 1, uint32(l.bits))
-		put(tagCompression, short, 1, compNone)
-		put(tagPhotometric, short, 1, photoBlackIsZero)
+		put(254, tiffLong, 1, 0) // NewSubfileType: a full-resolution image
+		put(tagImageWidth, tiffLong, 1, uint32(l.width))
+		put(tagImageLength, tiffLong, 1, uint32(l.height))
+		put(tagBitsPerSample, tiffShort, 1, uint32(l.bits))
+		put(tagCompression, tiffShort, 1, compNone)
+		put(tagPhotometric, tiffShort, 1, photoBlackIsZero)
 		if k == 0 && l.calibrated() {
-			put(tagDescription, ascii, uint32(len(desc)), uint32(descAt))
+			put(tagDescription, tiffASCII, uint32(len(desc)), uint32(descAt))
 		}
-		put(tagStripOffsets, long, 1, uint32(tiffHeaderSize+int64(k)*l.planeBytes()))
-		put(tagSamplesPerPixel, short, 1, 1)
-		put(tagRowsPerStrip, long, 1, uint32(l.height))
-		put(tagStripByteCounts, long, 1, uint32(l.planeBytes()))
+		put(tagStripOffsets, tiffLong, 1, uint32(tiffHeaderSize+int64(k)*l.planeBytes()))
+		put(tagSamplesPerPixel, tiffShort, 1, 1)
+		put(tagRowsPerStrip, tiffLong, 1, uint32(l.height))
+		put(tagStripByteCounts, tiffLong, 1, uint32(l.planeBytes()))
 		if l.calibrated() {
-			put(tagXResolution, rat, 1, uint32(resAt))
-			put(tagYResolution, rat, 1, uint32(resAt+8))
+			put(tagXResolution, tiffRational, 1, uint32(resAt))
+			put(tagYResolution, tiffRational, 1, uint32(resAt+8))
 			// ImageJ's convention: no absolute unit here, the micron in
 			// the description.
-			put(tagResolutionUnit, short, 1, resUnitNone)
+			put(tagResolutionUnit, tiffShort, 1, resUnitNone)
 		}
-		put(tagSampleFormat, short, 1, 1)
+		put(tagSampleFormat, tiffShort, 1, 1)
 		next := uint32(0)
 		if k+1 < l.depth {
 			next = uint32(at + size)

@@ -190,16 +190,7 @@ func Warp(ctx context.Context, path string, t transform.Transform, src Pages, g 
 	pageBytes := int64(h.Width) * int64(h.Height) * 2
 	maxPages := max(int(budget/pageBytes), 2)
 
-	mapPoint := func(q transform.Vec) (transform.Vec, bool) {
-		p, err := t.Invert(q)
-		return p, err == nil && p.IsFinite()
-	}
-	if opt.Inverse {
-		mapPoint = func(q transform.Vec) (transform.Vec, bool) {
-			p := t.Apply(q)
-			return p, p.IsFinite()
-		}
-	}
+	mapPoint := targetToSource(t, opt.Inverse)
 	pages := make([][]uint16, h.Depth)
 	var loaded []int // page indices held, oldest first
 	smp := newPageSampler(pages, h.Width, h.Height, g.VoxelUM, g.OriginUM)

@@ -107,19 +107,8 @@ func WriteFloat32TIFF(w io.Writer, s *Float32Stack) error {
 		n := entries(p)
 		dir := make([]byte, dirBytes(p))
 		le.PutUint16(dir, uint16(n))
-		slot := 0
-		put := func(tag, typ uint16, count, value uint32) {
-			e := dir[2+12*slot:]
-			slot++
-			le.PutUint16(e, tag)
-			le.PutUint16(e[2:], typ)
-			le.PutUint32(e[4:], count)
-			if typ == tiffShort && count == 1 {
-				le.PutUint16(e[8:], uint16(value))
-			} else {
-				le.PutUint32(e[8:], value)
-			}
-		}
+		filled := &ifdEntries{dir: dir}
+		put := filled.put
 		rationals := uint32(at + 2 + 12*n + 4)
 		// Entries in ascending tag order, as TIFF 6.0 requires.
 		put(254, tiffLong, 1, 0) // NewSubfileType: a full-resolution image
@@ -139,8 +128,8 @@ func WriteFloat32TIFF(w io.Writer, s *Float32Stack) error {
 		put(283, tiffRational, 1, rationals+8)       // YResolution
 		put(296, tiffShort, 1, 1)                    // ResolutionUnit: none; the unit is in the description
 		put(339, tiffShort, 1, 3)                    // SampleFormat: IEEE floating point
-		if int64(slot) != n {
-			return fmt.Errorf("imaging: float32 TIFF directory of %d entries, %d written", n, slot)
+		if int64(filled.slot) != n {
+			return fmt.Errorf("imaging: float32 TIFF directory of %d entries, %d written", n, filled.slot)
 		}
 		next := uint32(0)
 		if p+1 < pages {
@@ -169,6 +158,29 @@ const (
 	tiffLong     = 4
 	tiffRational = 5
 )
+
+// ifdEntries fills the 12-byte entries of one little-endian image file
+// directory in order, from its third byte (after the entry count).
+type ifdEntries struct {
+	dir  []byte
+	slot int
+}
+
+// put writes the next entry: a single SHORT value sits in the first two
+// bytes of the value field, anything else as a LONG value or offset.
+func (d *ifdEntries) put(tag, typ uint16, count, value uint32) {
+	e := d.dir[2+12*d.slot:]
+	d.slot++
+	le := binary.LittleEndian
+	le.PutUint16(e, tag)
+	le.PutUint16(e[2:], typ)
+	le.PutUint32(e[4:], count)
+	if typ == tiffShort && count == 1 {
+		le.PutUint16(e[8:], uint16(value))
+	} else {
+		le.PutUint32(e[8:], value)
+	}
+}
 
 // hyperstackDescription is the ImageJ hyperstack description of s (channels
 // and slices, where imageJDescription knows only slices), NUL terminated as
