@@ -4,12 +4,11 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
 
 	"gonum.org/v1/gonum/mat"
 
 	"ferry/internal/errkind"
+	"ferry/internal/parallel"
 )
 
 // Linear is the map p ↦ A·p + T: a translation, a rigid motion (a rotation,
@@ -572,30 +571,16 @@ func flatShape(dim int) string {
 }
 
 // forEach runs work(i) for i in [0, n) on all cores and returns the error of
-// the lowest index that failed. Each call is expected to cost O(n), so the
-// work is split even for a few dozen indices.
+// the lowest index that failed. Each call costs O(n) and about the same as
+// every other, so the indices are split in even ranges, and already for a
+// few dozen of them.
 func forEach(n int, work func(i int) error) error {
 	errs := make([]error, n)
-	workers := min(runtime.GOMAXPROCS(0), n/16)
-	if workers < 2 {
-		for i := range n {
+	parallel.Ranges(n, 16, func(lo, hi int) {
+		for i := lo; i < hi; i++ {
 			errs[i] = work(i)
 		}
-	} else {
-		var wg sync.WaitGroup
-		for w := range workers {
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				// Interleaved indices balance the load when some
-				// refits fail early.
-				for i := w; i < n; i += workers {
-					errs[i] = work(i)
-				}
-			}()
-		}
-		wg.Wait()
-	}
+	})
 	for _, err := range errs {
 		if err != nil {
 			return err

@@ -5,13 +5,12 @@ import (
 	"ferry/progress"
 	"fmt"
 	"math"
-	"runtime"
 	"slices"
 	"sort"
-	"sync"
 
 	"gonum.org/v1/gonum/mat"
 
+	"ferry/internal/parallel"
 	"ferry/register"
 	"ferry/status"
 	"ferry/transform"
@@ -229,32 +228,14 @@ func matchReachable(mapped []register.Mapped, cands []transform.Vec, opt Options
 	rep := progress.Of(opt.Progress)
 	rep.Step(fmt.Sprintf("weighing %d candidates for %d cells", len(cands), len(mapped)), len(mapped))
 	defer rep.Finish()
-	workers := max(1, min(runtime.GOMAXPROCS(0), len(mapped)/64))
-	var wg sync.WaitGroup
-	var next sync.Mutex
-	cursor := 0
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for {
-				next.Lock()
-				lo := cursor
-				cursor += 64
-				next.Unlock()
-				if lo >= len(mapped) {
-					return
-				}
-				hi := min(lo+64, len(mapped))
-				for r := lo; r < hi; r++ {
-					i := cellOrder[r]
-					opts[r] = sp.options(mapped[i])
-				}
-				rep.Add(hi - lo)
-			}
-		}()
-	}
-	wg.Wait()
+	// Blocks of 64 cells go to whichever core is free: a cell's cost
+	// depends on how many candidates it reaches.
+	parallel.Blocks(len(mapped), 64, func() struct{} { return struct{}{} }, func(_ struct{}, lo, hi int) {
+		for r := lo; r < hi; r++ {
+			opts[r] = sp.options(mapped[cellOrder[r]])
+		}
+		rep.Add(hi - lo)
+	})
 
 	if opt.Decisions.Len() > 0 {
 		applyDecisions(opts, opt.Decisions, cellOrder, candOrder)
