@@ -101,7 +101,12 @@ func refineAndScore(t testing.TB, s *scenario, withBefore bool) (before, after s
 	return before, after, res
 }
 
-var refineSeeds = flag.Int("refine-seeds", 2, "seeds per scenario of TestRefineFamilies")
+var (
+	refineSeeds     = flag.Int("refine-seeds", 2, "seeds per scenario of TestRefineFamilies")
+	refineFirstSeed = flag.Int("refine-first-seed", 1, "first seed of TestRefineFamilies")
+	refineWarp      = flag.String("refine-warp", "", "run TestRefineFamilies on this warp kind only (polynomial, bumps, compression, shear)")
+	refineLandmarks = flag.Int("refine-landmarks", 0, "run TestRefineFamilies on the configuration with this many landmarks only (48 or 24)")
+)
 
 // TestRefineFamilies refines scenarios of our own making (scenario_test.go:
 // four warp kinds; 48 landmarks with in vivo z sd 1 µm, 24 landmarks with z
@@ -115,8 +120,9 @@ var refineSeeds = flag.Int("refine-seeds", 2, "seeds per scenario of TestRefineF
 // sections reached 0.918) at precision ≥ 0.99 in every scenario and median
 // error ≤ 2.8 µm (target 3.0); in every scenario the 95 % radius holds
 // 90–99 % of the true positions, and the landmarks are not predicted
-// worse. Run with -v to see the figures, and -refine-seeds=N for more
-// seeds.
+// worse. Run with -v to see the figures, -refine-seeds=N for more
+// seeds (from -refine-first-seed), and -refine-warp and -refine-landmarks
+// to run one family.
 //
 // The methods under test: annealed correspondences with an outlier option
 // and a thin-plate spline after robust point matching (Chui & Rangarajan
@@ -139,11 +145,17 @@ func TestRefineFamilies(t *testing.T) {
 	}
 	configs := []config{{48, 1, 0.97, 0.995, 1.8}, {24, 3, 0.90, 0.99, 2.8}}
 	for _, c := range configs {
+		if *refineLandmarks != 0 && c.landmarks != *refineLandmarks {
+			continue
+		}
 		for _, w := range warpKinds {
+			if *refineWarp != "" && string(w) != *refineWarp {
+				continue
+			}
 			var sum, worst scores
 			worst.Recall, worst.Precision = 1, 1
 			n := 0
-			for seed := 1; seed <= *refineSeeds; seed++ {
+			for seed := *refineFirstSeed; seed < *refineFirstSeed+*refineSeeds; seed++ {
 				s := newScenario(defaultParams(w, c.landmarks, c.zSD), uint64(seed))
 				before, after, res := runScenario(t, s)
 				t.Logf("%-11s %d landmarks, z sd %g, seed %d: before %v\n    after %v; %d pairs, %d rounds, landmark LOO RMS %.2f → %.2f µm",
