@@ -14,8 +14,13 @@ import (
 // The defaults of Options, stated in docs/methods.md.
 const (
 	// DefaultMinP is the posterior probability from which a pair becomes a
-	// pseudo-landmark in the last rounds.
-	DefaultMinP = 0.99
+	// pseudo-landmark in the last rounds: that from which match calls a
+	// cell matched. A stricter threshold keeps the pairs out of exactly the
+	// regions the fit maps worst (a right pair's probability falls where
+	// its soma is mapped off), so the spline never learns the warp there;
+	// a pair let in is confirmed each round by the spline refitted without
+	// it (the held-out prediction) or dropped.
+	DefaultMinP = match.DefaultMinPMatch
 	// DefaultMaxRounds bounds the rounds of matching and refitting.
 	DefaultMaxRounds = 12
 	// DefaultMaxNodes bounds the nodes of the refined spline, landmarks
