@@ -113,11 +113,11 @@ var (
 // sd 3 µm; 5 % of the cells without a counterpart) and holds the refined
 // registration, in every family, to the targets of docs/refine.md and to
 // what it reached there (seeds 1–3, 2026-12-02): with 48 landmarks mean
-// recall ≥ 0.97 (the sheared sections reached 0.969 over seeds 1–3, 0.981 over
-// the default seeds 1–2) at precision ≥ 0.995
-// in every scenario and median error ≤ 1.8 µm (target 2.1); with 24
-// landmarks and z sd 3 µm mean recall ≥ 0.90 (target 0.85; the sheared
-// sections reached 0.918) at precision ≥ 0.99 in every scenario and median
+// recall ≥ 0.97 (the sheared sections reached 0.976 over seeds 1–3, 0.986
+// over the default seeds 1–2) at precision ≥ 0.995 in every scenario and
+// median error ≤ 1.8 µm (target 2.1); with 24 landmarks and z sd 3 µm mean
+// recall ≥ 0.90 (target 0.85; the sheared sections reached 0.939) at
+// precision ≥ 0.99 in every scenario and median
 // error ≤ 2.8 µm (target 3.0); in every scenario the 95 % radius holds
 // 90–99 % of the true positions, and the landmarks are not predicted
 // worse. Run with -v to see the figures, -refine-seeds=N for more
