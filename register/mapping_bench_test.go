@@ -155,3 +155,41 @@ func BenchmarkMapJob(b *testing.B) {
 	}
 	b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
 }
+
+// BenchmarkCheck400 is the check of 400 landmarks of a warped volume with
+// the spline and its smoothing given (the check the scripted brute-force
+// leave-one-out of testdata/bench/scripted.py is compared with): the exact
+// leave-one-out, the error model, the flags and the calibration.
+// docs/benchmarks.md has its figures and where its time goes.
+func BenchmarkCheck400(b *testing.B) {
+	rng := rand.New(rand.NewPCG(400, 3))
+	p := synthetic(rng, 400, warpedTruth, transform.Vec{0.8, 0.8, 2.5})
+	b.Run("loo-alone", func(b *testing.B) {
+		// The spline's fit with its exact leave-one-out and nothing else:
+		// what the brute-force refits compute.
+		cpu0 := cpuSeconds()
+		for b.Loop() {
+			if _, err := transform.Fit(transform.TPS, 3, p.Source, p.Target, transform.Options{LeaveOneOut: true}); err != nil {
+				b.Fatal(err)
+			}
+		}
+		b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
+	})
+	for _, c := range []struct {
+		name string
+		s    Settings
+	}{
+		{"tps-s0", Settings{Model: transform.TPS, Smoothing: Smoothing{Value: 0}}},
+		{"default", Settings{Smoothing: Smoothing{Auto: true}}},
+	} {
+		b.Run(c.name, func(b *testing.B) {
+			cpu0 := cpuSeconds()
+			for b.Loop() {
+				if _, err := Assess(p, c.s); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
+		})
+	}
+}
