@@ -366,18 +366,25 @@ func (f *fieldMapper) exactVariances(xs []transform.Vec) []transform.Vec {
 			}
 			var ra mat.Dense
 			ra.Mul(f.corr, a)
-			n := len(f.src)
-			for i := s; i < e; i++ {
-				c := i - s
-				rho, aRa, ada := 0.0, 0.0, 0.0
-				for j := range n {
-					aj := a.At(j, c)
-					rho += aj * f.params.corr(xs[i].Sub(f.src[j]).Norm())
-					aRa += aj * ra.At(j, c)
-					ada += aj * aj * f.d[j]
+			// Row by row, each point's sums over the landmarks in the
+			// landmarks' order: the rows of a and ra are read where they
+			// lie, where a point's column strides across them.
+			n, pts := len(f.src), e-s
+			sums := make([]float64, 3*pts)
+			rho, aRa, ada := sums[:pts], sums[pts:2*pts], sums[2*pts:]
+			for j := range n {
+				aj, raj := a.RawRowView(j), ra.RawRowView(j)
+				src, dj := f.src[j], f.d[j]
+				for c := range pts {
+					w := aj[c]
+					rho[c] += w * f.params.corr(xs[s+c].Sub(src).Norm())
+					aRa[c] += w * raj[c]
+					ada[c] += w * w * dj
 				}
+			}
+			for c := range pts {
 				for k := range f.dim {
-					out[i][k] = f.params.Amplitude[k] * math.Max(1-2*rho+aRa+f.params.Noise[k]*ada, 0)
+					out[s+c][k] = f.params.Amplitude[k] * math.Max(1-2*rho[c]+aRa[c]+f.params.Noise[k]*ada[c], 0)
 				}
 			}
 		}
