@@ -225,11 +225,21 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 		return err
 	}
 	// Rows are built as bytes: a million-cell table would otherwise make
-	// seven strings a row only to copy them.
+	// seven strings a row only to copy them. They go to w some hundreds at
+	// a time, each row whole, and the rows before a faulty one are written
+	// before the error is returned, as row by row.
+	const flushAt = 1 << 15
 	var line []byte
 	for i, c := range cells.Points {
 		m := mapped[i]
-		line = appendField(line[:0], c.ID)
+		if len(line) >= flushAt {
+			if _, err := w.Write(line); err != nil {
+				return err
+			}
+			line = line[:0]
+		}
+		row := len(line)
+		line = appendField(line, c.ID)
 		if m.Status == status.NoInverse {
 			for range 2*cells.Dim + 1 {
 				line = append(line, ',')
@@ -250,6 +260,9 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 				line = append(line, ',')
 				var err error
 				if line, err = appendCoord(line, v); err != nil {
+					if _, werr := w.Write(line[:row]); werr != nil {
+						return werr
+					}
 					return &landmarks.InputError{File: cells.Path, Line: c.Line, Column: header[1+k],
 						Msg: fmt.Sprintf("cell %s: the mapped value %v", strconv.Quote(c.ID), err)}
 				}
@@ -270,11 +283,9 @@ func WriteMapped(w io.Writer, cells *landmarks.PointSet, mapped []Mapped, layout
 			line = appendField(line, e)
 		}
 		line = append(line, '\n')
-		if _, err := w.Write(line); err != nil {
-			return err
-		}
 	}
-	return nil
+	_, err := w.Write(line)
+	return err
 }
 
 // FormatCounts lists status counts in the order of seriousness.
