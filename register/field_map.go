@@ -257,7 +257,6 @@ func (f *fieldMapper) variancesOnGrid(xs []transform.Vec) []transform.Vec {
 	out := make([]transform.Vec, len(xs))
 	var outside []int
 	var far []transform.Vec
-	corners := make([]gridCorners, len(xs))
 	var need []int
 	g.mu.Lock()
 	defer g.mu.Unlock()
@@ -266,9 +265,9 @@ func (f *fieldMapper) variancesOnGrid(xs []transform.Vec) []transform.Vec {
 			outside, far = append(outside, i), append(far, x)
 			continue
 		}
-		corners[i] = g.corners(x, f.dim)
-		for q, node := range corners[i].node {
-			if corners[i].w[q] != 0 && !g.known[node] {
+		c := g.corners(x, f.dim)
+		for q, node := range c.node {
+			if c.w[q] != 0 && !g.known[node] {
 				g.known[node] = true
 				need = append(need, node)
 			}
@@ -286,8 +285,13 @@ func (f *fieldMapper) variancesOnGrid(xs []transform.Vec) []transform.Vec {
 			g.v[need[q]] = v
 		}
 	}
-	for i := range xs {
-		c := &corners[i]
+	// The corners are found again rather than kept (128 bytes a point):
+	// a few divisions against a block's worth of garbage.
+	for i, x := range xs {
+		if !g.inside(x, f.dim) {
+			continue
+		}
+		c := g.corners(x, f.dim)
 		for q, node := range c.node {
 			if w := c.w[q]; w != 0 {
 				out[i] = out[i].Add(g.v[node].Scale(w))
