@@ -18,6 +18,11 @@ import (
 type familyOutcome struct {
 	name                  string
 	wrong, found, falseFl int
+	// missed names the kind of each planted mistake not found, with the
+	// kind of its landmark ("section on soma").
+	missed []string
+	// corrWrong and corrFound count the wrong correspondences alone.
+	corrWrong, corrFound int
 	// inside and total per map status of the held-out cells.
 	inside, total map[status.Status]int
 	p90, p95      float64
@@ -78,8 +83,16 @@ func evaluateFamily(t testing.TB, s *families.Scenario) familyOutcome {
 		switch {
 		case s.Wrong[i]:
 			o.wrong++
+			if s.Mistake[i] == families.WrongCorrespondence {
+				o.corrWrong++
+			}
 			if l.Flag != "" {
 				o.found++
+				if s.Mistake[i] == families.WrongCorrespondence {
+					o.corrFound++
+				}
+			} else {
+				o.missed = append(o.missed, fmt.Sprintf("%s on %s", s.Mistake[i], s.Kind[i]))
 			}
 		case l.Flag != "":
 			o.falseFl++
@@ -103,6 +116,9 @@ func quantile(v []float64, q float64) float64 {
 func (o familyOutcome) String() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "%-26s found %d/%d false %d  p95 %.2f (hand %.2f)", o.name, o.found, o.wrong, o.falseFl, o.p95, o.p95Hand)
+	if len(o.missed) > 0 {
+		fmt.Fprintf(&b, "  missed: %s", strings.Join(o.missed, ", "))
+	}
 	for _, st := range []status.Status{status.OK, status.Isolated, status.Extrapolated} {
 		if o.total[st] > 0 {
 			fmt.Fprintf(&b, "  %s %.3f (%d)", st, o.coverage(st), o.total[st])
@@ -148,6 +164,8 @@ func TestFamilies(t *testing.T) {
 		specs []families.Spec
 	}{{"clean", families.Clean()}, {"mistakes", families.Mistakes()}} {
 		falseFl, found, wrong := 0, 0, 0
+		corrFound, corrWrong := 0, 0
+		missed := map[string]int{}
 		pool := map[status.Status]*pooled{status.OK: {}, status.Extrapolated: {}}
 		var covs []float64
 		for _, seed := range seeds {
@@ -157,6 +175,11 @@ func TestFamilies(t *testing.T) {
 				falseFl += o.falseFl
 				found += o.found
 				wrong += o.wrong
+				corrFound += o.corrFound
+				corrWrong += o.corrWrong
+				for _, m := range o.missed {
+					missed[m]++
+				}
 				for st, p := range pool {
 					p.inside += o.inside[st]
 					p.total += o.total[st]
@@ -184,6 +207,14 @@ func TestFamilies(t *testing.T) {
 		case "mistakes":
 			if found < wrong-2*runs || falseFl > 3*runs {
 				t.Errorf("%d of %d mistakes found and %d good landmarks flagged over %d scenarios", found, wrong, falseFl, 10*runs)
+			}
+			// Every wrong correspondence (40–60 µm in the section plane)
+			// is found; what is missed is a wrong section (20 µm in z) on
+			// a soma, whose own z picking error (sd 4 µm in EM units)
+			// hides it (docs/error-model.md, "Wrong sections on somata").
+			t.Logf("  wrong correspondences found: %d of %d; missed: %v", corrFound, corrWrong, missed)
+			if corrFound < corrWrong {
+				t.Errorf("%d of %d wrong correspondences found, want all", corrFound, corrWrong)
 			}
 		}
 		for st, p := range pool {
