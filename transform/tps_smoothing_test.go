@@ -139,7 +139,7 @@ func BenchmarkSmoothingPath(b *testing.B) {
 func TestSubsetPathMatchesSmoothingPath(t *testing.T) {
 	for _, c := range []warpCase{
 		{name: "3-D", dim: 3, n: 80, noise: 2},
-		{name: "3-D at 1e5 µm", dim: 3, n: 120, noise: 0.5, origin: 1e5},
+		{name: "3-D at 1e5 µm", dim: 3, n: 300, noise: 0.5, origin: 1e5},
 		{name: "2-D", dim: 2, n: 60, noise: 2},
 		{name: "2-D at 1e5 µm", dim: 2, n: 60, noise: 2, origin: 1e5},
 	} {
