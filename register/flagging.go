@@ -7,6 +7,7 @@ import (
 
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"ferry/internal/parallel"
 	"ferry/progress"
 	"ferry/transform"
 )
@@ -93,7 +94,8 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		setAside = append(setAside, worst)
 	}
 	// Try each set-aside landmark again against the clean set.
-	for _, i := range setAside {
+	hints := sub.prefetchRetries(model, out.flagged, setAside)
+	for pos, i := range setAside {
 		keep := func(j int) bool { return j == i || !out.flagged[j] }
 		idx := indices(n, keep)
 		q := p.subset(keep)
@@ -110,6 +112,13 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		out.score[i] = studentise(f.res, p.Dim, s, q.Source, k)[k]
 		if out.score[i] <= studentisedThreshold(p.Dim, len(idx), n) || f.res.LOO[k].Norm() < minFlagErrorUM {
 			out.flagged[i] = false
+			if hints != nil {
+				// The retries after this one try other sets than the
+				// prefetched ones: their searches start where this
+				// retry's search left off.
+				s.fits.setSmoothingHint(hints[pos])
+				hints = nil
+			}
 			continue
 		}
 		scale := externalScale(f.res, p.Dim, k)
@@ -356,4 +365,45 @@ func (sf *subsetFits) fit(q *Problem, keep func(int) bool) (*fitted, float64, er
 	}
 	res := &transform.Result{LOO: ans.LOO, LOOFactor: ans.Factor}
 	return &fitted{kind: transform.TPS, smoothing: sm, res: res}, ans.RelErr, nil
+}
+
+// prefetchRetries makes the retries' fits before flagLandmarks asks for
+// them: their smoothing searches one after the other, as the retries make
+// them, then the fits at the S chosen side by side on the cores
+// (internal/parallel), each of them the fit the retry would make, which the
+// retries then find in the fit cache. The sets are those of retries that
+// clear no landmark; once one is cleared, the later retries try other sets
+// and search them afresh, from the search hint after the clearing retry's
+// own search, which the result gives for each retry (grid index, −1 for
+// none). It does nothing, and returns nil, when the subset path is off.
+func (sf *subsetFits) prefetchRetries(model transform.Kind, flagged []bool, setAside []int) []int {
+	if !sf.on || len(setAside) == 0 {
+		return nil
+	}
+	n := sf.p.Len()
+	type retry struct {
+		q *Problem
+		w []float64
+	}
+	retries := make([]retry, len(setAside))
+	hints := make([]int, len(setAside))
+	for r, i := range setAside {
+		keep := func(j int) bool { return j == i || !flagged[j] }
+		q := sf.p.subset(keep)
+		if _, _, err := sf.fit(q, keep); err != nil {
+			return nil
+		}
+		retries[r] = retry{q: q, w: pick(sf.weights, indices(n, keep))}
+		hints[r] = -1
+		if k, has := sf.s.fits.smoothingHint(); has {
+			hints[r] = k
+		}
+	}
+	parallel.Blocks(len(retries), 1, func() struct{} { return struct{}{} }, func(_ struct{}, lo, hi int) {
+		for r := lo; r < hi; r++ {
+			// An error is met again, in its order, by the retry itself.
+			_, _ = fitModel(retries[r].q, model, retries[r].w, sf.s)
+		}
+	})
+	return hints
 }
