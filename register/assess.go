@@ -450,7 +450,10 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	}
 	opt := transform.Options{Weights: weights, NoMirror: s.NoMirror, LeaveOneOut: true, Context: s.ctx}
 	if kind == transform.TPS {
-		if s.Smoothing.Auto {
+		if sm, ok := s.fits.chosen(kind, p, weights, s); ok && s.Smoothing.Auto {
+			// The search ran for these pairs already (flagging.go).
+			opt.Smoothing = sm
+		} else if s.Smoothing.Auto {
 			sm, err := chooseSmoothing(p, weights, s)
 			if err != nil {
 				return nil, err
@@ -467,5 +470,13 @@ func fitModel(p *Problem, kind transform.Kind, weights []float64, s Settings) (*
 	}
 	f := &fitted{kind: kind, smoothing: opt.Smoothing, res: res}
 	s.fits.put(kind, p, weights, s, f)
+	if kind == transform.TPS && s.Smoothing.Auto {
+		// The same fit is the one asked for with this smoothing given:
+		// the check's last fit when no landmark was flagged, and the
+		// second check of fit.
+		fixed := s
+		fixed.Smoothing = Smoothing{Value: opt.Smoothing}
+		s.fits.put(kind, p, weights, fixed, f)
+	}
 	return f, nil
 }

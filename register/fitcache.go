@@ -120,6 +120,23 @@ func (e *fitEntry) matches(kind transform.Kind, p *Problem, weights []float64, s
 
 // get returns the fit of these inputs made before, or nil.
 func (c *fitCache) get(kind transform.Kind, p *Problem, weights []float64, s Settings) *fitted {
+	if f := c.lookup(kind, p, weights, s); f != nil && f.res != nil {
+		return f
+	}
+	return nil
+}
+
+// chosen returns the smoothing a search chose for these inputs (a spline
+// with automatic smoothing) when the search ran but the fit was not made:
+// the fit then needs no second search.
+func (c *fitCache) chosen(kind transform.Kind, p *Problem, weights []float64, s Settings) (float64, bool) {
+	if f := c.lookup(kind, p, weights, s); f != nil {
+		return f.smoothing, true
+	}
+	return 0, false
+}
+
+func (c *fitCache) lookup(kind transform.Kind, p *Problem, weights []float64, s Settings) *fitted {
 	if c == nil || c.off {
 		return nil
 	}
@@ -134,7 +151,8 @@ func (c *fitCache) get(kind transform.Kind, p *Problem, weights []float64, s Set
 	return nil
 }
 
-// put remembers the fit of these inputs.
+// put remembers the fit of these inputs, or (f.res nil) the smoothing
+// chosen for them.
 func (c *fitCache) put(kind transform.Kind, p *Problem, weights []float64, s Settings, f *fitted) {
 	if c == nil || c.off {
 		return
@@ -149,5 +167,11 @@ func (c *fitCache) put(kind transform.Kind, p *Problem, weights []float64, s Set
 	}
 	c.mu.Lock()
 	defer c.mu.Unlock()
+	for i := range c.fits[key] {
+		if c.fits[key][i].matches(kind, p, weights, s) {
+			c.fits[key][i].fit = f
+			return
+		}
+	}
 	c.fits[key] = append(c.fits[key], e)
 }

@@ -2,6 +2,7 @@ package register
 
 import (
 	"fmt"
+	"math"
 	"math/rand/v2"
 	"testing"
 
@@ -78,4 +79,76 @@ func TestCheckSameWithCache(t *testing.T) {
 func assessUncached(p *Problem, s Settings) (*Assessment, error) {
 	s.fits = &fitCache{off: true}
 	return Assess(p, s)
+}
+
+// TestFlagsSameWithSubsetPath checks that the sequential deletion whose
+// smoothing searches come from one reduction of the whole set
+// (subsetFits, transform.SubsetPath) flags the same landmarks with the same
+// numbers, to the last bit, as the deletion that fits every set afresh, on
+// sets with several wrong landmarks, one wrong by little, and none.
+func TestFlagsSameWithSubsetPath(t *testing.T) {
+	bumps := func(x transform.Vec) transform.Vec {
+		y := warpedTruth(x)
+		d := x.Sub(transform.Vec{250, 250, 150})
+		y[0] += 5 * math.Exp(-d.Dot(d)/(2*60*60))
+		return y
+	}
+	tests := []struct {
+		name  string
+		truth func(transform.Vec) transform.Vec
+		n     int
+		sd    transform.Vec
+		wrong []float64 // µm added along x to landmarks 7, 7+29, …
+	}{
+		{"warped, four wrong", warpedTruth, 160, transform.Vec{0.8, 0.8, 2.5}, []float64{30, -25, 20, 40}},
+		{"bump, one barely wrong", bumps, 140, transform.Vec{0.5, 0.5, 1}, []float64{6}},
+		{"affine, none wrong", affineTruth, 120, transform.Vec{0.8, 0.8, 2.5}, nil},
+	}
+	// Four landmarks off by 3 to 9 µm on noisy sets, about the threshold:
+	// the decisions the fast answers may not take alone.
+	for seed := range 5 {
+		rng := rand.New(rand.NewPCG(uint64(seed), 99))
+		var wrong []float64
+		for range 4 {
+			wrong = append(wrong, 3+6*rng.Float64())
+		}
+		tests = append(tests, struct {
+			name  string
+			truth func(transform.Vec) transform.Vec
+			n     int
+			sd    transform.Vec
+			wrong []float64
+		}{fmt.Sprintf("warped, noisy, four near the threshold (%d)", seed), warpedTruth, 130, transform.Vec{1.5, 1.5, 3}, wrong})
+	}
+	for i, tt := range tests {
+		rng := rand.New(rand.NewPCG(uint64(i+1), 23))
+		p := synthetic(rng, tt.n, tt.truth, tt.sd)
+		for j, d := range tt.wrong {
+			p.Target[7+29*j][0] += d
+		}
+		w := equalWeights(p.Len())
+		radii := Radius95(p.Dim)
+		fast := Settings{Smoothing: Smoothing{Auto: true}, fits: newFitCache()}
+		if f, _, err := newSubsetFits(p, transform.TPS, w, fast).fit(p, func(int) bool { return true }); err != nil || f == nil {
+			t.Fatalf("%s: the subset path gave no answer (%v): the test would not exercise it", tt.name, err)
+		}
+		fast.fits = newFitCache()
+		got, err := flagLandmarks(p, transform.TPS, w, fast, radii)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want, err := flagLandmarks(p, transform.TPS, w, Settings{Smoothing: Smoothing{Auto: true}, fits: &fitCache{off: true}}, radii)
+		if err != nil {
+			t.Fatal(err)
+		}
+		a := fmt.Sprintf("%v %q %x %v %x", got.flagged, got.reason, got.score, got.loo, got.r95)
+		b := fmt.Sprintf("%v %q %x %v %x", want.flagged, want.reason, want.score, want.loo, want.r95)
+		if a != b {
+			t.Errorf("%s: the flags differ with the subset path:\n%s\n%s", tt.name, a, b)
+		}
+		t.Logf("%s: %d flagged", tt.name, len(want.loo))
+		if len(tt.wrong) > 1 && len(want.loo) < 1 {
+			t.Errorf("%s: %d flagged: the deletion did not run", tt.name, len(want.loo))
+		}
+	}
 }

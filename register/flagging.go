@@ -7,6 +7,8 @@ import (
 
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"ferry/internal/parallel"
+	"ferry/progress"
 	"ferry/transform"
 )
 
@@ -49,22 +51,41 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		limit = max(0, n-transform.MinPairs(model, p.Dim)-3)
 	}
 	out.limit = limit
+	sub := newSubsetFits(p, model, weights, s)
 	var setAside []int
 	for {
 		keep := func(i int) bool { return !out.flagged[i] }
 		idx := indices(n, keep)
-		f, err := fitModel(p.subset(keep), model, pick(weights, idx), s)
-		if err != nil {
-			return nil, err
-		}
-		scores := studentise(f.res, p.Dim, s, p.subset(keep).Source, -1)
+		q := p.subset(keep)
 		threshold := studentisedThreshold(p.Dim, len(idx), n)
-		worst, worstScore := -1, threshold
+		// While landmarks may still be set aside, the fit of this set
+		// only decides which one, and the fast answer does when it can
+		// tell (subsetFits); the last set's scores are the check's, from
+		// the fit itself.
+		var f *fitted
+		var scores []float64
+		worst, sure := -1, false
+		if len(setAside) < limit {
+			fast, rel, err := sub.fit(q, keep)
+			if err != nil {
+				return nil, err
+			}
+			if fast != nil {
+				scores = studentise(fast.res, p.Dim, s, q.Source, -1)
+				worst, sure = worstLandmark(idx, scores, fast.res.LOO, threshold, rel)
+				sure = sure && worst >= 0
+			}
+		}
+		if !sure {
+			var err error
+			if f, err = fitModel(q, model, pick(weights, idx), s); err != nil {
+				return nil, err
+			}
+			scores = studentise(f.res, p.Dim, s, q.Source, -1)
+			worst, _ = worstLandmark(idx, scores, f.res.LOO, threshold, 0)
+		}
 		for k, i := range idx {
 			out.score[i] = scores[k]
-			if scores[k] > worstScore && f.res.LOO[k].Norm() >= minFlagErrorUM {
-				worst, worstScore = i, scores[k]
-			}
 		}
 		if worst < 0 || len(setAside) >= limit {
 			break
@@ -73,10 +94,16 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		setAside = append(setAside, worst)
 	}
 	// Try each set-aside landmark again against the clean set.
-	for _, i := range setAside {
+	hints := sub.prefetchRetries(model, out.flagged, setAside)
+	for pos, i := range setAside {
 		keep := func(j int) bool { return j == i || !out.flagged[j] }
 		idx := indices(n, keep)
 		q := p.subset(keep)
+		// The search by the fast answers; the fit, whose numbers the
+		// check reports, by fitModel at the S chosen.
+		if _, _, err := sub.fit(q, keep); err != nil {
+			return nil, err
+		}
 		f, err := fitModel(q, model, pick(weights, idx), s)
 		if err != nil {
 			return nil, err
@@ -85,6 +112,13 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		out.score[i] = studentise(f.res, p.Dim, s, q.Source, k)[k]
 		if out.score[i] <= studentisedThreshold(p.Dim, len(idx), n) || f.res.LOO[k].Norm() < minFlagErrorUM {
 			out.flagged[i] = false
+			if hints != nil {
+				// The retries after this one try other sets than the
+				// prefetched ones: their searches start where this
+				// retry's search left off.
+				s.fits.setSmoothingHint(hints[pos])
+				hints = nil
+			}
 			continue
 		}
 		scale := externalScale(f.res, p.Dim, k)
@@ -94,6 +128,49 @@ func flagLandmarks(p *Problem, model transform.Kind, weights []float64, s Settin
 		out.reason[i] = flagReason(f.res.LOO[k], cov, out.r95[i], p.Dim)
 	}
 	return out, nil
+}
+
+// worstLandmark is the landmark of idx with the highest score above
+// threshold whose leave-one-out error is at least minFlagErrorUM (the first
+// of equal ones), −1 for none. With rel > 0 the scores and errors are fast
+// answers within a relative error rel of the fit's (transform.SubsetLOO);
+// sure is then false unless every comparison is decided beyond that error,
+// so that a sure answer is the one the fit's numbers give.
+func worstLandmark(idx []int, scores []float64, loo []transform.Vec, threshold, rel float64) (worst int, sure bool) {
+	worst, worstScore := -1, threshold
+	for k, i := range idx {
+		if scores[k] > worstScore && loo[k].Norm() >= minFlagErrorUM {
+			worst, worstScore = i, scores[k]
+		}
+	}
+	if rel == 0 {
+		return worst, true
+	}
+	// A score is a squared error over a factor and a scale, each within
+	// about rel: within 8·rel of the fit's.
+	tol := func(x float64) float64 { return 8 * rel * math.Abs(x) }
+	top := -1
+	for k, i := range idx {
+		sc, e := scores[k], loo[k].Norm()
+		if math.IsNaN(sc) || math.IsInf(sc, 0) || math.IsNaN(e) {
+			return -1, false
+		}
+		if math.Abs(sc-threshold) <= tol(sc) || math.Abs(e-minFlagErrorUM) <= rel*e+1e-12 {
+			return -1, false
+		}
+		if i == worst {
+			top = k
+		}
+	}
+	if top >= 0 {
+		for k := range idx {
+			if k != top && scores[k] > threshold && loo[k].Norm() >= minFlagErrorUM &&
+				scores[top]-scores[k] <= tol(scores[top])+tol(scores[k]) {
+				return -1, false
+			}
+		}
+	}
+	return worst, true
 }
 
 // studentise scores every landmark of a fit (only landmark only, when
@@ -109,7 +186,9 @@ func studentise(res *transform.Result, dim int, s Settings, src []transform.Vec,
 		}
 		scale := withoutOne(total, res, dim, i)
 		cov := looCovariance(scale, res.LOOFactor[i], dim)
-		addPickNoise(&cov, s, res.Transform.Jacobian(src[i]), dim)
+		if s.SourceSD != nil || s.TargetSD != nil {
+			addPickNoise(&cov, s, res.Transform.Jacobian(src[i]), dim)
+		}
 		out[i] = standardised(res.LOO[i], cov, dim)
 	}
 	return out
@@ -209,4 +288,122 @@ func pickNoise(s Settings, jac transform.Mat) transform.Mat {
 		}
 	}
 	return c
+}
+
+// subsetFits serves the smoothing searches of the sequential deletion and
+// of the retries, whose sets are p without a few landmarks, from one
+// reduction of p's spline system (transform.SubsetPath): each search costs
+// a few matrix–vector products a smoothing instead of a factorisation, and
+// chooses the very S that chooseSmoothing chooses (chooseSmoothingWith).
+// It serves a spline with automatic smoothing and equal weights, without
+// stated picking errors (whose noise needs the fit's Jacobian), with the
+// fit cache on; fit returns nothing otherwise and the check fits as before.
+type subsetFits struct {
+	p       *Problem
+	weights []float64
+	s       Settings
+	on      bool
+	path    *transform.SubsetPath
+	tried   bool
+}
+
+// subsetMinLandmarks is the fewest landmarks for which the reduction pays:
+// below it the searches are cheap anyway.
+const subsetMinLandmarks = 100
+
+func newSubsetFits(p *Problem, model transform.Kind, weights []float64, s Settings) *subsetFits {
+	on := model == transform.TPS && s.Smoothing.Auto && s.SourceSD == nil && s.TargetSD == nil &&
+		s.fits != nil && !s.fits.off && p.Len() >= subsetMinLandmarks
+	for _, w := range weights {
+		on = on && w == weights[0]
+	}
+	return &subsetFits{p: p, weights: weights, s: s, on: on}
+}
+
+// fit searches the smoothing of the subset q (keep of p) unless the cache
+// knows it, and returns the fast answer at the S chosen as a fit without a
+// transform (LOO and LOOFactor only) with its relative error, or nil when
+// there is none (the subset's fit is then fitModel's).
+func (sf *subsetFits) fit(q *Problem, keep func(int) bool) (*fitted, float64, error) {
+	if !sf.on {
+		return nil, 0, nil
+	}
+	idx := indices(sf.p.Len(), keep)
+	w := pick(sf.weights, idx)
+	if _, ok := sf.s.fits.chosen(transform.TPS, q, w, sf.s); ok {
+		return nil, 0, nil
+	}
+	opt := transform.Options{Weights: w, Context: sf.s.ctx}
+	if transform.CheckSmoothingPath(q.Dim, q.Source, q.Target, opt) != nil {
+		return nil, 0, nil
+	}
+	if !sf.tried {
+		sf.tried = true
+		path, err := transform.NewSubsetPath(sf.p.Dim, sf.p.Source, sf.p.Target,
+			transform.Options{Weights: sf.weights, Context: sf.s.ctx})
+		if err == nil {
+			sf.path = path
+		}
+	}
+	if sf.path == nil {
+		return nil, 0, nil
+	}
+	mask := make([]bool, sf.p.Len())
+	for _, i := range idx {
+		mask[i] = true
+	}
+	sm, ans, err := chooseSmoothingWith(q, w, sf.s, func(sms []float64) []transform.SubsetLOO {
+		return sf.path.LeaveOneOut(mask, sms)
+	})
+	if err != nil {
+		return nil, 0, err
+	}
+	sf.s.fits.put(transform.TPS, q, w, sf.s, &fitted{kind: transform.TPS, smoothing: sm})
+	progress.Of(sf.s.Progress).Add(1)
+	if ans == nil {
+		return nil, 0, nil
+	}
+	res := &transform.Result{LOO: ans.LOO, LOOFactor: ans.Factor}
+	return &fitted{kind: transform.TPS, smoothing: sm, res: res}, ans.RelErr, nil
+}
+
+// prefetchRetries makes the retries' fits before flagLandmarks asks for
+// them: their smoothing searches one after the other, as the retries make
+// them, then the fits at the S chosen side by side on the cores
+// (internal/parallel), each of them the fit the retry would make, which the
+// retries then find in the fit cache. The sets are those of retries that
+// clear no landmark; once one is cleared, the later retries try other sets
+// and search them afresh, from the search hint after the clearing retry's
+// own search, which the result gives for each retry (grid index, −1 for
+// none). It does nothing, and returns nil, when the subset path is off.
+func (sf *subsetFits) prefetchRetries(model transform.Kind, flagged []bool, setAside []int) []int {
+	if !sf.on || len(setAside) == 0 {
+		return nil
+	}
+	n := sf.p.Len()
+	type retry struct {
+		q *Problem
+		w []float64
+	}
+	retries := make([]retry, len(setAside))
+	hints := make([]int, len(setAside))
+	for r, i := range setAside {
+		keep := func(j int) bool { return j == i || !flagged[j] }
+		q := sf.p.subset(keep)
+		if _, _, err := sf.fit(q, keep); err != nil {
+			return nil
+		}
+		retries[r] = retry{q: q, w: pick(sf.weights, indices(n, keep))}
+		hints[r] = -1
+		if k, has := sf.s.fits.smoothingHint(); has {
+			hints[r] = k
+		}
+	}
+	parallel.Blocks(len(retries), 1, func() struct{} { return struct{}{} }, func(_ struct{}, lo, hi int) {
+		for r := lo; r < hi; r++ {
+			// An error is met again, in its order, by the retry itself.
+			_, _ = fitModel(retries[r].q, model, retries[r].w, sf.s)
+		}
+	})
+	return hints
 }

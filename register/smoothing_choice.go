@@ -23,13 +23,32 @@ import (
 // factorisations instead of seventeen when the cost has a single minimum
 // along log S, and falls back to the whole grid when it cannot tell.
 func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
+	sm, _, err := chooseSmoothingWith(q, w, s, nil)
+	return sm, err
+}
+
+// chooseSmoothingWith is chooseSmoothing whose costs come, when fast is
+// set, from fast (transform.SubsetPath: the set as a subset of a larger one
+// reduced once) within the error each answer states. Every comparison the
+// search makes is then decided as the costs of SmoothingPath decide it: by
+// the fast costs when they differ by more than their errors, else by the
+// costs of SmoothingPath, computed for the two smoothings compared. The S
+// chosen is therefore the very S of chooseSmoothing. The second result is
+// the fast answer at the S chosen, nil when there is none.
+func chooseSmoothingWith(q *Problem, w []float64, s Settings, fast func(sms []float64) []transform.SubsetLOO) (float64, *transform.SubsetLOO, error) {
 	rep := progress.Of(s.Progress)
 	// Every S of the grid shares the kernel matrix and its projection, and
-	// the fits at the S of one batch run side by side (SmoothingPath).
-	path, pathErr := transform.NewSmoothingPath(q.Dim, q.Source, q.Target,
-		transform.Options{Weights: w, Context: s.ctx})
-	search := &smoothingSearch{unit: kernelScale(q), cost: map[float64]float64{}}
-	search.eval = func(sms []float64) []float64 {
+	// the fits at the S of one batch run side by side (SmoothingPath). With
+	// fast answers it is built only if a comparison needs it.
+	var path *transform.SmoothingPath
+	var pathErr error
+	pathMade := false
+	exact := func(sms []float64) []float64 {
+		if !pathMade {
+			pathMade = true
+			path, pathErr = transform.NewSmoothingPath(q.Dim, q.Source, q.Target,
+				transform.Options{Weights: w, Context: s.ctx})
+		}
 		out := make([]float64, len(sms))
 		var loo [][]transform.Vec
 		var errs []error
@@ -52,6 +71,40 @@ func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 		}
 		return out
 	}
+	search := &smoothingSearch{unit: kernelScale(q), cost: map[float64]float64{}, eval: exact, exact: exact}
+	answers := map[float64]*transform.SubsetLOO{}
+	if fast != nil {
+		search.fast = func(sms []float64) []costEst {
+			res := fast(sms)
+			out := make([]costEst, len(sms))
+			var redo []int
+			for j, r := range res {
+				if !r.Sure {
+					redo = append(redo, j)
+					continue
+				}
+				rep.Add(1)
+				c := 0.0
+				for i, e := range r.LOO {
+					c += w[i] * e.Dot(e)
+				}
+				// Each squared error is within 2·RelErr of its exact
+				// value, and so is their weighted sum.
+				out[j] = costEst{v: c, tol: 3 * r.RelErr * c, fast: true}
+				answers[sms[j]] = &res[j]
+			}
+			if len(redo) > 0 {
+				sub := make([]float64, len(redo))
+				for k, j := range redo {
+					sub[k] = sms[j]
+				}
+				for k, c := range exact(sub) {
+					out[redo[k]] = costEst{v: c}
+				}
+			}
+			return out
+		}
+	}
 	gridBest, ok := -1, false
 	if s.fits.searchWhole() {
 		// No shortcut: the tests' reference.
@@ -66,14 +119,14 @@ func chooseSmoothing(q *Problem, w []float64, s Settings) (float64, error) {
 	s.fits.setSmoothingHint(gridBest)
 	best, bestCost := search.refine(gridBest)
 	if err := s.cancelled(); err != nil {
-		return 0, err
+		return 0, nil, err
 	}
 	if math.IsInf(bestCost, 1) {
 		_, err := transform.Fit(transform.TPS, q.Dim, q.Source, q.Target,
 			transform.Options{Weights: w, LeaveOneOut: true})
-		return 0, err
+		return 0, nil, err
 	}
-	return best, nil
+	return best, answers[best], nil
 }
 
 // The grid of chooseSmoothing: S = 0, then S = unit·10^e for e from
@@ -91,6 +144,19 @@ type smoothingSearch struct {
 	// eval computes the costs of a batch of smoothings side by side.
 	eval func(sms []float64) []float64
 	cost map[float64]float64
+	// fast, when set, computes the costs instead of eval, each within its
+	// tol, which exact (SmoothingPath) then replaces where a comparison
+	// needs it; tol holds the errors of the fast costs still standing.
+	fast  func(sms []float64) []costEst
+	exact func(sms []float64) []float64
+	tol   map[float64]float64
+}
+
+// costEst is a fast cost and how far the exact cost may lie from it; a
+// cost with fast false is exact.
+type costEst struct {
+	v, tol float64
+	fast   bool
 }
 
 func gridExp(k int) float64 { return smoothingGridLow + 0.5*float64(k) }
@@ -113,8 +179,20 @@ func (g *smoothingSearch) at(exps ...float64) []float64 {
 		}
 	}
 	if len(todo) > 0 {
-		for j, c := range g.eval(sms) {
-			g.cost[todo[j]] = c
+		if g.fast != nil {
+			if g.tol == nil {
+				g.tol = map[float64]float64{}
+			}
+			for j, c := range g.fast(sms) {
+				g.cost[todo[j]] = c.v
+				if c.fast {
+					g.tol[todo[j]] = c.tol
+				}
+			}
+		} else {
+			for j, c := range g.eval(sms) {
+				g.cost[todo[j]] = c
+			}
 		}
 	}
 	out := make([]float64, len(exps))
@@ -124,6 +202,47 @@ func (g *smoothingSearch) at(exps ...float64) []float64 {
 	return out
 }
 
+// pair returns the costs of a and b (computed if need be) such that any
+// comparison of the two gives what the exact costs give: the fast costs
+// when they are further apart than their errors, else the exact ones.
+func (g *smoothingSearch) pair(a, b float64) (float64, float64) {
+	g.at(a, b)
+	ta, fa := g.tol[a]
+	tb, fb := g.tol[b]
+	if !fa && !fb {
+		return g.cost[a], g.cost[b]
+	}
+	if d := math.Abs(g.cost[a] - g.cost[b]); d > ta+tb && !math.IsNaN(d) && !math.IsInf(d, 0) {
+		return g.cost[a], g.cost[b]
+	}
+	g.sure(a, b)
+	return g.cost[a], g.cost[b]
+}
+
+// value returns the cost of e for a test that a fast cost decides as the
+// exact one does: whether it is finite (a fast cost is given only where the
+// exact computation succeeds, so it is finite).
+func (g *smoothingSearch) value(e float64) float64 {
+	return g.at(e)[0]
+}
+
+// sure replaces the fast costs of the exponents by the exact ones.
+func (g *smoothingSearch) sure(exps ...float64) {
+	var todo, sms []float64
+	for _, e := range exps {
+		if _, fast := g.tol[e]; fast && !slices.Contains(todo, e) {
+			todo = append(todo, e)
+			sms = append(sms, g.smoothing(e))
+		}
+	}
+	if len(todo) > 0 {
+		for j, c := range g.exact(sms) {
+			g.cost[todo[j]] = c
+			delete(g.tol, todo[j])
+		}
+	}
+}
+
 // whole searches S = 0 and the whole grid and returns the index of the
 // grid's best exponent, −1 when S = 0 is best (ties go to the smaller S).
 func (g *smoothingSearch) whole() int {
@@ -131,11 +250,11 @@ func (g *smoothingSearch) whole() int {
 	for k := range smoothingGridLen {
 		exps = append(exps, gridExp(k))
 	}
-	cs := g.at(exps...)
-	best, bestCost := -1, cs[0]
+	g.at(exps...)
+	best, bestE := -1, exps[0]
 	for k := range smoothingGridLen {
-		if c := cs[1+k]; c < bestCost {
-			best, bestCost = k, c
+		if c, b := g.pair(exps[1+k], bestE); c < b {
+			best, bestE = k, exps[1+k]
 		}
 	}
 	return best
@@ -152,14 +271,23 @@ func (g *smoothingSearch) coarse() (int, bool) {
 	for k := 0; k < smoothingGridLen; k += 2 {
 		exps = append(exps, gridExp(k))
 	}
-	cs := g.at(exps...)
-	best, bestCost := -1, math.Inf(1)
-	for j, c := range cs[1:] {
-		if c < bestCost {
-			best, bestCost = 2*j, c
+	g.at(exps...)
+	best, bestE := -1, 0.0
+	for j, e := range exps[1:] {
+		if best < 0 {
+			if c := g.value(e); c < math.Inf(1) {
+				best, bestE = 2*j, e
+			}
+			continue
+		}
+		if c, b := g.pair(e, bestE); c < b {
+			best, bestE = 2*j, e
 		}
 	}
-	if best < 0 || !(cs[0] > bestCost) {
+	if best < 0 {
+		return 0, false
+	}
+	if c0, b := g.pair(exps[0], bestE); !(c0 > b) {
 		return 0, false
 	}
 	return g.warm(best)
@@ -180,29 +308,40 @@ func (g *smoothingSearch) warm(k int) (int, bool) {
 			return 0, false
 		}
 		e := gridExp(k)
-		cs := g.at(e-0.25, e, e+0.25)
-		down, here, up := cs[0], cs[1], cs[2]
-		if math.IsInf(here, 0) || math.IsNaN(here) || down == here || up == here {
+		g.at(e-0.25, e, e+0.25)
+		if here := g.value(e); math.IsInf(here, 0) || math.IsNaN(here) {
 			return 0, false
 		}
-		if up < here && down < here {
-			return 0, false // two minima
+		if d, h := g.pair(e-0.25, e); d == h {
+			return 0, false
+		}
+		if u, h := g.pair(e+0.25, e); u == h {
+			return 0, false
+		}
+		if u, h := g.pair(e+0.25, e); u < h {
+			if d, h := g.pair(e-0.25, e); d < h {
+				return 0, false // two minima
+			}
 		}
 		move := 0
-		if !(up > here) {
-			switch next := g.at(gridExp(k + 1))[0]; {
-			case next < here:
+		if u, h := g.pair(e+0.25, e); !(u > h) {
+			next, h := g.pair(gridExp(k+1), e)
+			switch {
+			case next < h:
 				move = 1
-			case !(next > here):
+			case !(next > h):
 				return 0, false
 			}
 		}
-		if move == 0 && !(down > here) {
-			switch next := g.at(gridExp(k - 1))[0]; {
-			case next < here:
-				move = -1
-			case !(next > here):
-				return 0, false
+		if move == 0 {
+			if d, h := g.pair(e-0.25, e); !(d > h) {
+				next, h := g.pair(gridExp(k-1), e)
+				switch {
+				case next < h:
+					move = -1
+				case !(next > h):
+					return 0, false
+				}
 			}
 		}
 		if move == 0 {
@@ -218,17 +357,17 @@ func (g *smoothingSearch) warm(k int) (int, bool) {
 // grid's point.
 func (g *smoothingSearch) refine(k int) (float64, float64) {
 	if k < 0 {
-		return 0, g.at(math.Inf(-1))[0]
+		return 0, g.value(math.Inf(-1))
 	}
 	e := gridExp(k)
-	cs := g.at(e, e-0.25, e+0.25)
-	best, bestCost := g.smoothing(e), cs[0]
-	for j, de := range []float64{-0.25, 0.25} {
-		if c := cs[1+j]; c < bestCost {
-			best, bestCost = g.smoothing(e+de), c
+	g.at(e, e-0.25, e+0.25)
+	bestE := e
+	for _, de := range []float64{-0.25, 0.25} {
+		if c, b := g.pair(e+de, bestE); c < b {
+			bestE = e + de
 		}
 	}
-	return best, bestCost
+	return g.smoothing(bestE), g.value(bestE)
 }
 
 // kernelScale is the size of a typical kernel value between landmarks.

@@ -128,3 +128,106 @@ func BenchmarkSmoothingPath(b *testing.B) {
 		})
 	}
 }
+
+// TestSubsetPathMatchesSmoothingPath checks SubsetPath, the leave-one-out
+// of subsets from one reduction of the whole set, against SmoothingPath of
+// each subset: pairs deleted one at a time and several at once, in 2-D and
+// 3-D, near the origin and far from it, at smoothings from interpolation
+// to nearly affine. Every answer it vouches for must lie within the error
+// it states, and that error must not be so loose that nothing could be
+// decided by it.
+func TestSubsetPathMatchesSmoothingPath(t *testing.T) {
+	for _, c := range []warpCase{
+		{name: "3-D", dim: 3, n: 80, noise: 2},
+		{name: "3-D at 1e5 µm", dim: 3, n: 300, noise: 0.5, origin: 1e5},
+		{name: "2-D", dim: 2, n: 60, noise: 2},
+		{name: "2-D at 1e5 µm", dim: 2, n: 60, noise: 2, origin: 1e5},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			src, dst, _ := c.pairs(5)
+			dst[3][0] += 25
+			dst[11][1] -= 20
+			sp, err := NewSubsetPath(c.dim, src, dst, Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, del := range [][]int{nil, {3}, {3, 11}, {0, 3, 11, 20, 21, 40}} {
+				keep := make([]bool, len(src))
+				for i := range keep {
+					keep[i] = true
+				}
+				for _, i := range del {
+					keep[i] = false
+				}
+				var s2, d2 []Vec
+				for i := range src {
+					if keep[i] {
+						s2, d2 = append(s2, src[i]), append(d2, dst[i])
+					}
+				}
+				path, err := NewSmoothingPath(c.dim, s2, d2, Options{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				sms := []float64{0, 1e-3, 0.3, 3, 30, 300, 3e4}
+				got := sp.LeaveOneOut(keep, sms)
+				want, errs := path.LeaveOneOut(sms)
+				sure := 0
+				for j, sm := range sms {
+					if !got[j].Sure {
+						continue
+					}
+					sure++
+					if errs[j] != nil {
+						t.Fatalf("deleted %v, S=%g: the subset path vouches for a system SmoothingPath refuses (%v)", del, sm, errs[j])
+					}
+					if got[j].RelErr > 1e-4 {
+						t.Errorf("deleted %v, S=%g: stated error %.3g is too loose to decide anything", del, sm, got[j].RelErr)
+					}
+					for i := range want[j] {
+						if d := got[j].LOO[i].Sub(want[j][i]).Norm(); d > got[j].RelErr*want[j][i].Norm() {
+							t.Fatalf("deleted %v, S=%g pair %d: subset path %v, SmoothingPath %v µm (stated error %.3g)", del, sm, i, got[j].LOO[i], want[j][i], got[j].RelErr)
+						}
+					}
+				}
+				if sure < len(sms)-1 {
+					t.Errorf("deleted %v: the path vouched for %d of %d smoothings", del, sure, len(sms))
+				}
+			}
+		})
+	}
+	if _, err := NewSubsetPath(3, []Vec{{0, 0, 0}}, []Vec{{0, 0, 0}}, Options{Weights: []float64{1, 2}}); err == nil {
+		t.Error("unequal weights or too few pairs: no error")
+	}
+}
+
+// BenchmarkSubsetPath times the reduction of 1,000 and 2,000 pairs and one
+// smoothing of a subset without five of them, what the check's sequential
+// deletion asks at each step of its searches.
+func BenchmarkSubsetPath(b *testing.B) {
+	for _, n := range []int{1000, 2000} {
+		src, dst := benchLandmarks(n)
+		b.Run(fmt.Sprintf("reduce/n=%d", n), func(b *testing.B) {
+			for b.Loop() {
+				if _, err := NewSubsetPath(3, src, dst, Options{}); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+		sp, err := NewSubsetPath(3, src, dst, Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		keep := make([]bool, n)
+		for i := range keep {
+			keep[i] = i%(n/5) != 7
+		}
+		b.Run(fmt.Sprintf("smoothing/n=%d", n), func(b *testing.B) {
+			for b.Loop() {
+				if r := sp.LeaveOneOut(keep, []float64{10}); !r[0].Sure {
+					b.Fatal("not vouched for")
+				}
+			}
+		})
+	}
+}

@@ -8,6 +8,8 @@ import (
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/mat"
+
+	"ferry/internal/parallel"
 )
 
 // splineSystem is the factorised linear system of one spline fit, kept apart
@@ -160,29 +162,54 @@ func (sys *splineSystem) kernelVector(u Vec, k []float64) {
 }
 
 // kernelMatrix returns K_u + S_u·D as a dense row-major N×N slice and notes
-// the closest pair of nodes.
+// the closest pair of nodes. Rows are computed in blocks on all cores, each
+// entry on its own, and the closest pair is the first in row order as one
+// core finds it, so the matrix and the pair are the same whatever the
+// number of cores.
 func (sys *splineSystem) kernelMatrix() []float64 {
 	N := len(sys.nodes)
 	a := make([]float64, N*N)
-	closest, ci, cj := math.Inf(1), 0, 0
-	for i := range N {
-		ui := sys.nodes[i]
-		row := a[i*N : i*N+i]
-		for j := range row {
-			d := ui.Sub(sys.nodes[j])
-			r2 := d.Dot(d)
-			if r2 < closest {
-				closest, ci, cj = r2, j, i
+	const block = 32
+	nb := (N + block - 1) / block
+	type nearest struct {
+		r2     float64
+		ci, cj int
+	}
+	near := make([]nearest, nb)
+	parallel.Blocks(N, block, func() struct{} { return struct{}{} }, func(_ struct{}, lo, hi int) {
+		best := nearest{r2: math.Inf(1)}
+		for i := lo; i < hi; i++ {
+			ui := sys.nodes[i]
+			row := a[i*N : i*N+i]
+			for j := range row {
+				d := ui.Sub(sys.nodes[j])
+				r2 := d.Dot(d)
+				if r2 < best.r2 {
+					best = nearest{r2, j, i}
+				}
+				row[j] = sys.kernel(r2)
 			}
-			k := sys.kernel(r2)
-			row[j] = k
-			a[j*N+i] = k
+			d := 1.0
+			if sys.penalty != nil {
+				d = sys.penalty[i]
+			}
+			a[i*N+i] = sys.smoothing * d
 		}
-		d := 1.0
-		if sys.penalty != nil {
-			d = sys.penalty[i]
+		near[lo/block] = best
+	})
+	// The upper triangle mirrors the lower, in blocks of rows.
+	parallel.Blocks(N, block, func() struct{} { return struct{}{} }, func(_ struct{}, lo, hi int) {
+		for j := lo; j < hi; j++ {
+			for i := j + 1; i < N; i++ {
+				a[j*N+i] = a[i*N+j]
+			}
 		}
-		a[i*N+i] = sys.smoothing * d
+	})
+	closest, ci, cj := math.Inf(1), 0, 0
+	for _, b := range near {
+		if b.r2 < closest {
+			closest, ci, cj = b.r2, b.ci, b.cj
+		}
 	}
 	sys.closeI, sys.closeJ, sys.closeDist = ci, cj, math.Sqrt(closest)
 	return a
