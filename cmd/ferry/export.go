@@ -46,7 +46,7 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 			if info, err := os.Stat(out); err == nil && !info.IsDir() {
 				return fmt.Errorf("-o %s: is a file, want a folder", out)
 			}
-			file, err := transform.ReadFile(args[0])
+			file, err := register.ReadRegistrationFile(args[0])
 			if err != nil {
 				return err
 			}

@@ -63,10 +63,7 @@ noise): the cell's source position and the candidate's target position.`,
 			// reader's is the true one.
 			inputs := append([]register.Input{{Path: args[0], SHA256: job.set.SHA256}}, decisionInputs...)
 			prov := register.Provenance{Command: "fit", Inputs: inputs, Flags: setFlags(cmd)}
-			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-			if err != nil {
-				return err
-			}
+			file := register.NewRegistration(job.problem, a, job.settings, prov)
 			data, err := file.Marshal()
 			if err != nil {
 				return err

@@ -100,11 +100,7 @@ counterpart never pairs.`,
 			if err != nil {
 				return err
 			}
-			base, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude,
-				register.Provenance{Command: "refine", Inputs: []register.Input{{Path: args[0], SHA256: job.set.SHA256}}, Flags: setFlags(cmd)})
-			if err != nil {
-				return err
-			}
+			base := register.NewRegistration(job.problem, a, job.settings, register.Provenance{Command: "refine", Inputs: []register.Input{{Path: args[0], SHA256: job.set.SHA256}}, Flags: setFlags(cmd)})
 			cells, cellPos, err := register.ReadCells(args[1], "cells", base, false)
 			if err != nil {
 				return err

@@ -107,10 +107,7 @@ func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags
 		return err
 	}
 	prov := register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
-	file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-	if err != nil {
-		return err
-	}
+	file := register.NewRegistration(job.problem, a, job.settings, prov)
 	check := a.JSON()
 	in.Check, in.Source, in.Excluded, in.Transform = &check, job.problem.Source, job.exclude, file
 	return nil

@@ -57,10 +57,7 @@ See docs/suggest.md.`,
 				return err
 			}
 			prov := register.Provenance{Command: "suggest", Inputs: hashes, Flags: setFlags(cmd)}
-			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-			if err != nil {
-				return err
-			}
+			file := register.NewRegistration(job.problem, a, job.settings, prov)
 			cells, pos, err := register.ReadCells(args[1], "cells", file, false)
 			if err != nil {
 				return err
@@ -80,7 +77,7 @@ See docs/suggest.md.`,
 			if err != nil {
 				return err
 			}
-			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
+			output := suggest.Output{Provenance: prov, SourceVoxel: file.Voxels.Source, TargetVoxel: file.Voxels.Target, Where: whereSet}
 			if out == stdoutName && asJSON {
 				return fmt.Errorf("-o - with --json: both would go to standard output; give -o a file name")
 			}

@@ -64,16 +64,16 @@ resample.`,
 				}
 				opt.Bounds = &b
 			}
-			file, err := transform.ReadFile(args[0])
+			file, err := register.ReadRegistrationFile(args[0])
 			if err != nil {
 				return err
 			}
 			if file.Transform.Dim() != 3 {
 				return fmt.Errorf("%s: images need a 3-D transform, this one is 2-D", args[0])
 			}
-			side, err := given("--source-voxel", sourceVoxel, "--source-origin", sourceOrigin, file.SourceVoxel)
+			side, err := given("--source-voxel", sourceVoxel, "--source-origin", sourceOrigin, file.Voxels.Source)
 			if inverse {
-				side, err = given("--target-voxel", targetVoxel, "--target-origin", targetOrigin, file.TargetVoxel)
+				side, err = given("--target-voxel", targetVoxel, "--target-origin", targetOrigin, file.Voxels.Target)
 			}
 			if err != nil {
 				return err

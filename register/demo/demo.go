@@ -179,10 +179,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	out.Assessment = a
 	prov := register.Provenance{Command: "demo", Inputs: []register.Input{{Path: f.Landmarks, SHA256: set.SHA256}},
 		Flags: []string{fmt.Sprintf("--seed=%d", o.Seed), "--exclude=" + strings.Join(out.Flagged, ",")}}
-	tf, err := register.TransformFile(set, problem, a, settings, vox, out.Flagged, prov)
-	if err != nil {
-		return nil, err
-	}
+	tf := register.NewRegistration(problem, a, settings, prov)
 	data, err := tf.Marshal()
 	if err != nil {
 		return nil, err
@@ -192,7 +189,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 	// Read the file back, as map would: the demo uses what it wrote.
-	if tf, err = transform.ReadFile(f.Fitted); err != nil {
+	if tf, err = register.ReadRegistrationFile(f.Fitted); err != nil {
 		return nil, err
 	}
 	f.Transform = f.Fitted
@@ -279,7 +276,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if err := refine.WritePairsTable(ctx, f.Pairs, pprov, out.RefineRecord, cells.Dim, vox); err != nil {
 			return nil, err
 		}
-		if tf, err = transform.ReadFile(f.Transform); err != nil {
+		if tf, err = register.ReadRegistrationFile(f.Transform); err != nil {
 			return nil, err
 		}
 	}
@@ -294,7 +291,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}},
 		Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
-	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.TargetVoxel); err != nil {
+	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.Voxels.Target); err != nil {
 		return nil, err
 	}
 
@@ -311,7 +308,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
 		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
 		Flags: mprov.Flags}
-	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.TargetVoxel); err != nil {
+	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.Voxels.Target); err != nil {
 		return nil, err
 	}
 	for i, r := range res {

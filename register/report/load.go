@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"fmt"
 
 	"ferry/internal/remedy"
@@ -15,7 +14,7 @@ import (
 // a transform file: the check it keeps, drawn at the landmarks of the file
 // it was fitted from, which must be the file at landmarkPath (by SHA-256).
 func FromTransform(in *Input, landmarkPath, transformPath string) error {
-	file, err := transform.ReadFile(transformPath)
+	file, err := register.ReadRegistrationFile(transformPath)
 	if err != nil {
 		return err
 	}
@@ -27,14 +26,11 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 		return remedy.Errorf("%s is not the landmark file %s was fitted from (sha256 %s, the transform names %s with sha256 %s): give that file, or leave out %s to check this one",
 			landmarkPath, transformPath, short(set.SHA256), file.Landmarks.Path, short(file.Landmarks.SHA256), remedy.Ref{Input: remedy.TransformFile, Words: "the transform file"})
 	}
-	if len(file.Summary) == 0 {
+	if file.Check == nil {
 		return fmt.Errorf("%s holds no leave-one-out check: refit it with ferry fit", transformPath)
 	}
-	var check register.CheckJSON
-	if err := json.Unmarshal(file.Summary, &check); err != nil {
-		return fmt.Errorf("%s: leave-one-out check: %v", transformPath, err)
-	}
-	problem, err := register.PrepareLandmarks(set, file.Landmarks.Excluded, register.Voxels{Source: file.SourceVoxel, Target: file.TargetVoxel})
+	check := file.Check
+	problem, err := register.PrepareLandmarks(set, file.Landmarks.Excluded, file.Voxels)
 	if err != nil {
 		return fmt.Errorf("%s: %w", transformPath, err)
 	}
@@ -51,7 +47,7 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 		in.Source[k] = problem.Source[i]
 	}
 	in.LandmarkFile, in.TransformFile = landmarkPath, transformPath
-	in.Check, in.Excluded, in.Transform = &check, file.Landmarks.Excluded, file
+	in.Check, in.Excluded, in.Transform = check, file.Landmarks.Excluded, file
 	return nil
 }
 
@@ -59,7 +55,7 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 // a sidecar or micrometre columns its positions are taken to be in the
 // units of the transform's target side) and checks its dimension.
 func AddMapped(in *Input, path string) error {
-	m, err := register.ReadMappedTable(path, in.Transform.TargetVoxel)
+	m, err := register.ReadMappedTable(path, in.Transform.Voxels.Target)
 	if err != nil {
 		return err
 	}

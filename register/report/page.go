@@ -30,7 +30,7 @@ type Input struct {
 	// from and through which the errors and the cells are carried back to
 	// the source; TransformFile names it, or is empty when the transform
 	// was fitted for the report.
-	Transform     *transform.File
+	Transform     *register.Registration
 	TransformFile string
 	// Cells, when not nil, are the mapped cells of CellsFile (register.ReadMappedTable).
 	Cells     []register.MappedCell

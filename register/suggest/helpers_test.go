@@ -27,17 +27,13 @@ func scenarioProblem(sc *simulate.Scenario) *register.Problem {
 
 // fitFile assesses p with s and puts the fit into a transform file, as
 // `ferry fit` does.
-func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*transform.File, *register.Assessment) {
+func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*register.Registration, *register.Assessment) {
 	t.Helper()
 	a, err := register.Assess(p, s)
 	if err != nil {
 		t.Fatal(err)
 	}
-	set := &landmarks.PairSet{Path: "landmarks.csv", Dim: p.Dim}
-	f, err := register.TransformFile(set, p, a, s, register.Voxels{}, nil, register.Provenance{Command: "test"})
-	if err != nil {
-		t.Fatal(err)
-	}
+	f := register.NewRegistration(p, a, s, register.Provenance{Command: "test"})
 	// suggest conditions on the fitted model's own kriging variance.
 	if f, err = register.WithoutField(f); err != nil {
 		t.Fatal(err)
@@ -51,4 +47,14 @@ func scenarioCells(sc *simulate.Scenario) []transform.Vec {
 		xs[i] = c.SourceUM
 	}
 	return xs
+}
+
+// uncertaintyOf is a copy of f's uncertainty model, decoded as a reader of
+// the file would decode it: a test may change it and leave f as it was.
+func uncertaintyOf(f *register.Registration, dim int) (*register.UncertaintyModel, error) {
+	raw, err := f.Uncertainty.Marshal()
+	if err != nil {
+		return nil, err
+	}
+	return register.ParseUncertaintyModel(raw, dim)
 }
