@@ -1,6 +1,7 @@
 package register
 
 import (
+	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -10,6 +11,7 @@ import (
 	"os"
 
 	"ferry/internal/strictjson"
+	"ferry/outfile"
 	"ferry/transform"
 )
 
@@ -98,6 +100,16 @@ func (r *Registration) WriteTo(w io.Writer) (int64, error) {
 	}
 	n, err := w.Write(data)
 	return int64(n), err
+}
+
+// WriteFile writes the registration file at path whole or not at all
+// (package outfile).
+func (r *Registration) WriteFile(ctx context.Context, path string) error {
+	data, err := r.Marshal()
+	if err != nil {
+		return err
+	}
+	return outfile.WriteBytes(ctx, path, data)
 }
 
 func checksum(w fileJSON) (string, error) {

@@ -74,13 +74,15 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 			if opt.TargetVoxel, err = optionalTriple("--target-voxel", targetVoxel, dim); err != nil {
 				return err
 			}
-			paths := []string{args[0]}
+			// The transform file as it was read; the mapped cells, which
+			// export reads itself, by their bytes.
+			inputs := []register.Input{file.Input()}
 			if mapped != "" {
-				paths = append(paths, mapped)
-			}
-			inputs, err := inputsOf(paths...)
-			if err != nil {
-				return err
+				m, err := inputsOf(mapped)
+				if err != nil {
+					return err
+				}
+				inputs = append(inputs, m...)
 			}
 			opt.Provenance = register.Provenance{Command: "export", Inputs: inputs, Flags: setFlags(cmd)}
 			opt.Progress = progress.Terminal(os.Stderr)

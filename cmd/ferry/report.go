@@ -52,11 +52,20 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 			if err != nil {
 				return err
 			}
-			hashes, err := inputsOf(inputs...)
+			// The landmark and transform files as they were read; the
+			// tables still to be read by their bytes, before they are.
+			var tables []string
+			for _, p := range []string{mappedPath, matchesPath} {
+				if p != "" {
+					tables = append(tables, p)
+				}
+			}
+			hashes, err := inputsOf(tables...)
 			if err != nil {
 				return err
 			}
-			in.Provenance = register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
+			in.Provenance.Command, in.Provenance.Flags = "report", setFlags(cmd)
+			in.Provenance.Inputs = append(in.Provenance.Inputs, hashes...)
 			if mappedPath != "" {
 				if err := report.AddMapped(in, mappedPath); err != nil {
 					return err
@@ -102,11 +111,8 @@ func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags
 	if err != nil {
 		return err
 	}
-	hashes, err := inputsOf(path)
-	if err != nil {
-		return err
-	}
-	prov := register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
+	in.Provenance.Inputs = []register.Input{register.PairsInput(job.set)}
+	prov := register.Provenance{Command: "report", Inputs: in.Provenance.Inputs, Flags: setFlags(cmd)}
 	file := register.NewRegistration(job.problem, a, job.settings, prov)
 	check := a.JSON()
 	in.Check, in.Source, in.Excluded, in.Transform = &check, job.problem.Source, job.exclude, file

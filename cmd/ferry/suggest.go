@@ -52,12 +52,7 @@ See docs/suggest.md.`,
 			if err != nil {
 				return err
 			}
-			hashes, err := inputsOf(inputs...)
-			if err != nil {
-				return err
-			}
-			prov := register.Provenance{Command: "suggest", Inputs: hashes, Flags: setFlags(cmd)}
-			file := register.NewRegistration(job.problem, a, job.settings, prov)
+			file := register.NewRegistration(job.problem, a, job.settings, register.Provenance{})
 			cells, pos, err := register.ReadCells(args[1], "cells", file, false)
 			if err != nil {
 				return err
@@ -73,6 +68,13 @@ See docs/suggest.md.`,
 					return err
 				}
 			}
+			// The provenance of the files as their readers read them.
+			read := []register.Input{register.PairsInput(job.set), register.PointsInput(cells)}
+			if whereSet != nil {
+				read = append(read, register.PointsInput(whereSet))
+			}
+			prov := register.Provenance{Command: "suggest", Inputs: read, Flags: setFlags(cmd)}
+			file.Check.Provenance = prov.Line()
 			res, err := suggest.Suggest(file, pos, opt)
 			if err != nil {
 				return err

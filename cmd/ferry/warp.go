@@ -97,15 +97,11 @@ resample.`,
 			}
 			// The inputs are read for the record before anything is
 			// written, so that an unreadable one leaves no image behind.
-			inputs, err := inputsOf(args[0])
-			if err != nil {
-				return err
-			}
 			stack, err := stackInput(args[1])
 			if err != nil {
 				return err
 			}
-			inputs = append(inputs, stack)
+			inputs := []register.Input{file.Input(), stack}
 			rep, err := imaging.Warp(cmd.Context(), out, file.Transform, pages, geom, grid, opt, progress.Terminal(os.Stderr))
 			if err != nil {
 				return err

@@ -77,7 +77,8 @@ var WarpedVoxelUM = transform.Vec{3, 3, 5}
 
 // writeWarped warps the in vivo stack into the target frame over its mapped
 // box, as ferry warp --voxel 3,3,5 does, with the record beside it.
-func writeWarped(ctx context.Context, path, transformPath string, t transform.Transform, stackPath string) error {
+func writeWarped(ctx context.Context, path string, reg *register.Registration, stackPath string) error {
+	t := reg.Transform
 	pages, err := imaging.OpenPages(stackPath)
 	if err != nil {
 		return err
@@ -98,7 +99,7 @@ func writeWarped(ctx context.Context, path, transformPath string, t transform.Tr
 		return err
 	}
 	prov := register.Provenance{Command: "warp", Inputs: []register.Input{
-		{Path: transformPath, SHA256: sha(transformPath)}, {Path: stackPath, SHA256: sha(stackPath)}},
+		reg.Input(), {Path: stackPath, SHA256: sha(stackPath)}},
 		Flags: []string{fmt.Sprintf("--voxel=%g,%g,%g", WarpedVoxelUM[0], WarpedVoxelUM[1], WarpedVoxelUM[2])}}
 	return imaging.WriteWarpRecord(ctx, path+".json", imaging.NewWarpRecord(path, h, g, grid, opt, rep, prov.Line()))
 }
@@ -118,7 +119,9 @@ func writeReport(ctx context.Context, path string, f *Files) error {
 			return err
 		}
 	}
-	for _, p := range []string{f.Landmarks, f.Transform, f.Mapped, f.Matches} {
+	// FromTransform listed the landmark and transform files as it read
+	// them; the tables the report reads are listed by their bytes.
+	for _, p := range []string{f.Mapped, f.Matches} {
 		if p != "" {
 			in.Provenance.Inputs = append(in.Provenance.Inputs, register.Input{Path: p, SHA256: sha(p)})
 		}

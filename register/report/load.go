@@ -13,6 +13,7 @@ import (
 // FromTransform fills in the check, landmarks and transform of a report on
 // a transform file: the check it keeps, drawn at the landmarks of the file
 // it was fitted from, which must be the file at landmarkPath (by SHA-256).
+// It adds the two files, as it read them, to in.Provenance.Inputs.
 func FromTransform(in *Input, landmarkPath, transformPath string) error {
 	file, err := register.ReadRegistrationFile(transformPath)
 	if err != nil {
@@ -48,6 +49,7 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 	}
 	in.LandmarkFile, in.TransformFile = landmarkPath, transformPath
 	in.Check, in.Excluded, in.Transform = check, file.Landmarks.Excluded, file
+	in.Provenance.Inputs = append(in.Provenance.Inputs, register.PairsInput(set), file.Input())
 	return nil
 }
 
