@@ -2,11 +2,9 @@ package main
 
 import (
 	"fmt"
-	"io"
 
 	"github.com/spf13/cobra"
 
-	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/report"
 )
@@ -52,38 +50,15 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 			if err != nil {
 				return err
 			}
-			// The landmark and transform files as they were read; the
-			// tables still to be read by their bytes, before they are.
-			var tables []string
-			for _, p := range []string{mappedPath, matchesPath} {
-				if p != "" {
-					tables = append(tables, p)
-				}
-			}
-			hashes, err := inputsOf(tables...)
-			if err != nil {
-				return err
-			}
 			in.Provenance.Command, in.Provenance.Flags = "report", setFlags(cmd)
-			in.Provenance.Inputs = append(in.Provenance.Inputs, hashes...)
-			if mappedPath != "" {
-				if err := report.AddMapped(in, mappedPath); err != nil {
-					return err
-				}
-			}
-			if matchesPath != "" {
-				if err := report.AddMatches(in, matchesPath); err != nil {
-					return err
-				}
+			if err := report.AddTables(in, mappedPath, matchesPath); err != nil {
+				return err
 			}
 			page, err := report.New(in)
 			if err != nil {
 				return err
 			}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				_, err := page.WriteTo(w)
-				return err
-			}); err != nil {
+			if err := page.WriteFile(cmd.Context(), out); err != nil {
 				return err
 			}
 			for _, w := range page.Warnings {

@@ -6,10 +6,8 @@ package demo
 import (
 	"context"
 	"fmt"
-	"io"
 
 	"ferry/imaging"
-	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/report"
 	"ferry/status"
@@ -111,28 +109,13 @@ func writeReport(ctx context.Context, path string, f *Files) error {
 	if err := report.FromTransform(in, f.Landmarks, f.Transform); err != nil {
 		return err
 	}
-	if err := report.AddMapped(in, f.Mapped); err != nil {
+	in.Provenance.Command = "report"
+	if err := report.AddTables(in, f.Mapped, f.Matches); err != nil {
 		return err
 	}
-	if f.Matches != "" {
-		if err := report.AddMatches(in, f.Matches); err != nil {
-			return err
-		}
-	}
-	// FromTransform listed the landmark and transform files as it read
-	// them; the tables the report reads are listed by their bytes.
-	for _, p := range []string{f.Mapped, f.Matches} {
-		if p != "" {
-			in.Provenance.Inputs = append(in.Provenance.Inputs, register.Input{Path: p, SHA256: sha(p)})
-		}
-	}
-	in.Provenance.Command = "report"
 	page, err := report.New(in)
 	if err != nil {
 		return err
 	}
-	return outfile.Write(ctx, path, func(w io.Writer) error {
-		_, err := page.WriteTo(w)
-		return err
-	})
+	return page.WriteFile(ctx, path)
 }

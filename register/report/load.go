@@ -53,6 +53,34 @@ func FromTransform(in *Input, landmarkPath, transformPath string) error {
 	return nil
 }
 
+// AddTables adds the tables of a report, either path empty when not given:
+// the mapped cells (AddMapped) and the matches (AddMatches). It lists them
+// in in.Provenance.Inputs by the SHA-256 of their bytes, before reading them.
+func AddTables(in *Input, mappedPath, matchesPath string) error {
+	var paths []string
+	for _, p := range []string{mappedPath, matchesPath} {
+		if p != "" {
+			paths = append(paths, p)
+		}
+	}
+	for _, p := range paths {
+		sum, err := register.FileSHA256(p)
+		if err != nil {
+			return err
+		}
+		in.Provenance.Inputs = append(in.Provenance.Inputs, register.Input{Path: p, SHA256: sum})
+	}
+	if mappedPath != "" {
+		if err := AddMapped(in, mappedPath); err != nil {
+			return err
+		}
+	}
+	if matchesPath != "" {
+		return AddMatches(in, matchesPath)
+	}
+	return nil
+}
+
 // AddMapped reads a map output for the report (ReadMappedTable; without
 // a sidecar or micrometre columns its positions are taken to be in the
 // units of the transform's target side) and checks its dimension.
