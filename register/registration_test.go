@@ -185,8 +185,7 @@ func TestReadRegistrationSizeLimit(t *testing.T) {
 }
 
 // FuzzReadRegistration: no input makes the reader panic, and whatever it
-// accepts is a transform that maps a point to finite numbers and writes
-// back to the bytes it was read from.
+// accepts is a transform that maps a point to finite numbers.
 func FuzzReadRegistration(f *testing.F) {
 	l := &transform.Linear{Model: transform.Rigid, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}
 	good, err := (&Registration{Program: "fuzz", Transform: l}).Marshal()
