@@ -251,7 +251,7 @@ func unmarshalLimited(name string, data []byte, limit int) (*Registration, error
 		}
 	}
 	if len(w.Uncertainty) > 0 {
-		if r.Uncertainty, err = ParseUncertaintyModel(w.Uncertainty, t.Dim()); err != nil {
+		if r.Uncertainty, err = parseUncertaintyModel(w.Uncertainty, t.Dim()); err != nil {
 			return fail("%v", err)
 		}
 	}

@@ -103,9 +103,9 @@ func (u UncertaintyModel) WithoutField() UncertaintyModel {
 // Marshal encodes the model for the transform file.
 func (u *UncertaintyModel) Marshal() (json.RawMessage, error) { return json.Marshal(u) }
 
-// ParseUncertaintyModel decodes and checks the model of a registration
-// file (ReadRegistration decodes it; this is for the model alone).
-func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, error) {
+// parseUncertaintyModel decodes and checks the model of a registration
+// file, for ReadRegistration.
+func parseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, error) {
 	if len(raw) == 0 {
 		return nil, errors.New("the transform file has no uncertainty model")
 	}

@@ -1,6 +1,8 @@
 package suggest
 
 import (
+	"bytes"
+	"fmt"
 	"testing"
 
 	"ferry/landmarks"
@@ -49,12 +51,19 @@ func scenarioCells(sc *simulate.Scenario) []transform.Vec {
 	return xs
 }
 
-// uncertaintyOf is a copy of f's uncertainty model, decoded as a reader of
-// the file would decode it: a test may change it and leave f as it was.
+// uncertaintyOf is f's uncertainty model as a reader of f's file decodes
+// it: a copy that a test may change, leaving f as it was.
 func uncertaintyOf(f *register.Registration, dim int) (*register.UncertaintyModel, error) {
-	raw, err := f.Uncertainty.Marshal()
+	var file bytes.Buffer
+	if _, err := f.WriteTo(&file); err != nil {
+		return nil, err
+	}
+	back, err := register.ReadRegistration(&file, "transform.json")
 	if err != nil {
 		return nil, err
 	}
-	return register.ParseUncertaintyModel(raw, dim)
+	if back.Dim() != dim || back.Uncertainty == nil {
+		return nil, fmt.Errorf("a %d-D registration with model %v, want %d-D with one", back.Dim(), back.Uncertainty != nil, dim)
+	}
+	return back.Uncertainty, nil
 }
