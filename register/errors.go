@@ -13,6 +13,12 @@ import "errors"
 // than the machine has (JobEstimate.CheckMemory).
 var ErrTooLarge = errors.New("job too large for this machine")
 
+// ErrChainUncertainty is matched by the refusal of NewMapper to map
+// through a chain of transforms (transform.Chain) with uncertainty: the
+// uncertainty model a transform file holds belongs to one fitted transform,
+// and each step of a chain was fitted to landmarks of its own.
+var ErrChainUncertainty = errors.New("no uncertainty model for a chain of transforms")
+
 // PairError is a fault of one landmark pair found before any fit: two
 // pairs at one source position (for a spline), or a pair far out of line
 // with all the others. Its message speaks of the pairs; ID names the pair

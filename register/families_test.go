@@ -18,9 +18,15 @@ import (
 type familyOutcome struct {
 	name                  string
 	wrong, found, falseFl int
-	// inside and total per map status of the held-out cells.
-	inside, total map[status.Status]int
-	p90, p95      float64
+	// missed names the kind of each planted mistake not found, with the
+	// kind of its landmark ("section on soma").
+	missed []string
+	// corrWrong and corrFound count the wrong correspondences alone.
+	corrWrong, corrFound int
+	// inside and total per map status of the held-out cells; stated is
+	// inside with the cells' own localisation error stated.
+	inside, total, stated map[status.Status]int
+	p90, p95              float64
 	// p95Hand is the cells' 95th-percentile error with the true mistakes
 	// removed by hand.
 	p95Hand float64
@@ -31,6 +37,14 @@ func (o familyOutcome) coverage(st status.Status) float64 {
 		return math.NaN()
 	}
 	return float64(o.inside[st]) / float64(o.total[st])
+}
+
+// statedCoverage is coverage with the cells' own error stated.
+func (o familyOutcome) statedCoverage(st status.Status) float64 {
+	if o.total[st] == 0 {
+		return math.NaN()
+	}
+	return float64(o.stated[st]) / float64(o.total[st])
 }
 
 func familyProblem(s *families.Scenario, keep func(i int) bool) *Problem {
@@ -48,14 +62,17 @@ func familyProblem(s *families.Scenario, keep func(i int) bool) *Problem {
 }
 
 // mapCells maps the scenario's cells through the fit of p and returns the
-// errors and the coverage counts per status.
-func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (errs []float64, inside, total map[status.Status]int) {
+// errors and the coverage counts per status; stated are the coverage
+// counts with the cells' own localisation error stated (map's cell
+// standard deviations: the in vivo picking noise of a soma, which the
+// families draw the cells with) in place of the error model's estimate.
+func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (errs []float64, inside, total, stated map[status.Status]int) {
 	m, _ := mapperFor(t, p, set)
 	xs := make([]transform.Vec, len(s.Cells))
 	for i, c := range s.Cells {
 		xs[i] = c.Source
 	}
-	inside, total = map[status.Status]int{}, map[status.Status]int{}
+	inside, total, stated = map[status.Status]int{}, map[status.Status]int{}, map[status.Status]int{}
 	for i, got := range m.MapAll(xs, nil, false) {
 		e := got.Pos.Sub(s.Cells[i].Truth).Norm()
 		errs = append(errs, e)
@@ -64,7 +81,13 @@ func mapCells(t testing.TB, s *families.Scenario, p *Problem, set Settings) (err
 			inside[got.Status]++
 		}
 	}
-	return errs, inside, total
+	sd := s.Spec.Noise.SourceSoma
+	for i, got := range m.MapAll(xs, &sd, false) {
+		if got.Pos.Sub(s.Cells[i].Truth).Norm() <= got.R95 {
+			stated[got.Status]++
+		}
+	}
+	return errs, inside, total, stated
 }
 
 func evaluateFamily(t testing.TB, s *families.Scenario) familyOutcome {
@@ -78,18 +101,26 @@ func evaluateFamily(t testing.TB, s *families.Scenario) familyOutcome {
 		switch {
 		case s.Wrong[i]:
 			o.wrong++
+			if s.Mistake[i] == families.WrongCorrespondence {
+				o.corrWrong++
+			}
 			if l.Flag != "" {
 				o.found++
+				if s.Mistake[i] == families.WrongCorrespondence {
+					o.corrFound++
+				}
+			} else {
+				o.missed = append(o.missed, fmt.Sprintf("%s on %s", s.Mistake[i], s.Kind[i]))
 			}
 		case l.Flag != "":
 			o.falseFl++
 		}
 	}
 	// The cells as the user would map them: the fit that fit writes.
-	errs, in, tot := mapCells(t, s, fitProblem(s, a), set)
-	o.inside, o.total = in, tot
+	errs, in, tot, stated := mapCells(t, s, fitProblem(s, a), set)
+	o.inside, o.total, o.stated = in, tot, stated
 	o.p90, o.p95 = quantile(errs, 0.90), quantile(errs, 0.95)
-	hand, _, _ := mapCells(t, s, familyProblem(s, func(i int) bool { return !s.Wrong[i] }), set)
+	hand, _, _, _ := mapCells(t, s, familyProblem(s, func(i int) bool { return !s.Wrong[i] }), set)
 	o.p95Hand = quantile(hand, 0.95)
 	return o
 }
@@ -103,9 +134,12 @@ func quantile(v []float64, q float64) float64 {
 func (o familyOutcome) String() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "%-26s found %d/%d false %d  p95 %.2f (hand %.2f)", o.name, o.found, o.wrong, o.falseFl, o.p95, o.p95Hand)
+	if len(o.missed) > 0 {
+		fmt.Fprintf(&b, "  missed: %s", strings.Join(o.missed, ", "))
+	}
 	for _, st := range []status.Status{status.OK, status.Isolated, status.Extrapolated} {
 		if o.total[st] > 0 {
-			fmt.Fprintf(&b, "  %s %.3f (%d)", st, o.coverage(st), o.total[st])
+			fmt.Fprintf(&b, "  %s %.3f (%d; stated %.3f)", st, o.coverage(st), o.total[st], o.statedCoverage(st))
 		}
 	}
 	return b.String()
@@ -148,8 +182,11 @@ func TestFamilies(t *testing.T) {
 		specs []families.Spec
 	}{{"clean", families.Clean()}, {"mistakes", families.Mistakes()}} {
 		falseFl, found, wrong := 0, 0, 0
+		corrFound, corrWrong := 0, 0
+		missed := map[string]int{}
 		pool := map[status.Status]*pooled{status.OK: {}, status.Extrapolated: {}}
-		var covs []float64
+		statedPool := map[status.Status]*pooled{status.OK: {}, status.Extrapolated: {}}
+		var covs, statedCovs []float64
 		for _, seed := range seeds {
 			for _, spec := range group.specs {
 				o := evaluateFamily(t, families.Draw(spec, seed))
@@ -157,11 +194,22 @@ func TestFamilies(t *testing.T) {
 				falseFl += o.falseFl
 				found += o.found
 				wrong += o.wrong
+				corrFound += o.corrFound
+				corrWrong += o.corrWrong
+				for _, m := range o.missed {
+					missed[m]++
+				}
 				for st, p := range pool {
 					p.inside += o.inside[st]
 					p.total += o.total[st]
 					if c := o.coverage(st); !math.IsNaN(c) {
 						covs = append(covs, c)
+					}
+					sp := statedPool[st]
+					sp.inside += o.stated[st]
+					sp.total += o.total[st]
+					if c := o.statedCoverage(st); !math.IsNaN(c) {
+						statedCovs = append(statedCovs, c)
 					}
 				}
 				if o.found == o.wrong && o.p95 > 1.05*o.p95Hand+0.1 {
@@ -185,6 +233,14 @@ func TestFamilies(t *testing.T) {
 			if found < wrong-2*runs || falseFl > 3*runs {
 				t.Errorf("%d of %d mistakes found and %d good landmarks flagged over %d scenarios", found, wrong, falseFl, 10*runs)
 			}
+			// Every wrong correspondence (40–60 µm in the section plane)
+			// is found; what is missed is a wrong section (20 µm in z) on
+			// a soma, whose own z picking error (sd 4 µm in EM units)
+			// hides it (docs/error-model.md, "Wrong sections on somata").
+			t.Logf("  wrong correspondences found: %d of %d; missed: %v", corrFound, corrWrong, missed)
+			if corrFound < corrWrong {
+				t.Errorf("%d of %d wrong correspondences found, want all", corrFound, corrWrong)
+			}
 		}
 		for st, p := range pool {
 			c := float64(p.inside) / float64(p.total)
@@ -202,6 +258,29 @@ func TestFamilies(t *testing.T) {
 		}
 		if med := covs[len(covs)/2]; med < 0.90 || med > 0.99 {
 			t.Errorf("%s: median coverage per scenario %.3f, want 0.90 to 0.99", group.name, med)
+		}
+		// With the cells' own localisation error stated, the radii rest
+		// on the error model's map error alone, which the landmarks'
+		// leave-one-out errors calibrate well: what docs/error-model.md
+		// records for seeds 1 to 3 ("Where the radii miss": 0.831 the
+		// worst, 5 of 96 pairs outside 0.90–0.99).
+		sort.Float64s(statedCovs)
+		outside := 0
+		for _, c := range statedCovs {
+			if c < 0.90 || c > 0.99 {
+				outside++
+			}
+		}
+		t.Logf("  with the cells' own error stated: coverage per scenario and status from %.3f to %.3f, %d of %d outside 0.90–0.99", statedCovs[0], statedCovs[len(statedCovs)-1], outside, len(statedCovs))
+		if statedCovs[0] < 0.80 || outside > len(statedCovs)/8 {
+			t.Errorf("%s, the cells' own error stated: the worst coverage per scenario and status %.3f (want at least 0.80), %d of %d outside 0.90–0.99 (want at most %d)", group.name, statedCovs[0], outside, len(statedCovs), len(statedCovs)/8)
+		}
+		for st, p := range statedPool {
+			c := float64(p.inside) / float64(p.total)
+			t.Logf("  %s cells, their own error stated: %.3f inside r95", st, c)
+			if c < 0.90 || c > 0.99 {
+				t.Errorf("%s: %.3f of the %s cells inside r95 with their own error stated, pooled, want 0.90 to 0.99", group.name, c, st)
+			}
 		}
 	}
 }

@@ -458,6 +458,35 @@ func fitField(dim int, src, dst []transform.Vec, kinds []landmarks.Kind, fixed *
 			}
 			consider(t)
 		}
+		if enough && criterion == byLOO {
+			// For the radii, the kinds' noise ratios refined around
+			// the best, by √2 and then 2^¼ either side: a mapped
+			// cell's own picking noise is a soma's, most of its radius
+			// where the map is good, and the grid's factor of 2 alone
+			// may leave it 40 % off (docs/error-model.md, "Where the
+			// radii miss"). The flags keep the coarse grid.
+			for _, k := range ks[1:] {
+				for _, step := range []float64{math.Sqrt2, math.Sqrt(math.Sqrt2)} {
+					base := best
+					for _, f := range []float64{1 / step, step} {
+						kn := map[landmarks.Kind]float64{}
+						for kk, v := range base.kn {
+							kn[kk] = v
+						}
+						d := 1.0
+						if v, ok := base.kn[k]; ok {
+							d = v
+						}
+						kn[k] = d * f
+						t, err := try(base.nu, base.length, kn)
+						if err != nil {
+							return nil, err
+						}
+						consider(t)
+					}
+				}
+			}
+		}
 	}
 	fit := &fieldFit{
 		params: FieldParams{Smoothness: best.nu, Length: best.length, Amplitude: best.s, Noise: best.lambda, Kinds: map[landmarks.Kind]float64{}},

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sync"
 
 	"gonum.org/v1/gonum/mat"
@@ -157,16 +158,28 @@ func (f *fieldMapper) variances(xs []transform.Vec, onGrid bool) []transform.Vec
 
 // fieldGrid is the grid of variancesOnGrid: the landmarks' bounding box
 // widened by a tenth of its size on every side, cut into about
-// 2·fieldGridNodes nodes, with the exact variances at its nodes. It depends on the model
-// only, so that a cell's radius does not depend on which other cells are
-// mapped with it, nor on the blocks they are mapped in.
+// 2·fieldGridNodes nodes, with the exact variances at its nodes. It depends
+// on the model only, so that a cell's radius does not depend on which other
+// cells are mapped with it, nor on the blocks they are mapped in.
+//
+// A node's variance is computed when a point in one of the grid cells it
+// bounds first asks for it: the cells of a job seldom fill the whole box
+// (its margin lies mostly outside the landmarks' hull, and an imaged block
+// seldom reaches every corner), and each node costs O(N²). A node's value
+// does not depend on which nodes are computed with it (exactVariances
+// treats every point alone, in a fixed order of operations), so the radii
+// are the same bits as with every node computed at once.
 type fieldGrid struct {
 	lo, hi transform.Vec
 	cells  [3]int
-	v      []transform.Vec
+	nodes  []transform.Vec
+	// mu guards v and known: mappers are safe for concurrent use.
+	mu    sync.Mutex
+	v     []transform.Vec
+	known []bool
 }
 
-// grid returns the mapper's grid, computed on first use.
+// grid returns the mapper's grid, laid out on first use.
 func (f *fieldMapper) grid() *fieldGrid {
 	f.gridOnce.Do(func() { f.g = f.newGrid() })
 	return f.g
@@ -218,7 +231,9 @@ func (f *fieldMapper) newGrid() *fieldGrid {
 			nodes[i][2] = 0
 		}
 	}
-	g.v = f.exactVariances(nodes)
+	g.nodes = nodes
+	g.v = make([]transform.Vec, len(nodes))
+	g.known = make([]bool, len(nodes))
 	return g
 }
 
@@ -242,12 +257,46 @@ func (f *fieldMapper) variancesOnGrid(xs []transform.Vec) []transform.Vec {
 	out := make([]transform.Vec, len(xs))
 	var outside []int
 	var far []transform.Vec
+	var need []int
+	g.mu.Lock()
+	defer g.mu.Unlock()
 	for i, x := range xs {
 		if !g.inside(x, f.dim) {
 			outside, far = append(outside, i), append(far, x)
 			continue
 		}
-		out[i] = g.at(x, f.dim)
+		c := g.corners(x, f.dim)
+		for q, node := range c.node {
+			if c.w[q] != 0 && !g.known[node] {
+				g.known[node] = true
+				need = append(need, node)
+			}
+		}
+	}
+	if len(need) > 0 {
+		// Ascending, so that the work is the same whatever the order of
+		// the points.
+		slices.Sort(need)
+		pts := make([]transform.Vec, len(need))
+		for q, node := range need {
+			pts[q] = g.nodes[node]
+		}
+		for q, v := range f.exactVariances(pts) {
+			g.v[need[q]] = v
+		}
+	}
+	// The corners are found again rather than kept (128 bytes a point):
+	// a few divisions against a block's worth of garbage.
+	for i, x := range xs {
+		if !g.inside(x, f.dim) {
+			continue
+		}
+		c := g.corners(x, f.dim)
+		for q, node := range c.node {
+			if w := c.w[q]; w != 0 {
+				out[i] = out[i].Add(g.v[node].Scale(w))
+			}
+		}
 	}
 	for j, v := range f.exactVariances(far) {
 		out[outside[j]] = v
@@ -255,8 +304,16 @@ func (f *fieldMapper) variancesOnGrid(xs []transform.Vec) []transform.Vec {
 	return out
 }
 
-// at interpolates the grid's variances at x, a point inside its box.
-func (g *fieldGrid) at(x transform.Vec, dim int) transform.Vec {
+// gridCorners are the nodes of the grid cell around a point and their
+// trilinear weights, in the order the interpolation sums them.
+type gridCorners struct {
+	node [8]int
+	w    [8]float64
+}
+
+// corners finds the grid cell of x, a point inside the grid's box, and
+// the weights of its corners.
+func (g *fieldGrid) corners(x transform.Vec, dim int) gridCorners {
 	idx := func(a, b, c int) int { return (c*(g.cells[1]+1)+b)*(g.cells[0]+1) + a }
 	var cell [3]int
 	var t [3]float64
@@ -272,7 +329,8 @@ func (g *fieldGrid) at(x transform.Vec, dim int) transform.Vec {
 	if dim == 2 {
 		dz = 1
 	}
-	var out transform.Vec
+	var out gridCorners
+	q := 0
 	for c := range dz {
 		wc := 1 - t[2]
 		if c == 1 {
@@ -288,11 +346,8 @@ func (g *fieldGrid) at(x transform.Vec, dim int) transform.Vec {
 				if a == 1 {
 					wa = t[0]
 				}
-				w := wa * wb * wc
-				if w == 0 {
-					continue
-				}
-				out = out.Add(g.v[idx(cell[0]+a, cell[1]+b, cell[2]+c)].Scale(w))
+				out.node[q], out.w[q] = idx(cell[0]+a, cell[1]+b, cell[2]+c), wa*wb*wc
+				q++
 			}
 		}
 	}
@@ -315,18 +370,25 @@ func (f *fieldMapper) exactVariances(xs []transform.Vec) []transform.Vec {
 			}
 			var ra mat.Dense
 			ra.Mul(f.corr, a)
-			n := len(f.src)
-			for i := s; i < e; i++ {
-				c := i - s
-				rho, aRa, ada := 0.0, 0.0, 0.0
-				for j := range n {
-					aj := a.At(j, c)
-					rho += aj * f.params.corr(xs[i].Sub(f.src[j]).Norm())
-					aRa += aj * ra.At(j, c)
-					ada += aj * aj * f.d[j]
+			// Row by row, each point's sums over the landmarks in the
+			// landmarks' order: the rows of a and ra are read where they
+			// lie, where a point's column strides across them.
+			n, pts := len(f.src), e-s
+			sums := make([]float64, 3*pts)
+			rho, aRa, ada := sums[:pts], sums[pts:2*pts], sums[2*pts:]
+			for j := range n {
+				aj, raj := a.RawRowView(j), ra.RawRowView(j)
+				src, dj := f.src[j], f.d[j]
+				for c := range pts {
+					w := aj[c]
+					rho[c] += w * f.params.corr(xs[s+c].Sub(src).Norm())
+					aRa[c] += w * raj[c]
+					ada[c] += w * w * dj
 				}
+			}
+			for c := range pts {
 				for k := range f.dim {
-					out[i][k] = f.params.Amplitude[k] * math.Max(1-2*rho+aRa+f.params.Noise[k]*ada, 0)
+					out[s+c][k] = f.params.Amplitude[k] * math.Max(1-2*rho[c]+aRa[c]+f.params.Noise[k]*ada[c], 0)
 				}
 			}
 		}

@@ -336,6 +336,13 @@ func (m *Mapper) MapAll(xs []transform.Vec, cellSD *transform.Vec, inverse bool)
 // variances (onGrid) made by the caller, for the whole job.
 func (m *Mapper) mapAll(xs []transform.Vec, cellSD *transform.Vec, inverse, onGrid bool) []Mapped {
 	out := make([]Mapped, len(xs))
+	m.mapInto(out, xs, cellSD, inverse, onGrid)
+	return out
+}
+
+// mapInto is mapAll writing into out (len(xs) long), so that a job mapped
+// block by block fills one slice instead of copying each block's.
+func (m *Mapper) mapInto(out []Mapped, xs []transform.Vec, cellSD *transform.Vec, inverse, onGrid bool) {
 	src := make([]transform.Vec, len(xs))
 	ok := make([]bool, len(xs))
 	each(len(xs), func(i int) {
@@ -366,7 +373,6 @@ func (m *Mapper) mapAll(xs []transform.Vec, cellSD *transform.Vec, inverse, onGr
 			out[i] = m.finishForward(src[i], factors[i], cellSD)
 		}
 	})
-	return out
 }
 
 // mapBlock is how many points MapAllContext maps between two looks at its
@@ -378,12 +384,13 @@ const mapBlock = 1 << 14
 // within a fraction of a second. The blocks are of a fixed size, so that the
 // result does not depend on the number of cores.
 func (m *Mapper) MapAllContext(ctx context.Context, xs []transform.Vec, cellSD *transform.Vec, inverse bool) ([]Mapped, error) {
-	out := make([]Mapped, 0, len(xs))
+	out := make([]Mapped, len(xs))
 	for lo := 0; lo < len(xs); lo += mapBlock {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		out = append(out, m.mapAll(xs[lo:min(lo+mapBlock, len(xs))], cellSD, inverse, len(xs) > fieldGridNodes)...)
+		hi := min(lo+mapBlock, len(xs))
+		m.mapInto(out[lo:hi], xs[lo:hi], cellSD, inverse, len(xs) > fieldGridNodes)
 	}
 	return out, nil
 }

@@ -18,7 +18,8 @@ const MaxLinearFactor = 1e6
 // linear part beyond MaxLinearFactor. A transform file's checksum only
 // proves that the file is as written; one edited and resealed by hand with
 // an offset of 1e200 µm otherwise mapped cells to positions whose distances
-// overflowed to +Inf in the output.
+// overflowed to +Inf in the output. It refuses a chain of transforms too
+// (chainUncertainty), as NewMapper's first check.
 func plausible(t transform.Transform) error {
 	switch t := t.(type) {
 	case *transform.Linear:
@@ -29,11 +30,9 @@ func plausible(t transform.Transform) error {
 		}
 		return plausibleParts(transform.Mat{}, t.Nodes, "node")
 	case *transform.Chain:
-		for i, s := range t.Steps {
-			if err := plausible(s); err != nil {
-				return fmt.Errorf("chain step %d: %w", i+1, err)
-			}
-		}
+		// Refused whatever its parameters: NewMapper calls plausible
+		// first, and no uncertainty model can be given for a chain.
+		return chainUncertainty(t)
 	}
 	return nil
 }

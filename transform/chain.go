@@ -7,7 +7,11 @@ import (
 
 // Chain applies its steps in turn: in vivo → fixed slab → EM, say. Its
 // Jacobian is the product of the steps' Jacobians by the chain rule and its
-// inverse undoes the steps in reverse order.
+// inverse undoes the steps in reverse order. It has no predictor: each step
+// was fitted to landmarks of its own, and their errors are not combined
+// here, so a chain warps and exports but is not mapped with uncertainty
+// (register refuses it; docs/formats.md, "Chains"). Build one with
+// NewChain, which checks the steps.
 type Chain struct {
 	Steps []Transform
 }

@@ -49,3 +49,29 @@ func TestSmoothingPathSameOnAnyCores(t *testing.T) {
 		}
 	}
 }
+
+// The exact refits behind a rigid motion's or a similarity's leave-one-out
+// run on all cores, each writing only its own pair's error: 200 pairs are
+// split across cores, and the bits must not change with their number.
+func TestOrthogonalLOOSameOnAnyCores(t *testing.T) {
+	src, dst := benchLandmarks(200)
+	for _, kind := range []Kind{Rigid, Similarity} {
+		fit := func(procs int) string {
+			defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+			res, err := Fit(kind, 3, src, dst, Options{LeaveOneOut: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(res.LOO) != len(src) {
+				t.Fatalf("%v: %d leave-one-out errors for %d pairs", kind, len(res.LOO), len(src))
+			}
+			return fmt.Sprintf("%x", res.LOO)
+		}
+		one := fit(1)
+		for _, procs := range []int{2, 3, 7} {
+			if fit(procs) != one {
+				t.Errorf("%v: GOMAXPROCS=%d gives other bits than GOMAXPROCS=1", kind, procs)
+			}
+		}
+	}
+}

@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sync"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -348,23 +347,26 @@ func invertUpper(t blas64.Triangular) bool {
 	for i := range k {
 		copy(c11[i*k+i:(i+1)*k], t.Data[i*st+i:i*st+k])
 	}
+	// The two blocks write disjoint parts of t, so they run side by side
+	// as two tasks of one pool, or one after the other on one core.
 	var ok1, ok2 bool
-	var wg sync.WaitGroup
-	wg.Add(1)
-	go func() {
-		defer wg.Done()
-		ok1 = lapack64.Trtri(u11)
-	}()
-	ok2 = lapack64.Trtri(u22)
-	if ok2 {
-		// X = −U11⁻¹ U12 U22⁻¹: first U12 ← U12·U22⁻¹, then solve
-		// U11 X = −U12.
-		u12 := blas64.General{Rows: k, Cols: n - k, Stride: st, Data: t.Data[k:]}
-		blas64.Trmm(blas.Right, blas.NoTrans, 1, u22, u12)
-		c := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: k, Stride: k, Data: c11}
-		blas64.Trsm(blas.Left, blas.NoTrans, -1, c, u12)
-	}
-	wg.Wait()
+	parallel.Ranges(2, 1, func(lo, hi int) {
+		for task := lo; task < hi; task++ {
+			if task == 0 {
+				ok1 = lapack64.Trtri(u11)
+				continue
+			}
+			ok2 = lapack64.Trtri(u22)
+			if ok2 {
+				// X = −U11⁻¹ U12 U22⁻¹: first U12 ← U12·U22⁻¹, then
+				// solve U11 X = −U12.
+				u12 := blas64.General{Rows: k, Cols: n - k, Stride: st, Data: t.Data[k:]}
+				blas64.Trmm(blas.Right, blas.NoTrans, 1, u22, u12)
+				c := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: k, Stride: k, Data: c11}
+				blas64.Trsm(blas.Left, blas.NoTrans, -1, c, u12)
+			}
+		}
+	})
 	return ok1 && ok2
 }
 

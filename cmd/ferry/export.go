@@ -8,6 +8,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"ferry/internal/remedy"
 	"ferry/landmarks"
 	"ferry/progress"
 	"ferry/register"
@@ -91,7 +92,11 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 				return err
 			}
 			for _, n := range res.Notes {
-				fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %s\n", n.Named(flagName))
+				note := n.String()
+				if m, ok := n.(remedy.Message); ok {
+					note = m.Named(flagName)
+				}
+				fmt.Fprintf(cmd.ErrOrStderr(), "ferry: warning: %s\n", note)
 			}
 			printExport(cmd, res)
 			return nil

@@ -33,6 +33,14 @@ func TestExportCommand(t *testing.T) {
 	if !strings.Contains(o.stdout, "21 × 17 × 13 samples, spacing 25 × 25 × 25 µm, over source x -50.0 to 450.0, y -40.0 to 360.0, z -30.0 to 270.0 µm") {
 		t.Errorf("export --bounds printed\n%s", o.stdout)
 	}
+	// Cells outside a small box are counted in a warning that names the
+	// flag to change, in the flag's form; the export itself succeeds.
+	small := filepath.Join(t.TempDir(), "small")
+	o = mustSucceed(t, "export", tps, "--mapped", mapped, "--target-voxel", "0.5,0.5,1", "--bounds", "0,0,0,50,50,50", "--spacing", "25", "-o", small)
+	if !strings.Contains(o.stderr, "ferry: warning: ") || !strings.Contains(o.stderr, "outside the displacement field's box") ||
+		!strings.Contains(o.stderr, "give --bounds X0,Y0,Z0,X1,Y1,Z1 in source µm") {
+		t.Errorf("export with cells outside --bounds warned\n%s", o.stderr)
+	}
 	// Without a target voxel size anywhere the point list cannot be made.
 	dir := t.TempDir()
 	for _, tc := range []struct {

@@ -76,9 +76,11 @@ type Result struct {
 	// Points and Unplaced count the cells of the point list written and
 	// left out (no position in the mapped table).
 	Points, Unplaced int
-	// Notes say what had to be assumed, for the user to hear; a note's
-	// String is in words, and Named names the inputs it asks to change.
-	Notes []remedy.Message
+	// Notes say what had to be assumed, for the user to hear. A note's
+	// String speaks of values (a box in source µm), never of the names a
+	// caller gives the inputs it asks to change; cmd/ferry names them by
+	// its flags, as it does in errors.
+	Notes []fmt.Stringer
 }
 
 // Manifest is export.json.

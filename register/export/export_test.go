@@ -286,7 +286,11 @@ func TestWriteNotesCellsOutsideTheField(t *testing.T) {
 			var words, named []string
 			for _, n := range res.Notes {
 				words = append(words, n.String())
-				named = append(named, n.Named(flagOf))
+				m, ok := n.(remedy.Message)
+				if !ok {
+					t.Fatalf("note %q is a %T, which names no inputs", n, n)
+				}
+				named = append(named, m.Named(flagOf))
 			}
 			notes, flagged := strings.Join(words, "\n"), strings.Join(named, "\n")
 			if tc.want == "" && notes != "" || tc.want != "" && (!strings.Contains(notes, tc.want) || !strings.Contains(notes, "give a box in source µm")) {

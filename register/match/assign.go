@@ -4,6 +4,7 @@ import (
 	"container/heap"
 	"errors"
 	"math"
+	"slices"
 )
 
 // sparseProblem is a rectangular assignment problem on a sparse bipartite
@@ -143,4 +144,73 @@ func (h *columnHeap) Pop() any {
 	x := old[len(old)-1]
 	*h = old[:len(old)-1]
 	return x
+}
+
+// assign chooses for each cell (by rank) a candidate rank, or −1 for none,
+// maximising the total log marginal probability of the choices with no
+// candidate taken twice. Each cell has a no-match column of its own. The
+// bipartite graph falls apart into connected components that are solved
+// apart: they are small, since a cell reaches only candidates near it.
+func assign(a *association, m marginals) ([]int, error) {
+	kept := func(k int) bool { return m.edge[k] >= minEdgeP }
+	chosen := make([]int, a.cells)
+	local := map[int]int{}
+	for _, rows := range a.components(kept) {
+		if len(rows) == 1 && edgesOf(a, m, rows[0]) == 0 {
+			chosen[rows[0]] = -1
+			continue
+		}
+		// Columns: the component's candidates by rank, then each row's
+		// no-match column.
+		clear(local)
+		var ranks []int
+		for _, i := range rows {
+			for k := a.start[i]; k < a.start[i+1]; k++ {
+				if kept(k) {
+					if _, ok := local[a.rank[k]]; !ok {
+						local[a.rank[k]] = 0
+						ranks = append(ranks, a.rank[k])
+					}
+				}
+			}
+		}
+		slices.Sort(ranks)
+		for c, r := range ranks {
+			local[r] = c
+		}
+		p := &sparseProblem{rows: len(rows), cols: len(ranks) + len(rows), start: make([]int, len(rows)+1)}
+		for r, i := range rows {
+			for k := a.start[i]; k < a.start[i+1]; k++ {
+				if kept(k) {
+					p.col = append(p.col, local[a.rank[k]])
+					p.cost = append(p.cost, -math.Log(m.edge[k]))
+				}
+			}
+			p.col = append(p.col, len(ranks)+r)
+			p.cost = append(p.cost, -math.Log(m.none[i]))
+			p.start[r+1] = len(p.col)
+		}
+		cols, err := p.solve()
+		if err != nil {
+			return nil, err
+		}
+		for r, i := range rows {
+			if c := cols[r]; c < len(ranks) {
+				chosen[i] = ranks[c]
+			} else {
+				chosen[i] = -1
+			}
+		}
+	}
+	return chosen, nil
+}
+
+func edgesOf(a *association, m marginals, i int) int {
+	n := 0
+	for k := a.start[i]; k < a.start[i+1]; k++ {
+		if m.edge[k] >= minEdgeP {
+			n++
+		}
+	}
+	return n
 }

@@ -224,3 +224,44 @@ func csvField(f string) string {
 	}
 	return `"` + strings.ReplaceAll(f, `"`, `""`) + `"`
 }
+
+// accepted is the candidate accepted for cell, if any.
+func (d *Decisions) accepted(cell int) (int, bool) {
+	if d == nil {
+		return -1, false
+	}
+	j, ok := d.Accepted[cell]
+	return j, ok
+}
+
+// applyDecisions takes the settled cells out of the assignment (no options:
+// their no-match option then holds all their probability, and they weigh
+// nothing in the prior) and strikes the forbidden candidates from the
+// others' options, which is the posterior given that those pairs are not
+// matches.
+func applyDecisions(opts []cellOptions, d *Decisions, cellOrder, candOrder []int) {
+	taken := map[int]bool{} // candidate indices accepted for some cell
+	for _, j := range d.Accepted {
+		taken[j] = true
+	}
+	for r, i := range cellOrder {
+		o := &opts[r]
+		if _, ok := d.Accepted[i]; ok || d.None[i] {
+			*o = cellOptions{outside: o.outside, inReach: o.inReach}
+			continue
+		}
+		rejected := d.Rejected[i]
+		if len(taken) == 0 && len(rejected) == 0 {
+			continue
+		}
+		ranks, ratios := o.ranks[:0], o.ratios[:0]
+		for k, rank := range o.ranks {
+			j := candOrder[rank]
+			if _, no := slices.BinarySearch(rejected, j); no || taken[j] {
+				continue
+			}
+			ranks, ratios = append(ranks, rank), append(ratios, o.ratios[k])
+		}
+		o.ranks, o.ratios = ranks, ratios
+	}
+}

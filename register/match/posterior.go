@@ -228,3 +228,65 @@ func (a *association) marginalise() marginals {
 	}
 	return m
 }
+
+// estimatePrior is the share π of cells inside the candidates' volume that
+// have a counterpart among them, estimated from the cells themselves: the
+// maximum a posteriori value of the marginal likelihood
+//
+//	Π_i (1 − π c_i + π c_i Λ_i),  Λ_i = Σ_j ψ_ij/ρ_i
+//
+// (c_i the chance that cell i's counterpart lies inside the volume, Λ_i
+// the sum of its likelihood ratios; the one-to-one constraint is left out,
+// which matters little for one number shared by all cells) under a
+// Beta(18, 2) prior, and at most maxPrior. The log-posterior is concave in
+// π, so its maximum is the one zero of its derivative, found by bisection.
+func estimatePrior(opts []cellOptions) float64 {
+	a := priorMean*priorWeight - 1
+	b := (1-priorMean)*priorWeight - 1
+	slope := func(pi float64) float64 {
+		d := a/pi - b/(1-pi)
+		for _, o := range opts {
+			if o.inside == 0 {
+				continue
+			}
+			lam := o.rest
+			for _, r := range o.ratios {
+				lam += r
+			}
+			x := o.inside * (lam - 1)
+			d += x / (1 + pi*x)
+		}
+		return d
+	}
+	if slope(maxPrior) >= 0 {
+		return maxPrior
+	}
+	lo, hi := 1e-6, maxPrior
+	for range 100 {
+		mid := 0.5 * (lo + hi)
+		if slope(mid) > 0 {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return 0.5 * (lo + hi)
+}
+
+// buildAssociation collects the cells' options (cells and candidates by
+// rank) into one sparse table, with prior the share of cells with a
+// counterpart.
+func buildAssociation(opts []cellOptions, nCands int, prior float64) *association {
+	a := &association{cells: len(opts), cands: nCands, start: make([]int, len(opts)+1),
+		none: make([]float64, len(opts)), rest: make([]float64, len(opts))}
+	for i, o := range opts {
+		p := prior * o.inside
+		for k, r := range o.ratios {
+			a.rank = append(a.rank, o.ranks[k])
+			a.weight = append(a.weight, p*r)
+		}
+		a.none[i], a.rest[i] = 1-p, p*o.rest
+		a.start[i+1] = len(a.rank)
+	}
+	return a
+}

@@ -3,10 +3,7 @@ package suggest
 import (
 	"ferry/progress"
 	"math"
-	"runtime"
 	"sort"
-	"sync"
-	"sync/atomic"
 
 	"ferry/internal/parallel"
 	"ferry/transform"
@@ -45,26 +42,16 @@ func best(scores []score) int {
 	return b
 }
 
-// forCandidates runs work on every candidate index on all cores, each
-// worker with its own scratch of n numbers.
+// forCandidates runs work on every candidate index on all cores, handed
+// out one at a time (a candidate's cost depends on how many cells it
+// reaches), each worker with its own scratch of n numbers. Work writes only
+// candidate j's own result, so the outcome does not depend on the cores.
 func forCandidates(count, n int, work func(j int, scratch []float64)) {
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for range min(runtime.GOMAXPROCS(0), max(count, 1)) {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			scratch := make([]float64, n)
-			for {
-				j := int(next.Add(1)) - 1
-				if j >= count {
-					return
-				}
-				work(j, scratch)
-			}
-		}()
-	}
-	wg.Wait()
+	parallel.Blocks(count, 1, func() []float64 { return make([]float64, n) }, func(scratch []float64, lo, hi int) {
+		for j := lo; j < hi; j++ {
+			work(j, scratch)
+		}
+	})
 }
 
 // parallelRange runs work over [0, n) on all cores, for work of O(cells)

@@ -92,10 +92,12 @@ type Scenario struct {
 	Kind []landmarks.Kind
 	// Source and Target are the picks (µm) as a user would give them.
 	Source, Target []transform.Vec
-	// Wrong marks the planted mistakes.
-	Wrong []bool
-	Cells []Cell
-	truth func(transform.Vec) transform.Vec
+	// Wrong marks the planted mistakes; Mistake names each one's kind
+	// (WrongCorrespondence or WrongSection, "" for a good landmark).
+	Wrong   []bool
+	Mistake []string
+	Cells   []Cell
+	truth   func(transform.Vec) transform.Vec
 }
 
 // Truth maps a true source position to its true target position.
@@ -140,6 +142,7 @@ func Draw(spec Spec, seed uint64) *Scenario {
 		s.Source = append(s.Source, src)
 		s.Target = append(s.Target, y)
 		s.Wrong = append(s.Wrong, false)
+		s.Mistake = append(s.Mistake, "")
 	}
 	first := -1
 	for _, m := range spec.Mistakes {
@@ -167,6 +170,7 @@ func Draw(spec Spec, seed uint64) *Scenario {
 			panic("families: unknown mistake " + m)
 		}
 		s.Wrong[i] = true
+		s.Mistake[i] = m
 		if first < 0 {
 			first = i
 		}
