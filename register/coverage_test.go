@@ -36,12 +36,7 @@ func mapperFor(t testing.TB, p *Problem, s Settings) (*Mapper, *Assessment) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	f := &transform.File{Transform: a.Result.Transform, Landmarks: transform.Provenance{Path: "x", SHA256: "0"}}
-	raw, err := NewUncertaintyModel(p, a, s).Marshal()
-	if err != nil {
-		t.Fatal(err)
-	}
-	f.Uncertainty = raw
+	f := &Registration{Transform: a.Result.Transform, Landmarks: LandmarkSource{Path: "x", SHA256: "0"}, Uncertainty: NewUncertaintyModel(p, a, s)}
 	m, err := NewMapper(f)
 	if err != nil {
 		t.Fatal(err)

@@ -37,10 +37,7 @@ func Example() {
 	if err != nil {
 		log.Fatal(err)
 	}
-	file, err := register.TransformFile(set, clean, fitted, settings, register.Voxels{}, check.Flagged(), register.Provenance{Command: "example"})
-	if err != nil {
-		log.Fatal(err)
-	}
+	file := register.NewRegistration(clean, fitted, settings, register.Provenance{Command: "example"})
 	mapper, err := register.NewMapper(file)
 	if err != nil {
 		log.Fatal(err)
@@ -121,10 +118,7 @@ func ExampleMapper_MapAll() {
 	if err != nil {
 		log.Fatal(err)
 	}
-	file, err := register.TransformFile(set, problem, fitted, settings, register.Voxels{}, []string{"L14"}, register.Provenance{Command: "example"})
-	if err != nil {
-		log.Fatal(err)
-	}
+	file := register.NewRegistration(problem, fitted, settings, register.Provenance{Command: "example"})
 	mapper, err := register.NewMapper(file)
 	if err != nil {
 		log.Fatal(err)

@@ -425,25 +425,20 @@ func cellNoiseOf(kinds []landmarks.Kind, f *FieldParams) float64 {
 	return mean
 }
 
-// WithoutField returns a copy of f whose uncertainty model has the error
+// WithoutField returns a copy of r whose uncertainty model has the error
 // model of field.go taken out, leaving the fitted model's own kriging
 // variance calibrated by the per-axis scale: the model suggest conditions
 // on when it adds landmarks (its cross-covariances after a new landmark are
-// those of the spline or the affine fit). f itself is left as it was.
-func WithoutField(f *transform.File) (*transform.File, error) {
-	u, err := ParseUncertaintyModel(f.Uncertainty, f.Transform.Dim())
-	if err != nil {
+// those of the spline or the affine fit). r itself is left as it was.
+func WithoutField(r *Registration) (*Registration, error) {
+	if err := r.checkUncertainty(); err != nil {
 		return nil, err
 	}
-	if u.Field == nil {
-		return f, nil
+	if r.Uncertainty.Field == nil {
+		return r, nil
 	}
-	u.Method, u.Field, u.Kinds, u.CellNoise = methodName, nil, nil, 0
-	raw, err := u.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	g := *f
-	g.Uncertainty = raw
+	u := r.Uncertainty.WithoutField()
+	g := *r
+	g.Uncertainty = &u
 	return &g, nil
 }

@@ -24,13 +24,13 @@ type FieldGain struct {
 	t transform.Transform
 }
 
-// NewFieldGain prepares the covariances of the transform file's error
-// model; it fails when the file has none.
-func NewFieldGain(file *transform.File) (*FieldGain, error) {
-	u, err := ParseUncertaintyModel(file.Uncertainty, file.Transform.Dim())
-	if err != nil {
+// NewFieldGain prepares the covariances of the registration's error
+// model; it fails when it has none.
+func NewFieldGain(file *Registration) (*FieldGain, error) {
+	if err := file.checkUncertainty(); err != nil {
 		return nil, err
 	}
+	u := file.Uncertainty
 	if u.Field == nil {
 		return nil, errors.New("the transform file has no error model")
 	}
@@ -168,11 +168,7 @@ func (g *FieldGain) Refit(zs []transform.Vec) (*Mapper, error) {
 	for range zs {
 		u.Kinds = append(u.Kinds, g.newKind())
 	}
-	raw, err := u.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	return NewMapper(&transform.File{Transform: res.Transform, Uncertainty: raw})
+	return NewMapper(&Registration{Transform: res.Transform, Uncertainty: &u})
 }
 
 // Jacobian is the transform's Jacobian at x.

@@ -46,7 +46,10 @@ func PrepareLandmarks(set *landmarks.PairSet, exclude []string, vox Voxels) (*Pr
 			}
 		}
 	}
-	return NewProblem(kept), nil
+	p := NewProblem(kept)
+	p.From = LandmarkSource{Path: set.Path, SHA256: set.SHA256, Excluded: append([]string(nil), exclude...)}
+	p.Voxels = vox
+	return p, nil
 }
 
 // MaxCoordinateUM bounds every coordinate ferry takes, in micrometres once
@@ -82,35 +85,10 @@ func FileSHA256(path string) (string, error) {
 	return hex.EncodeToString(h.Sum(nil)), nil
 }
 
-// TransformFile puts a checked fit into a transform file.
-func TransformFile(set *landmarks.PairSet, p *Problem, a *Assessment, s Settings, vox Voxels, exclude []string, prov Provenance) (*transform.File, error) {
-	summary, err := a.SummaryJSON(prov)
-	if err != nil {
-		return nil, err
-	}
-	unc, err := NewUncertaintyModel(p, a, s).Marshal()
-	if err != nil {
-		return nil, err
-	}
-	if exclude == nil {
-		exclude = []string{}
-	}
-	return &transform.File{
-		Program:     "ferry " + Version,
-		Units:       "micrometre",
-		SourceVoxel: vox.Source, TargetVoxel: vox.Target,
-		Landmarks:   transform.Provenance{Path: set.Path, SHA256: set.SHA256, Excluded: exclude},
-		Transform:   a.Result.Transform,
-		Smoothing:   a.Smoothing,
-		Summary:     summary,
-		Uncertainty: unc,
-	}, nil
-}
-
-// ReadCells reads a cells (or candidates) file for a transform file: in the
+// ReadCells reads a cells (or candidates) file for a registration: in the
 // voxels of the side it lives on when the transform was fitted in voxels.
 // It refuses a table whose dimension is not the transform's.
-func ReadCells(path, what string, f *transform.File, targetSide bool) (*landmarks.PointSet, []transform.Vec, error) {
+func ReadCells(path, what string, f *Registration, targetSide bool) (*landmarks.PointSet, []transform.Vec, error) {
 	set, err := landmarks.ReadPoints(path, what)
 	if err != nil {
 		return nil, nil, err
@@ -118,9 +96,9 @@ func ReadCells(path, what string, f *transform.File, targetSide bool) (*landmark
 	if set.Dim != f.Transform.Dim() {
 		return nil, nil, fmt.Errorf("%s: %d-D %s for a %d-D transform", path, set.Dim, what, f.Transform.Dim())
 	}
-	vox := f.SourceVoxel
+	vox := f.Voxels.Source
 	if targetSide {
-		vox = f.TargetVoxel
+		vox = f.Voxels.Target
 	}
 	pos := make([]transform.Vec, len(set.Points))
 	for i, p := range set.Points {
@@ -135,4 +113,79 @@ func ReadCells(path, what string, f *transform.File, targetSide bool) (*landmark
 		}
 	}
 	return set, pos, nil
+}
+
+// PairsInput is a landmark file as ReadPairs read it, for a Provenance: its
+// path and the SHA-256 of the bytes read, never of the file read again.
+func PairsInput(set *landmarks.PairSet) Input { return Input{Path: set.Path, SHA256: set.SHA256} }
+
+// PointsInput is a cells or candidates file as ReadPoints read it, for a
+// Provenance.
+func PointsInput(set *landmarks.PointSet) Input { return Input{Path: set.Path, SHA256: set.SHA256} }
+
+// MappingJob is a registration with cells to map through it: what map,
+// match and review read before they map.
+type MappingJob struct {
+	// Registration is the registration read; Path names its file.
+	Registration *Registration
+	Path         string
+	// Cells are the cells as read, Pos their positions in micrometres (in
+	// the source, or the target when Inverse).
+	Cells   *landmarks.PointSet
+	Pos     []transform.Vec
+	Inverse bool
+	// Mapper, once Prepare has run, maps through the registration.
+	Mapper *Mapper
+}
+
+// LoadMapping reads the registration file at path and the cells file (in
+// the target when inverse, else the source), after making sure that
+// preparing the mapping fits the machine's memory. Prepare builds the
+// mapper; the two are apart so that a caller can check its own inputs
+// against the cells before the seconds a large spline's mapper takes.
+func LoadMapping(path, cellsPath string, inverse bool) (*MappingJob, error) {
+	r, err := ReadRegistrationFile(path)
+	if err != nil {
+		return nil, err
+	}
+	if err := EstimateMapping(r).CheckMemory(AvailableMemory()); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	j := &MappingJob{Registration: r, Path: path, Inverse: inverse}
+	if j.Cells, j.Pos, err = ReadCells(cellsPath, "cells", r, inverse); err != nil {
+		return nil, err
+	}
+	return j, nil
+}
+
+// Prepare builds the job's mapper.
+func (j *MappingJob) Prepare() error {
+	m, err := NewMapper(j.Registration)
+	if err != nil {
+		return fmt.Errorf("%s: %w", j.Path, err)
+	}
+	j.Mapper = m
+	return nil
+}
+
+// Candidates reads a candidates file in the registration's target units.
+func (j *MappingJob) Candidates(path string) (*landmarks.PointSet, []transform.Vec, error) {
+	return ReadCells(path, "candidates", j.Registration, true)
+}
+
+// Frame is the frame of the mapped positions and their voxel size when the
+// registration was fitted in voxels: the target's, or the source's when
+// the job maps back.
+func (j *MappingJob) Frame() (frame string, voxel *transform.Vec) {
+	if j.Inverse {
+		return FrameSource, j.Registration.Voxels.Source
+	}
+	return FrameTarget, j.Registration.Voxels.Target
+}
+
+// Provenance is the provenance of an output of command made from the job:
+// the registration file and the cells file as they were read, then more.
+func (j *MappingJob) Provenance(command string, flags []string, more ...Input) Provenance {
+	inputs := append([]Input{j.Registration.Input(), PointsInput(j.Cells)}, more...)
+	return Provenance{Command: command, Inputs: inputs, Flags: flags}
 }

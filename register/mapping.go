@@ -52,39 +52,39 @@ type Mapper struct {
 }
 
 // NewMapper prepares the mapping of points through the transform of a
-// transform file, with the file's uncertainty model.
-func NewMapper(f *transform.File) (*Mapper, error) {
-	if err := plausible(f.Transform); err != nil {
+// registration, with its uncertainty model.
+func NewMapper(r *Registration) (*Mapper, error) {
+	if err := plausible(r.Transform); err != nil {
 		return nil, err
 	}
-	dim := f.Transform.Dim()
-	u, err := ParseUncertaintyModel(f.Uncertainty, dim)
-	if err != nil {
+	if err := r.checkUncertainty(); err != nil {
 		return nil, err
 	}
+	dim, u := r.Transform.Dim(), r.Uncertainty
+	var err error
 	var pred transform.Predictor
 	var field *fieldMapper
 	if u.Field != nil {
-		if field, err = newFieldMapper(f.Transform, u); err != nil {
+		if field, err = newFieldMapper(r.Transform, u); err != nil {
 			return nil, fmt.Errorf("uncertainty model: %v", err)
 		}
-	} else if pred, err = transform.NewPredictor(f.Transform, u.Source, u.Weights); err != nil {
+	} else if pred, err = transform.NewPredictor(r.Transform, u.Source, u.Weights); err != nil {
 		return nil, fmt.Errorf("uncertainty model: %v", err)
 	}
 	m := &Mapper{
-		t: f.Transform, pred: pred, u: u, dim: dim, field: field,
+		t: r.Transform, pred: pred, u: u, dim: dim, field: field,
 		hull:  hull.New(u.Source, dim),
 		tree:  newPointTree(u.Source),
 		radii: Radius95(dim),
 	}
-	if m.heldOut, err = parseHeldOut(f.Refinement, dim); err != nil {
+	if m.heldOut, err = parseHeldOut(r.Refinement, dim); err != nil {
 		return nil, err
 	}
 	m.classifyNear()
 	// The handedness of the transform as a whole: a fold is where the local
 	// Jacobian disagrees with it.
 	m.handSign = 1
-	if f.Transform.Jacobian(centroidOf(u.Source)).Det() < 0 {
+	if r.Transform.Jacobian(centroidOf(u.Source)).Det() < 0 {
 		m.handSign = -1
 	}
 	return m, nil

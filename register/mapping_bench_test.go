@@ -100,10 +100,8 @@ func BenchmarkMapJob(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	f := &transform.File{Transform: a.Result.Transform, Landmarks: transform.Provenance{Path: "landmarks.csv", SHA256: "0"}}
-	if f.Uncertainty, err = NewUncertaintyModel(p, a, s).Marshal(); err != nil {
-		b.Fatal(err)
-	}
+	f := &Registration{Transform: a.Result.Transform, Landmarks: LandmarkSource{Path: "landmarks.csv", SHA256: "0"},
+		Uncertainty: NewUncertaintyModel(p, a, s)}
 	data, err := f.Marshal()
 	if err != nil {
 		b.Fatal(err)
@@ -128,7 +126,7 @@ func BenchmarkMapJob(b *testing.B) {
 	sd := transform.Vec{0.8, 0.8, 3}
 	cpu0 := cpuSeconds()
 	for b.Loop() {
-		file, err := transform.ReadFile(tr)
+		file, err := ReadRegistrationFile(tr)
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -21,6 +21,11 @@ type Problem struct {
 	// Lines are the pairs' lines in the landmark file, for messages; may
 	// be nil.
 	Lines []int
+	// From names the landmark file the pairs were read from and the ids
+	// left out of it; Voxels are the voxel sizes its coordinates were
+	// scaled by. A registration fitted to the problem records both.
+	From   LandmarkSource
+	Voxels Voxels
 }
 
 // NewProblem takes the pairs of a landmark file, already scaled to
@@ -33,6 +38,7 @@ func NewProblem(set *landmarks.PairSet) *Problem {
 		Source: set.Sources(),
 		Target: set.Targets(),
 		Lines:  pairLines(set),
+		From:   LandmarkSource{Path: set.Path, SHA256: set.SHA256},
 	}
 }
 

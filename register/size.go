@@ -72,10 +72,10 @@ type JobEstimate struct {
 const mappingMatrices = 3
 
 // EstimateMapping estimates the memory and time of preparing to map
-// through the transform of f (NewMapper): a spline's system is rebuilt and
+// through the transform of r (NewMapper): a spline's system is rebuilt and
 // factorised, n³/3 flops and a few n×n matrices; a linear map costs
 // nothing to speak of.
-func EstimateMapping(f *transform.File) JobEstimate {
+func EstimateMapping(r *Registration) JobEstimate {
 	nodes := 0
 	var walk func(t transform.Transform)
 	walk = func(t transform.Transform) {
@@ -88,7 +88,7 @@ func EstimateMapping(f *transform.File) JobEstimate {
 			}
 		}
 	}
-	walk(f.Transform)
+	walk(r.Transform)
 	if nodes == 0 {
 		return JobEstimate{}
 	}

@@ -91,13 +91,13 @@ func TestEstimateJob(t *testing.T) {
 // transform costs nothing.
 func TestEstimateMapping(t *testing.T) {
 	sp := &transform.Spline{Dimension: 3, Nodes: make([]transform.Vec, 100000)}
-	e := EstimateMapping(&transform.File{Transform: sp})
+	e := EstimateMapping(&Registration{Transform: sp})
 	err := e.CheckMemory(16e9)
 	if err == nil || !strings.Contains(err.Error(), "to map through") || !strings.Contains(err.Error(), "refit") {
 		t.Errorf("refusal: %v", err)
 	}
 	lin := &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity()}
-	if e := EstimateMapping(&transform.File{Transform: lin}); e.Landmarks != 0 || e.CheckMemory(1) != nil {
+	if e := EstimateMapping(&Registration{Transform: lin}); e.Landmarks != 0 || e.CheckMemory(1) != nil {
 		t.Errorf("linear: %+v", e)
 	}
 }

@@ -103,8 +103,9 @@ func (u UncertaintyModel) WithoutField() UncertaintyModel {
 // Marshal encodes the model for the transform file.
 func (u *UncertaintyModel) Marshal() (json.RawMessage, error) { return json.Marshal(u) }
 
-// ParseUncertaintyModel decodes and checks the model of a transform file.
-func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, error) {
+// parseUncertaintyModel decodes and checks the model of a registration
+// file, for ReadRegistration.
+func parseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, error) {
 	if len(raw) == 0 {
 		return nil, errors.New("the transform file has no uncertainty model")
 	}
@@ -112,31 +113,40 @@ func ParseUncertaintyModel(raw json.RawMessage, dim int) (*UncertaintyModel, err
 	if err := json.Unmarshal(raw, &u); err != nil {
 		return nil, fmt.Errorf("uncertainty model: %v", err)
 	}
+	if err := u.check(dim); err != nil {
+		return nil, err
+	}
+	return &u, nil
+}
+
+// check refuses a model whose numbers cannot be used: a model read from a
+// file, or one put into a Registration by hand.
+func (u *UncertaintyModel) check(dim int) error {
 	if u.Method != methodName && u.Method != fieldMethodName {
-		return nil, fmt.Errorf("uncertainty model %q is not one this program knows", u.Method)
+		return fmt.Errorf("uncertainty model %q is not one this program knows", u.Method)
 	}
 	if len(u.Source) == 0 || len(u.Weights) != len(u.Source) {
-		return nil, fmt.Errorf("uncertainty model: %d landmarks with %d weights", len(u.Source), len(u.Weights))
+		return fmt.Errorf("uncertainty model: %d landmarks with %d weights", len(u.Source), len(u.Weights))
 	}
 	for k := range dim {
 		if !(u.Scale[k] > 0) || math.IsInf(u.Scale[k], 0) {
-			return nil, fmt.Errorf("uncertainty model: axis scale %v is not positive", u.Scale)
+			return fmt.Errorf("uncertainty model: axis scale %v is not positive", u.Scale)
 		}
 	}
 	if !(u.NoiseFactor >= 0) || math.IsInf(u.NoiseFactor, 0) || !(u.Spacing >= 0) {
-		return nil, errors.New("uncertainty model: noise factor or spacing is not a finite number ≥ 0")
+		return errors.New("uncertainty model: noise factor or spacing is not a finite number ≥ 0")
 	}
 	for i, p := range u.Source {
 		if !p.IsFinite() || !(u.Weights[i] > 0) {
-			return nil, fmt.Errorf("uncertainty model: landmark %d is not finite or has no weight", i+1)
+			return fmt.Errorf("uncertainty model: landmark %d is not finite or has no weight", i+1)
 		}
 	}
 	if u.Method == fieldMethodName {
 		if err := u.checkField(dim); err != nil {
-			return nil, err
+			return err
 		}
 	}
-	return &u, nil
+	return nil
 }
 
 // checkField checks the error model's parameters as read from a file.

@@ -6,7 +6,7 @@ import (
 	"testing"
 )
 
-// A transform file never holds a number that is not finite: Marshal
+// An encoded transform never holds a number that is not finite: Marshal
 // refuses such parameters with a message naming the one at fault.
 func TestMarshalRefusesNonFinite(t *testing.T) {
 	src := []Vec{{0, 0, 0}, {100, 0, 0}, {0, 120, 0}, {0, 0, 80}, {60, 70, 40}, {20, 90, 10}, {90, 30, 70}}
@@ -48,13 +48,13 @@ func TestMarshalRefusesNonFinite(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := (&File{Program: "test", Transform: tc.spoil()}).Marshal()
+			_, err := Marshal(tc.spoil())
 			if err == nil || !strings.Contains(err.Error(), tc.want) {
 				t.Errorf("Marshal: error %v, want one saying %q", err, tc.want)
 			}
 		})
 	}
-	if _, err := (&File{Program: "test", Transform: spline}).Marshal(); err != nil {
+	if _, err := Marshal(spline); err != nil {
 		t.Errorf("the unspoilt spline: %v", err)
 	}
 }

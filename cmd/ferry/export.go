@@ -47,7 +47,7 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 			if info, err := os.Stat(out); err == nil && !info.IsDir() {
 				return fmt.Errorf("-o %s: is a file, want a folder", out)
 			}
-			file, err := transform.ReadFile(args[0])
+			file, err := register.ReadRegistrationFile(args[0])
 			if err != nil {
 				return err
 			}
@@ -75,13 +75,15 @@ Convention: input = source (in vivo) side, column vectors, x' = A·x + t.`,
 			if opt.TargetVoxel, err = optionalTriple("--target-voxel", targetVoxel, dim); err != nil {
 				return err
 			}
-			paths := []string{args[0]}
+			// The transform file as it was read; the mapped cells, which
+			// export reads itself, by their bytes.
+			inputs := []register.Input{file.Input()}
 			if mapped != "" {
-				paths = append(paths, mapped)
-			}
-			inputs, err := inputsOf(paths...)
-			if err != nil {
-				return err
+				m, err := inputsOf(mapped)
+				if err != nil {
+					return err
+				}
+				inputs = append(inputs, m...)
 			}
 			opt.Provenance = register.Provenance{Command: "export", Inputs: inputs, Flags: setFlags(cmd)}
 			opt.Progress = progress.Terminal(os.Stderr)

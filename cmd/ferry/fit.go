@@ -47,7 +47,7 @@ noise): the cell's source position and the candidate's target position.`,
 					if err != nil {
 						return err
 					}
-					decisionInputs = []register.Input{{Path: decisions, SHA256: sum}, {Path: cellsPath, SHA256: cells.SHA256}, {Path: candsPath, SHA256: cands.SHA256}}
+					decisionInputs = []register.Input{{Path: decisions, SHA256: sum}, register.PointsInput(cells), register.PointsInput(cands)}
 					return match.AddDecidedLandmarks(set, d, cells, cands)
 				}
 			}
@@ -61,12 +61,9 @@ noise): the cell's source position and the candidate's target position.`,
 			// The hash of the bytes the reader read, not of the file read
 			// again: the same unless it changed in between, and then the
 			// reader's is the true one.
-			inputs := append([]register.Input{{Path: args[0], SHA256: job.set.SHA256}}, decisionInputs...)
+			inputs := append([]register.Input{register.PairsInput(job.set)}, decisionInputs...)
 			prov := register.Provenance{Command: "fit", Inputs: inputs, Flags: setFlags(cmd)}
-			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-			if err != nil {
-				return err
-			}
+			file := register.NewRegistration(job.problem, a, job.settings, prov)
 			data, err := file.Marshal()
 			if err != nil {
 				return err
@@ -121,7 +118,7 @@ error exceeds a soma's diameter (10 µm): the registration cannot resolve cells.
 			}
 			w := cmd.OutOrStdout()
 			if asJSON {
-				inputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256}}
+				inputs := []register.Input{register.PairsInput(job.set)}
 				c := a.JSON()
 				c.Provenance = register.Provenance{Command: "check", Inputs: inputs, Flags: setFlags(cmd)}.Line()
 				if err := writeJSON(w, c); err != nil {

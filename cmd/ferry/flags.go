@@ -174,36 +174,29 @@ func (f *modelFlags) assess(cmd *cobra.Command, path string) (*landmarkJob, *reg
 	return job, a, nil
 }
 
-// mappingJob is a transform file with cells to map through it.
+// mappingJob is register's mapping job with the cells' own localisation
+// error (--cell-sd).
 type mappingJob struct {
-	file   *transform.File
-	cells  *landmarks.PointSet
-	pos    []transform.Vec
+	*register.MappingJob
 	cellSD *transform.Vec
-	mapper *register.Mapper
 }
 
 // loadMapping reads a transform file and a cells file (in the target when
-// inverse) and prepares their mapping, for map and match.
+// inverse) and prepares their mapping, for map, match and review: --cell-sd
+// is checked against the cells before the mapper is built.
 func loadMapping(transformPath, cellsPath, cellSD string, inverse bool) (*mappingJob, error) {
-	var j mappingJob
-	var err error
-	if j.file, err = transform.ReadFile(transformPath); err != nil {
+	j, err := register.LoadMapping(transformPath, cellsPath, inverse)
+	if err != nil {
 		return nil, err
 	}
-	if err := register.EstimateMapping(j.file).CheckMemory(register.AvailableMemory()); err != nil {
-		return nil, fmt.Errorf("%s: %w", transformPath, err)
-	}
-	if j.cells, j.pos, err = register.ReadCells(cellsPath, "cells", j.file, inverse); err != nil {
+	sd, err := optionalTriple("--cell-sd", cellSD, j.Cells.Dim)
+	if err != nil {
 		return nil, err
 	}
-	if j.cellSD, err = optionalTriple("--cell-sd", cellSD, j.cells.Dim); err != nil {
+	if err := j.Prepare(); err != nil {
 		return nil, err
 	}
-	if j.mapper, err = register.NewMapper(j.file); err != nil {
-		return nil, fmt.Errorf("%s: %w", transformPath, err)
-	}
-	return &j, nil
+	return &mappingJob{MappingJob: j, cellSD: sd}, nil
 }
 
 // setFlags lists the flags the user set, as given, for provenance.

@@ -322,14 +322,14 @@ func TestImplausibleTransformRefused(t *testing.T) {
 	mustSucceed(t, "fit", fx.landmarks, "--model", "affine", "-o", affine)
 	for _, tc := range []struct {
 		name, from, want string
-		edit             func(f *transform.File)
+		edit             func(f *register.Registration)
 	}{
-		{"affine offset 1e200", affine, "beyond", func(f *transform.File) { f.Transform.(*transform.Linear).T[0] = 1e200 }},
-		{"affine matrix 1e200", affine, "singular", func(f *transform.File) { f.Transform.(*transform.Linear).A[1][1] = 1e200 }},
-		{"spline offset 1e200", fx.transform, "beyond", func(f *transform.File) { f.Transform.(*transform.Spline).Offset[2] = -1e200 }},
+		{"affine offset 1e200", affine, "beyond", func(f *register.Registration) { f.Transform.(*transform.Linear).T[0] = 1e200 }},
+		{"affine matrix 1e200", affine, "singular", func(f *register.Registration) { f.Transform.(*transform.Linear).A[1][1] = 1e200 }},
+		{"spline offset 1e200", fx.transform, "beyond", func(f *register.Registration) { f.Transform.(*transform.Spline).Offset[2] = -1e200 }},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			f, err := transform.ReadFile(tc.from)
+			f, err := register.ReadRegistrationFile(tc.from)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -444,11 +444,11 @@ func TestMessagesBlameTheRightInput(t *testing.T) {
 	fx := newFixture(t)
 	dir := t.TempDir()
 	far := writeFile(t, filepath.Join(dir, "far.csv"), landmarkCSV(40)+"FAR,vessel,999999999,10,10,100,100,100,x\n")
-	tiny, err := transform.ReadFile(fx.transform)
+	tiny, err := register.ReadRegistrationFile(fx.transform)
 	if err != nil {
 		t.Fatal(err)
 	}
-	tiny.TargetVoxel = &transform.Vec{5e-324, 1, 1}
+	tiny.Voxels.Target = &transform.Vec{5e-324, 1, 1}
 	data, err := tiny.Marshal()
 	if err != nil {
 		t.Fatal(err)

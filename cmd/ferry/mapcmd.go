@@ -34,24 +34,16 @@ With --inverse the cells are in the target and are mapped back to the source.`,
 			if err != nil {
 				return err
 			}
-			for _, warning := range job.mapper.Warnings() {
+			for _, warning := range job.Mapper.Warnings() {
 				fmt.Fprintf(cmd.ErrOrStderr(), "Warning from %s: %s\n", args[0], warning)
 			}
-			file, cells := job.file, job.cells
-			mapped, err := job.mapper.MapAllContext(cmd.Context(), job.pos, job.cellSD, inverse)
+			cells := job.Cells
+			mapped, err := job.Mapper.MapAllContext(cmd.Context(), job.Pos, job.cellSD, inverse)
 			if err != nil {
 				return fmt.Errorf("%s not written: %w", outputName(out), err)
 			}
-			voxel, frame := file.TargetVoxel, register.FrameTarget
-			if inverse {
-				voxel, frame = file.SourceVoxel, register.FrameSource
-			}
-			inputs, err := inputsOf(args[0])
-			if err != nil {
-				return err
-			}
-			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256})
-			prov := register.Provenance{Command: "map", Inputs: inputs, Flags: setFlags(cmd)}
+			frame, voxel := job.Frame()
+			prov := job.Provenance("map", setFlags(cmd))
 			layout := register.NewMappedLayout(cells, frame, voxel)
 			if err := writeTable(cmd, out, func(ctx context.Context, path string) error {
 				return register.WriteMappedTable(ctx, path, prov, cells, mapped, frame, voxel)

@@ -52,11 +52,11 @@ the nearest one. See docs/matching.md for the method.`,
 			if err != nil {
 				return err
 			}
-			for _, warning := range job.mapper.Warnings() {
+			for _, warning := range job.Mapper.Warnings() {
 				fmt.Fprintf(cmd.ErrOrStderr(), "Warning from %s: %s\n", args[0], warning)
 			}
-			cells := job.cells
-			cands, candPos, err := register.ReadCells(args[2], "candidates", job.file, true)
+			cells := job.Cells
+			cands, candPos, err := job.Candidates(args[2])
 			if err != nil {
 				return err
 			}
@@ -67,7 +67,7 @@ the nearest one. See docs/matching.md for the method.`,
 					return err
 				}
 			}
-			res, err := match.Match(job.mapper, job.pos, job.cellSD, candPos, match.Options{
+			res, err := match.Match(job.Mapper, job.Pos, job.cellSD, candPos, match.Options{
 				Dim: cells.Dim, CandidateSD: candidateSD, PriorCounterpart: share, MinPMatch: minP,
 				CellIDs: pointIDs(cells), CandidateIDs: pointIDs(cands), Decisions: decided,
 				Progress: progress.Terminal(os.Stderr),
@@ -79,19 +79,15 @@ the nearest one. See docs/matching.md for the method.`,
 			if err != nil {
 				return err
 			}
-			inputs, err := inputsOf(args[0])
-			if err != nil {
-				return err
-			}
-			inputs = append(inputs, register.Input{Path: args[1], SHA256: cells.SHA256}, register.Input{Path: args[2], SHA256: cands.SHA256})
+			more := []register.Input{register.PointsInput(cands)}
 			if decisions != "" {
-				inputs = append(inputs, register.Input{Path: decisions, SHA256: decisionsSHA})
+				more = append(more, register.Input{Path: decisions, SHA256: decisionsSHA})
 			}
-			prov := register.Provenance{Command: "match", Inputs: inputs, Flags: setFlags(cmd)}
+			prov := job.Provenance("match", setFlags(cmd), more...)
 			if err := writeTable(cmd, out, func(ctx context.Context, path string) error {
-				return match.WriteMatchesTable(ctx, path, prov, cells, cands, res, job.file.TargetVoxel)
+				return match.WriteMatchesTable(ctx, path, prov, cells, cands, res, job.Registration.Voxels.Target)
 			}, func(w io.Writer) error {
-				return match.WriteMatches(w, cells, cands, res, job.file.TargetVoxel)
+				return match.WriteMatches(w, cells, cands, res, job.Registration.Voxels.Target)
 			}); err != nil {
 				return err
 			}

@@ -100,9 +100,9 @@ func readMarks(path string, job *resampleJob, f *imageFlags, stderr io.Writer) (
 			r95 = i
 		}
 	}
-	written, frame := job.file.TargetVoxel, register.FrameTarget
+	written, frame := job.file.Voxels.Target, register.FrameTarget
 	if f.inverse {
-		written, frame = job.file.SourceVoxel, register.FrameSource
+		written, frame = job.file.Voxels.Source, register.FrameSource
 	}
 	written, note, err := register.PositionUnits(path, frame, written)
 	if err != nil {
@@ -172,11 +172,11 @@ func readMatchMarks(path string, job *resampleJob, f *imageFlags) ([]imaging.Mar
 		}
 		p := m.Cell
 		if m.InVoxels {
-			if job.file.TargetVoxel == nil {
+			if job.file.Voxels.Target == nil {
 				return nil, fmt.Errorf("%s: the coordinates are in target voxels but the transform file records no target voxel size", path)
 			}
 			for k := range 3 {
-				p[k] *= job.file.TargetVoxel[k]
+				p[k] *= job.file.Voxels.Target[k]
 			}
 		}
 		r := 0.0

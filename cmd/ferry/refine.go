@@ -100,11 +100,7 @@ counterpart never pairs.`,
 			if err != nil {
 				return err
 			}
-			base, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude,
-				register.Provenance{Command: "refine", Inputs: []register.Input{{Path: args[0], SHA256: job.set.SHA256}}, Flags: setFlags(cmd)})
-			if err != nil {
-				return err
-			}
+			base := register.NewRegistration(job.problem, a, job.settings, register.Provenance{Command: "refine", Inputs: []register.Input{register.PairsInput(job.set)}, Flags: setFlags(cmd)})
 			cells, cellPos, err := register.ReadCells(args[1], "cells", base, false)
 			if err != nil {
 				return err
@@ -125,8 +121,8 @@ counterpart never pairs.`,
 			in := refine.Input{Landmarks: job.problem, Assessment: a,
 				Somata: cellPos, SomaIDs: pointIDs(cells), Candidates: candPos, CandidateIDs: pointIDs(cands),
 				Decisions: decided}
-			provInputs := []register.Input{{Path: args[0], SHA256: job.set.SHA256},
-				{Path: args[1], SHA256: cells.SHA256}, {Path: args[2], SHA256: cands.SHA256}}
+			provInputs := []register.Input{register.PairsInput(job.set),
+				register.PointsInput(cells), register.PointsInput(cands)}
 			if decided != nil {
 				provInputs = append(provInputs, decisionsInput)
 			}
@@ -140,7 +136,7 @@ counterpart never pairs.`,
 				}
 				in.Somata = append(in.Somata, somaPos...)
 				in.SomaIDs = append(in.SomaIDs, pointIDs(somata)...)
-				provInputs = append(provInputs, register.Input{Path: somataPath, SHA256: somata.SHA256})
+				provInputs = append(provInputs, register.PointsInput(somata))
 			}
 			opt := refine.Options{Settings: job.settings, CellSD: sd, CandidateSD: candidateSD, MinP: minP,
 				MaxNodes: maxNodes, Progress: progress.Terminal(os.Stderr)}

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"ferry/landmarks"
+	"ferry/register"
 	"ferry/simulate"
 	"ferry/transform"
 )
@@ -33,7 +34,7 @@ func TestRefineCommand(t *testing.T) {
 			t.Errorf("refine printed no %q:\n%s", want, o.stdout)
 		}
 	}
-	f, err := transform.ReadFile(out)
+	f, err := register.ReadRegistrationFile(out)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -165,7 +166,7 @@ func TestRefineDecisions(t *testing.T) {
 			t.Errorf("cell %s paired to %s, accepted for %s", p["cell"], p["candidate"], accepted["cell"])
 		}
 	}
-	f, err := transform.ReadFile(out)
+	f, err := register.ReadRegistrationFile(out)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -2,11 +2,9 @@ package main
 
 import (
 	"fmt"
-	"io"
 
 	"github.com/spf13/cobra"
 
-	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/report"
 )
@@ -52,29 +50,15 @@ it the landmarks are checked and fitted here with the flags given, as fit does.`
 			if err != nil {
 				return err
 			}
-			hashes, err := inputsOf(inputs...)
-			if err != nil {
+			in.Provenance.Command, in.Provenance.Flags = "report", setFlags(cmd)
+			if err := report.AddTables(in, mappedPath, matchesPath); err != nil {
 				return err
-			}
-			in.Provenance = register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
-			if mappedPath != "" {
-				if err := report.AddMapped(in, mappedPath); err != nil {
-					return err
-				}
-			}
-			if matchesPath != "" {
-				if err := report.AddMatches(in, matchesPath); err != nil {
-					return err
-				}
 			}
 			page, err := report.New(in)
 			if err != nil {
 				return err
 			}
-			if err := outfile.Write(cmd.Context(), out, func(w io.Writer) error {
-				_, err := page.WriteTo(w)
-				return err
-			}); err != nil {
+			if err := page.WriteFile(cmd.Context(), out); err != nil {
 				return err
 			}
 			for _, w := range page.Warnings {
@@ -102,15 +86,9 @@ func reportFromLandmarks(cmd *cobra.Command, in *report.Input, flags *modelFlags
 	if err != nil {
 		return err
 	}
-	hashes, err := inputsOf(path)
-	if err != nil {
-		return err
-	}
-	prov := register.Provenance{Command: "report", Inputs: hashes, Flags: setFlags(cmd)}
-	file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-	if err != nil {
-		return err
-	}
+	in.Provenance.Inputs = []register.Input{register.PairsInput(job.set)}
+	prov := register.Provenance{Command: "report", Inputs: in.Provenance.Inputs, Flags: setFlags(cmd)}
+	file := register.NewRegistration(job.problem, a, job.settings, prov)
 	check := a.JSON()
 	in.Check, in.Source, in.Excluded, in.Transform = &check, job.problem.Source, job.exclude, file
 	return nil

@@ -10,6 +10,7 @@ import (
 
 	"ferry/imaging"
 	"ferry/landmarks"
+	"ferry/register"
 	"ferry/transform"
 )
 
@@ -65,7 +66,7 @@ func given(voxelFlag, voxel, originFlag, origin string, recorded *transform.Vec)
 // resampleJob is a transform, a stack and a plane to fill, with their
 // geometries settled.
 type resampleJob struct {
-	file                *transform.File
+	file                *register.Registration
 	stack, plane        *imaging.Stack
 	stackGeom, gridGeom imaging.Geometry
 	grid                imaging.Grid
@@ -77,18 +78,18 @@ func (f *imageFlags) load(cmd *cobra.Command, transformPath, stackPath, planePat
 	if f.targetZ < 0 {
 		return nil, fmt.Errorf("--target-z: %d is negative: want a page index ≥ 0", f.targetZ)
 	}
-	file, err := transform.ReadFile(transformPath)
+	file, err := register.ReadRegistrationFile(transformPath)
 	if err != nil {
 		return nil, err
 	}
 	if file.Transform.Dim() != 3 {
 		return nil, fmt.Errorf("%s: images need a 3-D transform, this one is 2-D", transformPath)
 	}
-	src, err := given("--source-voxel", f.sourceVoxel, "--source-origin", f.sourceOrigin, file.SourceVoxel)
+	src, err := given("--source-voxel", f.sourceVoxel, "--source-origin", f.sourceOrigin, file.Voxels.Source)
 	if err != nil {
 		return nil, err
 	}
-	dst, err := given("--target-voxel", f.targetVoxel, "--target-origin", f.targetOrigin, file.TargetVoxel)
+	dst, err := given("--target-voxel", f.targetVoxel, "--target-origin", f.targetOrigin, file.Voxels.Target)
 	if err != nil {
 		return nil, err
 	}

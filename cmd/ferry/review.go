@@ -11,7 +11,6 @@ import (
 
 	"ferry/imaging"
 	"ferry/landmarks"
-	"ferry/register"
 	"ferry/register/match"
 	"ferry/register/review"
 	"ferry/transform"
@@ -54,10 +53,10 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			if err != nil {
 				return err
 			}
-			if job.cells.Dim != 3 {
+			if job.Cells.Dim != 3 {
 				return fmt.Errorf("%s: review needs 3-D cells and stacks", cellsPath)
 			}
-			cands, candPos, err := register.ReadCells(candsPath, "candidates", job.file, true)
+			cands, candPos, err := job.Candidates(candsPath)
 			if err != nil {
 				return err
 			}
@@ -74,11 +73,11 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 			// Each stack's voxel size as resample settles it: the flag, else
 			// what the file records, else the transform file's; the EM
 			// stack's offset likewise from --target-offset or its file.
-			sv, err := settleVoxel(src, "--source-voxel", srcVoxel, job.file.SourceVoxel)
+			sv, err := settleVoxel(src, "--source-voxel", srcVoxel, job.Registration.Voxels.Source)
 			if err != nil {
 				return err
 			}
-			dstGeom, err := settleGeometry(dst, "--target-voxel", dstVoxel, job.file.TargetVoxel)
+			dstGeom, err := settleGeometry(dst, "--target-voxel", dstVoxel, job.Registration.Voxels.Target)
 			if err != nil {
 				return err
 			}
@@ -89,7 +88,7 @@ review with the same file resumes. Ctrl-C stops it. See docs/review.md.`,
 				}
 			}
 			s, err := review.NewSession(review.Inputs{
-				Transform: job.file, Mapper: job.mapper, Cells: job.cells, CellPos: job.pos, CellSD: job.cellSD,
+				Transform: job.Registration, Mapper: job.Mapper, Cells: job.Cells, CellPos: job.Pos, CellSD: job.cellSD,
 				Candidates: cands, CandidatePos: candPos, Matches: ms, MatchesPath: args[0],
 				MatchOptions: match.Options{CandidateSD: candidateSD},
 				Source:       src, Target: dst, SourceVoxel: sv, TargetVoxel: tv, TargetOffset: offset,

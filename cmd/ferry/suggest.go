@@ -52,15 +52,7 @@ See docs/suggest.md.`,
 			if err != nil {
 				return err
 			}
-			hashes, err := inputsOf(inputs...)
-			if err != nil {
-				return err
-			}
-			prov := register.Provenance{Command: "suggest", Inputs: hashes, Flags: setFlags(cmd)}
-			file, err := register.TransformFile(job.set, job.problem, a, job.settings, job.voxels, job.exclude, prov)
-			if err != nil {
-				return err
-			}
+			file := register.NewRegistration(job.problem, a, job.settings, register.Provenance{})
 			cells, pos, err := register.ReadCells(args[1], "cells", file, false)
 			if err != nil {
 				return err
@@ -76,11 +68,18 @@ See docs/suggest.md.`,
 					return err
 				}
 			}
+			// The provenance of the files as their readers read them.
+			read := []register.Input{register.PairsInput(job.set), register.PointsInput(cells)}
+			if whereSet != nil {
+				read = append(read, register.PointsInput(whereSet))
+			}
+			prov := register.Provenance{Command: "suggest", Inputs: read, Flags: setFlags(cmd)}
+			file.Check.Provenance = prov.Line()
 			res, err := suggest.Suggest(file, pos, opt)
 			if err != nil {
 				return err
 			}
-			output := suggest.Output{Provenance: prov, SourceVoxel: file.SourceVoxel, TargetVoxel: file.TargetVoxel, Where: whereSet}
+			output := suggest.Output{Provenance: prov, SourceVoxel: file.Voxels.Source, TargetVoxel: file.Voxels.Target, Where: whereSet}
 			if out == stdoutName && asJSON {
 				return fmt.Errorf("-o - with --json: both would go to standard output; give -o a file name")
 			}

@@ -64,16 +64,16 @@ resample.`,
 				}
 				opt.Bounds = &b
 			}
-			file, err := transform.ReadFile(args[0])
+			file, err := register.ReadRegistrationFile(args[0])
 			if err != nil {
 				return err
 			}
 			if file.Transform.Dim() != 3 {
 				return fmt.Errorf("%s: images need a 3-D transform, this one is 2-D", args[0])
 			}
-			side, err := given("--source-voxel", sourceVoxel, "--source-origin", sourceOrigin, file.SourceVoxel)
+			side, err := given("--source-voxel", sourceVoxel, "--source-origin", sourceOrigin, file.Voxels.Source)
 			if inverse {
-				side, err = given("--target-voxel", targetVoxel, "--target-origin", targetOrigin, file.TargetVoxel)
+				side, err = given("--target-voxel", targetVoxel, "--target-origin", targetOrigin, file.Voxels.Target)
 			}
 			if err != nil {
 				return err
@@ -97,15 +97,11 @@ resample.`,
 			}
 			// The inputs are read for the record before anything is
 			// written, so that an unreadable one leaves no image behind.
-			inputs, err := inputsOf(args[0])
-			if err != nil {
-				return err
-			}
 			stack, err := stackInput(args[1])
 			if err != nil {
 				return err
 			}
-			inputs = append(inputs, stack)
+			inputs := []register.Input{file.Input(), stack}
 			rep, err := imaging.Warp(cmd.Context(), out, file.Transform, pages, geom, grid, opt, progress.Terminal(os.Stderr))
 			if err != nil {
 				return err

@@ -12,7 +12,6 @@ import (
 
 	"ferry/imaging"
 	"ferry/landmarks"
-	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/export"
 	"ferry/register/match"
@@ -149,58 +148,34 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		v := params.TargetVoxelUM
 		vox.Target = &v
 	}
+	// The check, and the fit without the landmarks it flags, as a user
+	// who looked at them and found them wrong would make it (ferry fit).
 	settings := register.Settings{Smoothing: register.Smoothing{Auto: true}}
-	problem, err := register.PrepareLandmarks(set, nil, vox)
+	fitted, err := register.CheckAndFit(ctx, set, nil, vox, settings, false)
 	if err != nil {
 		return nil, err
 	}
-	check, err := register.Assess(problem, settings)
-	if err != nil {
-		return nil, err
+	out.flaggedVerdicts, out.Wrong = fitted.LeftOut, scen.WrongLandmarks()
+	for _, l := range fitted.LeftOut {
+		out.Flagged = append(out.Flagged, l.ID)
 	}
-	out.Flagged = check.Flagged()
-	for _, l := range check.Landmarks {
-		if l.Flag != "" {
-			out.flaggedVerdicts = append(out.flaggedVerdicts, l)
-		}
-	}
-	out.Wrong = scen.WrongLandmarks()
-
-	// A user who looked at the flagged landmarks and found them wrong
-	// leaves them out of the fit.
-	step("fitting without the %d flagged landmarks", len(out.Flagged))
-	if problem, err = register.PrepareLandmarks(set, out.Flagged, vox); err != nil {
-		return nil, err
-	}
-	a, err := register.Assess(problem, settings)
-	if err != nil {
-		return nil, err
-	}
+	step("fitted without the %d flagged landmarks", len(out.Flagged))
+	problem, a := fitted.Problem, fitted.Assessment
 	out.Assessment = a
-	prov := register.Provenance{Command: "demo", Inputs: []register.Input{{Path: f.Landmarks, SHA256: set.SHA256}},
+	prov := register.Provenance{Command: "demo", Inputs: []register.Input{register.PairsInput(set)},
 		Flags: []string{fmt.Sprintf("--seed=%d", o.Seed), "--exclude=" + strings.Join(out.Flagged, ",")}}
-	tf, err := register.TransformFile(set, problem, a, settings, vox, out.Flagged, prov)
-	if err != nil {
-		return nil, err
-	}
-	data, err := tf.Marshal()
-	if err != nil {
-		return nil, err
-	}
 	f.Fitted = filepath.Join(o.Dir, "transform.json")
-	if err := outfile.WriteBytes(ctx, f.Fitted, data); err != nil {
+	if err := register.NewRegistration(problem, a, settings, prov).WriteFile(ctx, f.Fitted); err != nil {
 		return nil, err
 	}
 	// Read the file back, as map would: the demo uses what it wrote.
-	if tf, err = transform.ReadFile(f.Fitted); err != nil {
-		return nil, err
-	}
 	f.Transform = f.Fitted
-	cells, pos, err := register.ReadCells(f.Cells, "cells", tf, false)
+	job, err := register.LoadMapping(f.Fitted, f.Cells, false)
 	if err != nil {
 		return nil, err
 	}
-	cands, candPos, err := register.ReadCells(f.Candidates, "candidates", tf, true)
+	tf, cells, pos := job.Registration, job.Cells, job.Pos
+	cands, candPos, err := job.Candidates(f.Candidates)
 	if err != nil {
 		return nil, err
 	}
@@ -238,10 +213,10 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	matchOpt := match.Options{Dim: cells.Dim, CellIDs: ids(cells), CandidateIDs: ids(cands)}
 
 	// The landmark fit alone, for the comparison.
-	fitMapper, err := register.NewMapper(tf)
-	if err != nil {
+	if err := job.Prepare(); err != nil {
 		return nil, err
 	}
+	fitMapper := job.Mapper
 	fitRes, err := match.Match(fitMapper, pos, &cellSD, candPos, matchOpt)
 	if err != nil {
 		return nil, err
@@ -256,7 +231,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		return nil, err
 	}
 	out.Refined = rres
-	rinputs := []register.Input{{Path: f.Landmarks, SHA256: set.SHA256}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}}
+	rinputs := []register.Input{register.PairsInput(set), register.PointsInput(cells), register.PointsInput(cands)}
 	out.RefineRecord = rres.Record(rin, ropt, rinputs)
 	if rres.Worse {
 		out.RefineRefused = rres.WorseReason
@@ -265,12 +240,8 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if err != nil {
 			return nil, err
 		}
-		rdata, err := rf.Marshal()
-		if err != nil {
-			return nil, err
-		}
 		f.Transform = filepath.Join(o.Dir, "refined.json")
-		if err := outfile.WriteBytes(ctx, f.Transform, rdata); err != nil {
+		if err := rf.WriteFile(ctx, f.Transform); err != nil {
 			return nil, err
 		}
 		f.Pairs = filepath.Join(o.Dir, "soma_pairs.csv")
@@ -279,22 +250,22 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 		if err := refine.WritePairsTable(ctx, f.Pairs, pprov, out.RefineRecord, cells.Dim, vox); err != nil {
 			return nil, err
 		}
-		if tf, err = transform.ReadFile(f.Transform); err != nil {
+		// Map and match through the refined file as read back.
+		if job, err = register.LoadMapping(f.Transform, f.Cells, false); err != nil {
 			return nil, err
 		}
+		if err := job.Prepare(); err != nil {
+			return nil, err
+		}
+		tf = job.Registration
 	}
 
 	step("mapping %d cells", len(scen.Cells))
-	mapper, err := register.NewMapper(tf)
-	if err != nil {
-		return nil, err
-	}
+	mapper := job.Mapper
 	mapped := mapper.MapAll(pos, &cellSD, false)
 	f.Mapped = filepath.Join(o.Dir, "mapped.csv")
-	mprov := register.Provenance{Command: "map", Inputs: []register.Input{
-		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}},
-		Flags: []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])}}
-	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.TargetVoxel); err != nil {
+	mprov := job.Provenance("map", []string{fmt.Sprintf("--cell-sd=%g,%g,%g", cellSD[0], cellSD[1], cellSD[2])})
+	if err := register.WriteMappedTable(ctx, f.Mapped, mprov, cells, mapped, register.FrameTarget, tf.Voxels.Target); err != nil {
 		return nil, err
 	}
 
@@ -308,10 +279,8 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	}
 	out.Candidates = len(cands.Points)
 	f.Matches = filepath.Join(o.Dir, "matches.csv")
-	xprov := register.Provenance{Command: "match", Inputs: []register.Input{
-		{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Cells, SHA256: cells.SHA256}, {Path: f.Candidates, SHA256: cands.SHA256}},
-		Flags: mprov.Flags}
-	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.TargetVoxel); err != nil {
+	xprov := job.Provenance("match", mprov.Flags, register.PointsInput(cands))
+	if err := match.WriteMatchesTable(ctx, f.Matches, xprov, cells, cands, res, tf.Voxels.Target); err != nil {
 		return nil, err
 	}
 	for i, r := range res {
@@ -348,7 +317,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 
 	step("warping the in vivo stack into the EM frame")
 	warped := filepath.Join(o.Dir, WarpedFile)
-	if err := writeWarped(ctx, warped, f.Transform, tf.Transform, stackPath); err != nil {
+	if err := writeWarped(ctx, warped, tf, stackPath); err != nil {
 		return nil, err
 	}
 	f.Extra = append(f.Extra, warped, warped+".json")
@@ -386,7 +355,7 @@ func Run(ctx context.Context, o Options) (*Outcome, error) {
 	if out.Export, err = export.Write(ctx, exportDir, tf, export.Options{
 		Mapped: f.Mapped, TargetVoxel: &tv, Grid: export.GridOptions{Margin: -1, Bounds: &box}, Seed: 1,
 		Provenance: register.Provenance{Command: "export", Inputs: []register.Input{
-			{Path: f.Transform, SHA256: sha(f.Transform)}, {Path: f.Mapped, SHA256: sha(f.Mapped)}},
+			tf.Input(), {Path: f.Mapped, SHA256: sha(f.Mapped)}},
 			Flags: []string{"--mapped=" + f.Mapped, fmt.Sprintf("--target-voxel=%g,%g,%g", tv[0], tv[1], tv[2]),
 				fmt.Sprintf("--bounds=%g,%g,%g,%g,%g,%g", box[0][0], box[0][1], box[0][2], box[1][0], box[1][1], box[1][2])}},
 	}); err != nil {

@@ -6,10 +6,8 @@ package demo
 import (
 	"context"
 	"fmt"
-	"io"
 
 	"ferry/imaging"
-	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/report"
 	"ferry/status"
@@ -77,7 +75,8 @@ var WarpedVoxelUM = transform.Vec{3, 3, 5}
 
 // writeWarped warps the in vivo stack into the target frame over its mapped
 // box, as ferry warp --voxel 3,3,5 does, with the record beside it.
-func writeWarped(ctx context.Context, path, transformPath string, t transform.Transform, stackPath string) error {
+func writeWarped(ctx context.Context, path string, reg *register.Registration, stackPath string) error {
+	t := reg.Transform
 	pages, err := imaging.OpenPages(stackPath)
 	if err != nil {
 		return err
@@ -98,7 +97,7 @@ func writeWarped(ctx context.Context, path, transformPath string, t transform.Tr
 		return err
 	}
 	prov := register.Provenance{Command: "warp", Inputs: []register.Input{
-		{Path: transformPath, SHA256: sha(transformPath)}, {Path: stackPath, SHA256: sha(stackPath)}},
+		reg.Input(), {Path: stackPath, SHA256: sha(stackPath)}},
 		Flags: []string{fmt.Sprintf("--voxel=%g,%g,%g", WarpedVoxelUM[0], WarpedVoxelUM[1], WarpedVoxelUM[2])}}
 	return imaging.WriteWarpRecord(ctx, path+".json", imaging.NewWarpRecord(path, h, g, grid, opt, rep, prov.Line()))
 }
@@ -110,26 +109,13 @@ func writeReport(ctx context.Context, path string, f *Files) error {
 	if err := report.FromTransform(in, f.Landmarks, f.Transform); err != nil {
 		return err
 	}
-	if err := report.AddMapped(in, f.Mapped); err != nil {
+	in.Provenance.Command = "report"
+	if err := report.AddTables(in, f.Mapped, f.Matches); err != nil {
 		return err
 	}
-	if f.Matches != "" {
-		if err := report.AddMatches(in, f.Matches); err != nil {
-			return err
-		}
-	}
-	for _, p := range []string{f.Landmarks, f.Transform, f.Mapped, f.Matches} {
-		if p != "" {
-			in.Provenance.Inputs = append(in.Provenance.Inputs, register.Input{Path: p, SHA256: sha(p)})
-		}
-	}
-	in.Provenance.Command = "report"
 	page, err := report.New(in)
 	if err != nil {
 		return err
 	}
-	return outfile.Write(ctx, path, func(w io.Writer) error {
-		_, err := page.WriteTo(w)
-		return err
-	})
+	return page.WriteFile(ctx, path)
 }

@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 
+	"ferry/register"
 	"ferry/register/export"
 	"ferry/transform"
 )
@@ -19,7 +20,7 @@ func Example() {
 		log.Fatal(err)
 	}
 	defer os.RemoveAll(dir)
-	file := &transform.File{Transform: &transform.Linear{
+	file := &register.Registration{Transform: &transform.Linear{
 		Model: transform.Affine, D: 3, Scale: 1,
 		A: transform.Mat{{0.9, -0.1, 0}, {0.1, 1.05, 0}, {0, 0, 0.8}},
 		T: transform.Vec{50, -10, 20},

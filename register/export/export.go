@@ -127,7 +127,7 @@ type PointsRecord struct {
 // records a voxel size) and in the manifest; for a spline the displacement
 // field as a float32 TIFF and an OME-Zarr store; with opt.Mapped the point
 // list. Every file appears whole or not at all.
-func Write(ctx context.Context, dir string, file *transform.File, opt Options) (*Result, error) {
+func Write(ctx context.Context, dir string, file *register.Registration, opt Options) (*Result, error) {
 	res := &Result{Dir: dir}
 	a, t, err := transform.AffinePart(file.Transform)
 	if err != nil {
@@ -136,8 +136,8 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 	dim := file.Transform.Dim()
 	aff := NewHomogeneous(a, t)
 	res.Affine = &aff
-	if file.SourceVoxel != nil || file.TargetVoxel != nil {
-		v := aff.InVoxels(file.SourceVoxel, file.TargetVoxel)
+	if file.Voxels.Source != nil || file.Voxels.Target != nil {
+		v := aff.InVoxels(file.Voxels.Source, file.Voxels.Target)
 		res.AffineVoxel = &v
 	}
 	m := Manifest{
@@ -145,12 +145,12 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 		Model: string(file.Transform.Kind()), Dim: dim, Convention: Convention, Units: "micrometre",
 		AffineUM: aff.Rows(),
 	}
-	if file.SourceVoxel != nil {
-		v := [3]float64(*file.SourceVoxel)
+	if file.Voxels.Source != nil {
+		v := [3]float64(*file.Voxels.Source)
 		m.SourceVoxelUM = &v
 	}
-	if file.TargetVoxel != nil {
-		v := [3]float64(*file.TargetVoxel)
+	if file.Voxels.Target != nil {
+		v := [3]float64(*file.Voxels.Target)
 		m.TargetVoxelUM = &v
 	}
 	if res.AffineVoxel != nil {
@@ -158,11 +158,11 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 	}
 	var points *pointList
 	if opt.Mapped != "" {
-		vox := file.TargetVoxel
+		vox := file.Voxels.Target
 		if opt.TargetVoxel != nil {
 			vox = opt.TargetVoxel
 		}
-		if points, err = readPoints(opt.Mapped, file.TargetVoxel, vox); err != nil {
+		if points, err = readPoints(opt.Mapped, file.Voxels.Target, vox); err != nil {
 			return nil, err
 		}
 		if points.dim != dim {
@@ -233,7 +233,7 @@ func Write(ctx context.Context, dir string, file *transform.File, opt Options) (
 			return err
 		}
 		if res.AffineVoxel != nil {
-			what := fmt.Sprintf("affine part of the %s transform, from %s to %s", file.Transform.Kind(), sideUnits("source", file.SourceVoxel), sideUnits("target", file.TargetVoxel))
+			what := fmt.Sprintf("affine part of the %s transform, from %s to %s", file.Transform.Kind(), sideUnits("source", file.Voxels.Source), sideUnits("target", file.Voxels.Target))
 			if err := os.WriteFile(filepath.Join(tmp, AffineVoxelFile), []byte(res.AffineVoxel.Text(what)), 0o644); err != nil {
 				return err
 			}

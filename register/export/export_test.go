@@ -254,7 +254,7 @@ func TestFieldGridBounds(t *testing.T) {
 // in a note that asks for a box (--bounds); a box that holds them has no note.
 func TestWriteNotesCellsOutsideTheField(t *testing.T) {
 	s := testSpline(t, 3)
-	file := &transform.File{Transform: s}
+	file := &register.Registration{Transform: s}
 	dir := t.TempDir()
 	sources := []transform.Vec{{200, 150, 100}, {-300, 150, 100}, {200, 150, 600}}
 	cells := &landmarks.PointSet{Dim: 3}

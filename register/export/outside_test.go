@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"testing"
 
+	"ferry/register"
 	"ferry/transform"
 )
 
@@ -38,7 +39,7 @@ func specDir() string {
 func exportForOutside(t *testing.T, dim int) (dir, pointsPath string, fd *Field, s *transform.Spline, pts []transform.Vec) {
 	t.Helper()
 	s = testSpline(t, dim)
-	file := &transform.File{Transform: s}
+	file := &register.Registration{Transform: s}
 	dir = filepath.Join(t.TempDir(), "export")
 	res, err := Write(context.Background(), dir, file, Options{Grid: GridOptions{Spacing: transform.Vec{10, 12, 15}, Margin: 20}})
 	if err != nil {

@@ -24,7 +24,7 @@ import (
 func TestWrite(t *testing.T) {
 	s := testSpline(t, 3)
 	tv := transform.Vec{0.5, 0.5, 2}
-	file := &transform.File{Transform: s, TargetVoxel: &tv}
+	file := &register.Registration{Transform: s, Voxels: register.Voxels{Target: &tv}}
 	dir := t.TempDir()
 	// A mapped table in target voxels, with its sidecar.
 	cells := &landmarks.PointSet{Dim: 3, Points: []landmarks.Point{{ID: "a"}, {ID: "b"}, {ID: "c"}}}
@@ -86,7 +86,7 @@ func TestWrite(t *testing.T) {
 	}
 
 	// A linear model: matrices only.
-	lin := &transform.File{Transform: &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}}
+	lin := &register.Registration{Transform: &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}}
 	res, err = Write(context.Background(), filepath.Join(dir, "lin"), lin, Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -109,7 +109,7 @@ func TestWrite(t *testing.T) {
 func TestWriteRefusesStaleFiles(t *testing.T) {
 	s := testSpline(t, 3)
 	dir := filepath.Join(t.TempDir(), "export")
-	spline := &transform.File{Transform: s}
+	spline := &register.Registration{Transform: s}
 	if _, err := Write(context.Background(), dir, spline, Options{Grid: GridOptions{Margin: -1, Spacing: transform.Vec{50, 50, 50}}}); err != nil {
 		t.Fatal(err)
 	}
@@ -118,7 +118,7 @@ func TestWriteRefusesStaleFiles(t *testing.T) {
 		t.Fatalf("exporting again into the same folder: %v", err)
 	}
 	// An affine model writes no field: the spline's would be left behind.
-	lin := &transform.File{Transform: &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}}
+	lin := &register.Registration{Transform: &transform.Linear{Model: transform.Affine, D: 3, A: transform.Identity(), T: transform.Vec{1, 2, 3}, Scale: 1}}
 	before, err := os.ReadFile(filepath.Join(dir, ManifestFile))
 	if err != nil {
 		t.Fatal(err)

@@ -44,10 +44,7 @@ func benchMapper(b *testing.B, side float64) *register.Mapper {
 	if err != nil {
 		b.Fatal(err)
 	}
-	f, err := register.TransformFile(set, prob, a, settings, register.Voxels{}, nil, register.Provenance{Command: "fit"})
-	if err != nil {
-		b.Fatal(err)
-	}
+	f := register.NewRegistration(prob, a, settings, register.Provenance{Command: "fit"})
 	m, err := register.NewMapper(f)
 	if err != nil {
 		b.Fatal(err)

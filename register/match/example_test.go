@@ -41,10 +41,7 @@ func exampleMapper() *register.Mapper {
 	if err != nil {
 		log.Fatal(err)
 	}
-	file, err := register.TransformFile(set, prob, a, s, register.Voxels{}, nil, register.Provenance{Command: "fit"})
-	if err != nil {
-		log.Fatal(err)
-	}
+	file := register.NewRegistration(prob, a, s, register.Provenance{Command: "fit"})
 	m, err := register.NewMapper(file)
 	if err != nil {
 		log.Fatal(err)

@@ -56,10 +56,7 @@ func fitScenarioWith(t testing.TB, p simulate.Params, seed uint64, base register
 				exclude = flagged
 				continue
 			}
-			f, err := register.TransformFile(set, prob, a, s, register.Voxels{}, exclude, register.Provenance{Command: "fit"})
-			if err != nil {
-				return nil, "", err
-			}
+			f := register.NewRegistration(prob, a, s, register.Provenance{Command: "fit"})
 			m, err := register.NewMapper(f)
 			return m, a.Chosen, err
 		}

@@ -1,6 +1,7 @@
 package refine
 
 import (
+	"bytes"
 	"flag"
 	"math"
 	"testing"
@@ -8,12 +9,11 @@ import (
 	"ferry/register"
 	"ferry/register/match"
 	"ferry/status"
-	"ferry/transform"
 )
 
 // evaluate maps and matches the scenario's cells as map and match would
 // with the transform file f, and scores them against the truth.
-func evaluate(t testing.TB, s *scenario, f *transform.File) scores {
+func evaluate(t testing.TB, s *scenario, f *register.Registration) scores {
 	t.Helper()
 	m, err := register.NewMapper(f)
 	if err != nil {
@@ -55,14 +55,11 @@ func evaluate(t testing.TB, s *scenario, f *transform.File) scores {
 }
 
 // baseFile is the transform file fit would write for the scenario.
-func baseFile(t testing.TB, s *scenario, a *register.Assessment) *transform.File {
+func baseFile(t testing.TB, s *scenario, a *register.Assessment) *register.Registration {
 	t.Helper()
-	raw, err := register.NewUncertaintyModel(s.Landmarks, a, register.Settings{Smoothing: register.Smoothing{Auto: true}}).Marshal()
-	if err != nil {
-		t.Fatal(err)
-	}
-	return &transform.File{Transform: a.Result.Transform, Smoothing: a.Smoothing, Uncertainty: raw,
-		Landmarks: transform.Provenance{Path: "landmarks.csv", SHA256: "0"}}
+	u := register.NewUncertaintyModel(s.Landmarks, a, register.Settings{Smoothing: register.Smoothing{Auto: true}})
+	return &register.Registration{Transform: a.Result.Transform, Smoothing: a.Smoothing, Uncertainty: u,
+		Landmarks: register.LandmarkSource{Path: "landmarks.csv", SHA256: "0"}}
 }
 
 // runScenario refines a scenario and scores the landmark fit and the
@@ -93,7 +90,7 @@ func refineAndScore(t testing.TB, s *scenario, withBefore bool) (before, after s
 	if err != nil {
 		t.Fatal(err)
 	}
-	back, err := transform.Unmarshal("refined.json", data)
+	back, err := register.ReadRegistration(bytes.NewReader(data), "refined.json")
 	if err != nil {
 		t.Fatal(err)
 	}

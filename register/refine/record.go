@@ -118,17 +118,14 @@ func (res *Result) Record(in Input, opt Options, inputs []register.Input) Record
 	return rec
 }
 
-// File is the transform file of the refined fit: base (the landmark fit's
-// file, with its provenance and leave-one-out summary of the landmarks)
-// with the refined transform, its uncertainty model and the record.
-func (res *Result) File(base *transform.File, rec Record) (*transform.File, error) {
+// File is the registration of the refined fit: base (the landmark fit, with
+// its provenance and leave-one-out check of the landmarks) with the refined
+// transform, its uncertainty model and the record.
+func (res *Result) File(base *register.Registration, rec Record) (*register.Registration, error) {
 	f := *base
 	f.Transform, f.Smoothing = res.Transform, res.Smoothing
-	unc, err := res.Uncertainty.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	f.Uncertainty = unc
+	f.Uncertainty = res.Uncertainty
+	var err error
 	if f.Refinement, err = json.Marshal(rec); err != nil {
 		return nil, err
 	}

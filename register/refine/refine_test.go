@@ -1,6 +1,7 @@
 package refine
 
 import (
+	"bytes"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -101,7 +102,7 @@ func mean(v []float64) float64 {
 	return s / float64(len(v))
 }
 
-func refinedFile(t testing.TB, s *scenario, res *Result) *transform.File {
+func refinedFile(t testing.TB, s *scenario, res *Result) *register.Registration {
 	t.Helper()
 	sd := s.Params.CellSD
 	opt := Options{CellSD: &sd, CandidateSD: s.Params.NucleusSD}
@@ -113,7 +114,7 @@ func refinedFile(t testing.TB, s *scenario, res *Result) *transform.File {
 	if err != nil {
 		t.Fatal(err)
 	}
-	back, err := transform.Unmarshal("refined.json", data)
+	back, err := register.ReadRegistration(bytes.NewReader(data), "refined.json")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -247,11 +248,8 @@ func TestRefine2D(t *testing.T) {
 		t.Fatalf("%d pairs, worse %v", len(res.Pairs), res.Worse)
 	}
 	errOf := func(tr transform.Transform, u *register.UncertaintyModel, held []register.HeldOut) float64 {
-		f := &transform.File{Transform: tr}
+		f := &register.Registration{Transform: tr, Uncertainty: u}
 		var err error
-		if f.Uncertainty, err = u.Marshal(); err != nil {
-			t.Fatal(err)
-		}
 		if f.Refinement, err = heldOutJSON(held); err != nil {
 			t.Fatal(err)
 		}

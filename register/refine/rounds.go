@@ -64,22 +64,15 @@ func (r *refiner) choosePairs(mapper *register.Mapper, threshold float64, propos
 // mapper builds the mapper that map and match would read from the
 // transform file of fit (the landmark fit when nil).
 func (r *refiner) mapper(fit *fitState) (*register.Mapper, error) {
-	f := &transform.File{Transform: r.a.Result.Transform}
-	u := r.base
+	f := &register.Registration{Transform: r.a.Result.Transform, Uncertainty: r.base}
 	if fit != nil {
-		f.Transform = fit.transform
-		u = fit.uncertainty
+		f.Transform, f.Uncertainty = fit.transform, fit.uncertainty
 		raw, err := heldOutJSON(fit.heldOut)
 		if err != nil {
 			return nil, err
 		}
 		f.Refinement = raw
 	}
-	raw, err := u.Marshal()
-	if err != nil {
-		return nil, err
-	}
-	f.Uncertainty = raw
 	m, err := register.NewMapper(f)
 	if err != nil {
 		return nil, fmt.Errorf("refine: %w", err)

@@ -44,10 +44,7 @@ func Example() {
 		log.Fatal(err)
 	}
 	prov := register.Provenance{Command: "report", Inputs: []register.Input{{Path: "landmarks.csv", SHA256: set.SHA256}}}
-	file, err := register.TransformFile(set, p, a, settings, register.Voxels{}, nil, prov)
-	if err != nil {
-		log.Fatal(err)
-	}
+	file := register.NewRegistration(p, a, settings, prov)
 	check := a.JSON()
 	page, err := report.New(&report.Input{
 		LandmarkFile: "landmarks.csv", Check: &check, Source: p.Source,

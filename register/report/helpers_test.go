@@ -56,10 +56,7 @@ func scenarioInput(t testing.TB, dim int, rename func(i int, id string) string) 
 		t.Fatal(err)
 	}
 	prov := register.Provenance{Command: "report", Inputs: []register.Input{{Path: "landmarks.csv", SHA256: set.SHA256}}}
-	file, err := register.TransformFile(set, p, a, settings, register.Voxels{}, nil, prov)
-	if err != nil {
-		t.Fatal(err)
-	}
+	file := register.NewRegistration(p, a, settings, prov)
 	mapper, err := register.NewMapper(file)
 	if err != nil {
 		t.Fatal(err)

@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"context"
 	"errors"
 	"fmt"
 	"html/template"
@@ -9,6 +10,7 @@ import (
 	"math"
 	"strings"
 
+	"ferry/outfile"
 	"ferry/register"
 	"ferry/register/match"
 	"ferry/transform"
@@ -30,7 +32,7 @@ type Input struct {
 	// from and through which the errors and the cells are carried back to
 	// the source; TransformFile names it, or is empty when the transform
 	// was fitted for the report.
-	Transform     *transform.File
+	Transform     *register.Registration
 	TransformFile string
 	// Cells, when not nil, are the mapped cells of CellsFile (register.ReadMappedTable).
 	Cells     []register.MappedCell
@@ -334,4 +336,12 @@ func maxOf(v []float64) float64 {
 		}
 	}
 	return m
+}
+
+// WriteFile writes the page at path whole or not at all (package outfile).
+func (p *Page) WriteFile(ctx context.Context, path string) error {
+	return outfile.Write(ctx, path, func(w io.Writer) error {
+		_, err := p.WriteTo(w)
+		return err
+	})
 }

@@ -21,7 +21,6 @@ import (
 	"ferry/register"
 	"ferry/register/demo"
 	"ferry/register/match"
-	"ferry/transform"
 )
 
 // chromium finds Debian's chromium. Without it the browser test is skipped
@@ -54,7 +53,7 @@ func demoSession(t testing.TB) (*Session, string) {
 		t.Fatal(err)
 	}
 	f := out.Files
-	tf, err := transform.ReadFile(f.Transform)
+	tf, err := register.ReadRegistrationFile(f.Transform)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -21,7 +21,7 @@ import (
 
 // Inputs are what a review works on.
 type Inputs struct {
-	Transform *transform.File
+	Transform *register.Registration
 	Mapper    *register.Mapper
 	// Cells (source) and Candidates (target) as read, with their
 	// positions in micrometres.

@@ -41,11 +41,7 @@ func ExampleSuggest() {
 		fmt.Println(err)
 		return
 	}
-	f, err := register.TransformFile(&landmarks.PairSet{Path: "landmarks.csv", Dim: 3}, p, a, s, register.Voxels{}, nil, register.Provenance{Command: "example"})
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
+	f := register.NewRegistration(p, a, s, register.Provenance{Command: "example"})
 	var cells []transform.Vec
 	for i := range 5 {
 		for j := range 5 {

@@ -147,17 +147,13 @@ func TestFamiliesSuggestGain(t *testing.T) {
 }
 
 // fieldFile is the transform file fit writes, with its error model.
-func fieldFile(t *testing.T, p *register.Problem) *transform.File {
+func fieldFile(t *testing.T, p *register.Problem) *register.Registration {
 	t.Helper()
 	s := register.Settings{Smoothing: register.Smoothing{Auto: true}}
 	a, err := register.Assess(p, s)
 	if err != nil {
 		t.Fatal(err)
 	}
-	set := &landmarks.PairSet{Path: "landmarks.csv", Dim: p.Dim}
-	f, err := register.TransformFile(set, p, a, s, register.Voxels{}, nil, register.Provenance{Command: "test"})
-	if err != nil {
-		t.Fatal(err)
-	}
+	f := register.NewRegistration(p, a, s, register.Provenance{Command: "test"})
 	return f
 }

@@ -21,12 +21,9 @@ const fieldMaxPairs = 1 << 21
 // variance they would remove from the cells under the fitted field, and the
 // radii reported are those of the transform refitted with the chosen
 // landmarks, as `ferry map` would give them.
-func suggestField(f *transform.File, g *register.FieldGain, cells []transform.Vec, n int, opt Options) (*Result, error) {
+func suggestField(f *register.Registration, g *register.FieldGain, cells []transform.Vec, n int, opt Options) (*Result, error) {
 	dim := f.Transform.Dim()
-	u, err := register.ParseUncertaintyModel(f.Uncertainty, dim)
-	if err != nil {
-		return nil, err
-	}
+	u := f.Uncertainty
 	mapper, err := register.NewMapper(f)
 	if err != nil {
 		return nil, err

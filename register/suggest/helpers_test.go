@@ -1,6 +1,8 @@
 package suggest
 
 import (
+	"bytes"
+	"fmt"
 	"testing"
 
 	"ferry/landmarks"
@@ -27,17 +29,13 @@ func scenarioProblem(sc *simulate.Scenario) *register.Problem {
 
 // fitFile assesses p with s and puts the fit into a transform file, as
 // `ferry fit` does.
-func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*transform.File, *register.Assessment) {
+func fitFile(t testing.TB, p *register.Problem, s register.Settings) (*register.Registration, *register.Assessment) {
 	t.Helper()
 	a, err := register.Assess(p, s)
 	if err != nil {
 		t.Fatal(err)
 	}
-	set := &landmarks.PairSet{Path: "landmarks.csv", Dim: p.Dim}
-	f, err := register.TransformFile(set, p, a, s, register.Voxels{}, nil, register.Provenance{Command: "test"})
-	if err != nil {
-		t.Fatal(err)
-	}
+	f := register.NewRegistration(p, a, s, register.Provenance{Command: "test"})
 	// suggest conditions on the fitted model's own kriging variance.
 	if f, err = register.WithoutField(f); err != nil {
 		t.Fatal(err)
@@ -51,4 +49,21 @@ func scenarioCells(sc *simulate.Scenario) []transform.Vec {
 		xs[i] = c.SourceUM
 	}
 	return xs
+}
+
+// uncertaintyOf is f's uncertainty model as a reader of f's file decodes
+// it: a copy that a test may change, leaving f as it was.
+func uncertaintyOf(f *register.Registration, dim int) (*register.UncertaintyModel, error) {
+	var file bytes.Buffer
+	if _, err := f.WriteTo(&file); err != nil {
+		return nil, err
+	}
+	back, err := register.ReadRegistration(&file, "transform.json")
+	if err != nil {
+		return nil, err
+	}
+	if back.Dim() != dim || back.Uncertainty == nil {
+		return nil, fmt.Errorf("a %d-D registration with model %v, want %d-D with one", back.Dim(), back.Uncertainty != nil, dim)
+	}
+	return back.Uncertainty, nil
 }

@@ -91,11 +91,11 @@ type Result struct {
 	Suggestions []Suggestion
 }
 
-// Suggest chooses where to pick the next landmarks for the transform file f
+// Suggest chooses where to pick the next landmarks for the registration f
 // so that the median r95 of the cells (source positions in µm) shrinks
 // most, greedily (see the package documentation). f must carry its
-// uncertainty model, as fit writes it.
-func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, error) {
+// uncertainty model, as fit makes it.
+func Suggest(f *register.Registration, cells []transform.Vec, opt Options) (*Result, error) {
 	if f == nil || f.Transform == nil {
 		return nil, errors.New("no transform to suggest landmarks for")
 	}
@@ -123,10 +123,7 @@ func Suggest(f *transform.File, cells []transform.Vec, opt Options) (*Result, er
 	if err != nil {
 		return nil, err
 	}
-	u, err := register.ParseUncertaintyModel(f.Uncertainty, dim)
-	if err != nil {
-		return nil, err
-	}
+	u := f.Uncertainty
 	cp, err := transform.NewCrossPredictor(f.Transform, u.Source, u.Weights)
 	if err != nil {
 		return nil, fmt.Errorf("uncertainty model: %v", err)

@@ -107,7 +107,7 @@ func TestCellModelMatchesMapper(t *testing.T) {
 				s.SourceSD, s.TargetSD = &pick, &tsd
 			}
 			f, _ := fitFile(t, p, s)
-			u, err := register.ParseUncertaintyModel(f.Uncertainty, 3)
+			u, err := uncertaintyOf(f, 3)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -185,7 +185,7 @@ func TestConditioningEqualsRefit(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			p, cells := synthetic(uint64(tc.n*tc.dim), tc.dim, tc.n, 40)
 			f, a := fitFile(t, p, register.Settings{Model: tc.model, Smoothing: tc.smoothing})
-			u, err := register.ParseUncertaintyModel(f.Uncertainty, tc.dim)
+			u, err := uncertaintyOf(f, tc.dim)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -255,17 +255,13 @@ func TestSuggestRadiiEqualRefitMap(t *testing.T) {
 				zs = append(zs, sg.Source)
 			}
 			refit, src, w := refitted(t, p, a, zs, f.Transform.Apply)
-			u, err := register.ParseUncertaintyModel(f.Uncertainty, 3)
+			u, err := uncertaintyOf(f, 3)
 			if err != nil {
 				t.Fatal(err)
 			}
 			u.Source, u.Weights = src, w
-			raw, err := u.Marshal()
-			if err != nil {
-				t.Fatal(err)
-			}
 			g := *f
-			g.Transform, g.Uncertainty = refit.Transform, raw
+			g.Transform, g.Uncertainty = refit.Transform, u
 			mapper, err := register.NewMapper(&g)
 			if err != nil {
 				t.Fatal(err)
@@ -367,7 +363,7 @@ func TestSearchAgreesWithSequence(t *testing.T) {
 		t.Run(string(model), func(t *testing.T) {
 			p, cells := synthetic(11, 3, 30, 80)
 			f, _ := fitFile(t, p, register.Settings{Model: model, Smoothing: register.Smoothing{Auto: true}})
-			u, err := register.ParseUncertaintyModel(f.Uncertainty, 3)
+			u, err := uncertaintyOf(f, 3)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -503,7 +499,7 @@ func TestSuggestRefuses(t *testing.T) {
 	nan := append(slices.Clone(cells), transform.Vec{math.NaN(), 0, 0})
 	for _, tc := range []struct {
 		name  string
-		f     *transform.File
+		f     *register.Registration
 		cells []transform.Vec
 		opt   Options
 		want  string
@@ -666,7 +662,7 @@ func TestPruningChoosesAsFullScoring(t *testing.T) {
 		t.Run(fmt.Sprintf("%s sd=%t cells=%d", tc.model, tc.sd != nil, tc.cells), func(t *testing.T) {
 			p, cells := synthetic(31, 3, 40, tc.cells)
 			f, _ := fitFile(t, p, register.Settings{Model: tc.model, Smoothing: register.Smoothing{Value: 4}})
-			u, err := register.ParseUncertaintyModel(f.Uncertainty, 3)
+			u, err := uncertaintyOf(f, 3)
 			if err != nil {
 				t.Fatal(err)
 			}
