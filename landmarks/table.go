@@ -1,6 +1,8 @@
 package landmarks
 
 import (
+	"bufio"
+	"bytes"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -13,10 +15,31 @@ import (
 )
 
 // table reads a CSV table row by row, after its header.
+//
+// Most tables are plain: lines of unquoted ASCII fields. Those lines are
+// split here, byte by byte, without encoding/csv; the first line that is not
+// plain (a quote, a tab or other control character, a field starting with a
+// non-ASCII character, a line too long for the buffer, the last line
+// without its line end, a fault of the text) and everything after it goes
+// to encoding/csv, which then reads exactly what it would have read from the
+// start. The two paths give the same fields, lines and errors; a fuzz test
+// (FuzzTableFastPath) compares them.
 type table struct {
-	name   string
-	text   *textReader
-	csv    *csv.Reader
+	name string
+	text *textReader
+	// lines feeds the plain-line path; csv is nil until a line that is not
+	// plain hands the rest of the file to encoding/csv.
+	lines *bufio.Reader
+	csv   *csv.Reader
+	// nLine and off count the lines and bytes the plain-line path has
+	// consumed; once csv has taken over they are the base its line numbers
+	// and offsets are counted from.
+	nLine int
+	off   int64
+	// recLine is the line of the current row while on the plain-line path.
+	recLine int
+	// fields is the record of the plain-line path, reused from row to row.
+	fields []string
 	header []string
 	// headerLine is the physical line of the header row.
 	headerLine int
@@ -33,18 +56,24 @@ type table struct {
 
 // openTable reads up to and including the header row of r.
 func openTable(name string, r io.Reader) (*table, error) {
+	return openTableWith(name, r, true)
+}
+
+// openTableWith is openTable, with the plain-line path or (plain false)
+// with encoding/csv from the first line, as the tests that compare the two
+// paths need.
+func openTableWith(name string, r io.Reader, plain bool) (*table, error) {
 	size := remaining(r) // before anything is read ahead
 	text, err := newTextReader(name, r)
 	if err != nil {
 		return nil, err
 	}
-	c := csv.NewReader(text)
-	c.Comment = '#'
-	c.FieldsPerRecord = -1
-	c.LazyQuotes = false
-	c.ReuseRecord = true
-	c.TrimLeadingSpace = true
-	t := &table{name: name, text: text, csv: c, size: size}
+	t := &table{name: name, text: text, size: size}
+	if plain {
+		t.lines = bufio.NewReaderSize(text, 64<<10)
+	} else {
+		t.csv = newCSVReader(text)
+	}
 
 	ok, err := t.nextRecord()
 	if err != nil {
@@ -53,12 +82,12 @@ func openTable(name string, r io.Reader) (*table, error) {
 	if !ok {
 		return nil, &InputError{File: name, Msg: "no header row (only comments and blank lines): want a header row naming the columns"}
 	}
-	t.headerLine, _ = c.FieldPos(0)
+	t.headerLine = t.line(0)
 	t.header = make([]string, len(t.record))
 	t.columns = make(map[string]int, len(t.record))
 	for i, raw := range t.record {
 		h := strings.TrimSpace(raw)
-		line, _ := c.FieldPos(i)
+		line := t.line(i)
 		switch {
 		case h == "":
 			return nil, &InputError{File: name, Line: line, Msg: fmt.Sprintf("header column %d has no name: every column needs one (is there a stray comma at the end of the line?)", i+1)}
@@ -74,8 +103,116 @@ func openTable(name string, r io.Reader) (*table, error) {
 		t.columns[key] = i
 		t.header[i] = h
 	}
-	t.dataStart = c.InputOffset()
+	t.dataStart = t.offset()
 	return t, nil
+}
+
+// newCSVReader is the encoding/csv reader of every table, over r.
+func newCSVReader(r io.Reader) *csv.Reader {
+	c := csv.NewReader(r)
+	c.Comment = '#'
+	c.FieldsPerRecord = -1
+	c.LazyQuotes = false
+	c.ReuseRecord = true
+	c.TrimLeadingSpace = true
+	return c
+}
+
+// offset is the number of bytes after the byte-order mark read up to the
+// end of the current row.
+func (t *table) offset() int64 {
+	if t.csv == nil {
+		return t.off
+	}
+	return t.off + t.csv.InputOffset()
+}
+
+// readPlain reads the next record on the plain-line path, skipping comment
+// and empty lines as encoding/csv does, or hands over to encoding/csv at the
+// first line that is not plain and returns what it reads.
+func (t *table) readPlain() ([]string, error) {
+	for {
+		line, err := t.lines.ReadSlice('\n')
+		if err != nil {
+			return t.handOver(line)
+		}
+		// encoding/csv turns a CRLF line end into LF, then skips lines
+		// that start with the comment character or hold nothing else.
+		n := len(line) - 1
+		if n > 0 && line[n-1] == '\r' {
+			n--
+		}
+		body := line[:n]
+		if n == 0 || body[0] == '#' {
+			t.nLine++
+			t.off += int64(len(line))
+			continue
+		}
+		if !plainLine(body) {
+			return t.handOver(line)
+		}
+		t.nLine++
+		t.off += int64(len(line))
+		t.recLine = t.nLine
+		t.fields = splitPlain(t.fields[:0], string(body))
+		return t.fields, nil
+	}
+}
+
+// plainLine reports whether encoding/csv, with leading spaces trimmed and
+// lazy quotes off, splits body (a line without its line end) at its commas
+// and trims only ASCII spaces from the start of each field: no quote and no
+// control character anywhere, and no field whose first character after its
+// spaces is outside ASCII (it might be a Unicode space).
+func plainLine(body []byte) bool {
+	start := true // at the start of a field, past its spaces
+	for _, c := range body {
+		switch {
+		case c == '"' || c < 0x20 || c == 0x7f:
+			return false
+		case c >= 0x80:
+			if start {
+				return false
+			}
+		case c == ',':
+			start = true
+			continue
+		case c == ' ':
+			continue
+		}
+		start = false
+	}
+	return true
+}
+
+// splitPlain appends to dst the fields of s, a plain line (see plainLine),
+// each without its leading spaces, as slices of s.
+func splitPlain(dst []string, s string) []string {
+	for {
+		i := strings.IndexByte(s, ',')
+		field := s
+		if i >= 0 {
+			field = s[:i]
+		}
+		k := 0
+		for k < len(field) && field[k] == ' ' {
+			k++
+		}
+		dst = append(dst, field[k:])
+		if i < 0 {
+			return dst
+		}
+		s = s[i+1:]
+	}
+}
+
+// handOver gives the rest of the file, starting with line (the bytes of the
+// current line already taken from t.lines), to encoding/csv, and returns
+// its first record.
+func (t *table) handOver(line []byte) ([]string, error) {
+	rest := io.MultiReader(bytes.NewReader(bytes.Clone(line)), t.lines)
+	t.csv = newCSVReader(rest)
+	return t.csv.Read()
 }
 
 // remaining is the number of bytes left to read from r where r can tell
@@ -110,8 +247,8 @@ func (t *table) estimateRows(rows int) int {
 	if t.size < 0 || rows == 0 {
 		return 0
 	}
-	// The CSV reader does not count the byte-order mark.
-	off := t.csv.InputOffset()
+	// The offset does not count the byte-order mark.
+	off := t.offset()
 	perRow := float64(off-t.dataStart) / float64(rows)
 	left := float64(t.size - int64(t.text.bom) - off)
 	if perRow <= 0 || left <= 0 {
@@ -125,7 +262,13 @@ func (t *table) estimateRows(rows int) int {
 // whether there was one.
 func (t *table) nextRecord() (bool, error) {
 	for {
-		rec, err := t.csv.Read()
+		var rec []string
+		var err error
+		if t.csv == nil {
+			rec, err = t.readPlain()
+		} else {
+			rec, err = t.csv.Read()
+		}
 		if err == io.EOF {
 			return false, nil
 		}
@@ -148,8 +291,12 @@ func (t *table) readError(err error) error {
 	if errors.As(err, &in) {
 		return in
 	}
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
+	var csvErr *csv.ParseError
+	if errors.As(err, &csvErr) {
+		// Lines count from where encoding/csv took over.
+		pe := *csvErr
+		pe.Line += t.nLine
+		pe.StartLine += t.nLine
 		msg := pe.Err.Error()
 		switch {
 		case errors.Is(pe.Err, csv.ErrBareQuote):
@@ -211,8 +358,11 @@ func (t *table) extras(used ...int) []int {
 
 // line is the physical line on which field i of the current row starts.
 func (t *table) line(i int) int {
+	if t.csv == nil {
+		return t.recLine
+	}
 	line, _ := t.csv.FieldPos(i)
-	return line
+	return t.nLine + line
 }
 
 // fail is an *InputError about field i of the current row.
@@ -259,6 +409,60 @@ func (t *table) number(i int) (float64, error) {
 // parseNumber reads s, trimmed of spaces, as a finite decimal number, and
 // otherwise returns a message saying why it is not one.
 func parseNumber(s string) (float64, string) {
+	if v, ok := shortDecimal(s); ok {
+		return v, ""
+	}
+	return parseNumberStrconv(s)
+}
+
+// shortDecimal reads s when it is a decimal number of the commonest kind: an
+// optional sign, then at most 15 digits with at most one point among or
+// around them, nothing else. Its digits then make an integer m < 10^15 and
+// its value is m / 10^k with both exactly representable, so the one
+// correctly rounded division gives the float64 nearest the decimal, as
+// strconv.ParseFloat does (it takes the same exact path, W. D. Clinger,
+// "How to read floating point numbers accurately", PLDI 1990). ok is false
+// for anything else, which parseNumberStrconv reads.
+func shortDecimal(s string) (v float64, ok bool) {
+	i := 0
+	if len(s) > 0 && (s[0] == '-' || s[0] == '+') {
+		i = 1
+	}
+	var m uint64
+	digits, frac, point := 0, 0, false
+	for ; i < len(s); i++ {
+		c := s[i]
+		switch {
+		case c >= '0' && c <= '9':
+			m = 10*m + uint64(c-'0')
+			digits++
+			if point {
+				frac++
+			}
+		case c == '.' && !point:
+			point = true
+		default:
+			return 0, false
+		}
+	}
+	if digits == 0 || digits > 15 {
+		return 0, false
+	}
+	// 10^frac ≤ 10^15 < 2^53: every product is exact.
+	p := 1.0
+	for range frac {
+		p *= 10
+	}
+	v = float64(m) / p
+	if s[0] == '-' {
+		v = -v
+	}
+	return v, true
+}
+
+// parseNumberStrconv is parseNumber by strconv.ParseFloat, for every number
+// shortDecimal does not read and every text that is not a number.
+func parseNumberStrconv(s string) (float64, string) {
 	s = strings.TrimSpace(s)
 	if s == "" {
 		return 0, "empty: want a number"
