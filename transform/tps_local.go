@@ -102,11 +102,11 @@ func (p *localPredictor) cellFor(k [3]int) (*splinePredictor, error) {
 	// The system weighs pair i's smoothing by the mean weight over its own
 	// nodes; scale S so that each node keeps the penalty S·w̄/w_i of the
 	// whole fit.
-	local := *p.s
+	local := p.s.clone()
 	if weights != nil {
 		local.Smoothing = p.s.Smoothing * p.meanWeight / (sub / float64(len(idx)))
 	}
-	c, err := newExactSplinePredictor(&local, nodes, weights)
+	c, err := newExactSplinePredictor(local, nodes, weights)
 	if err != nil {
 		return nil, err
 	}

@@ -49,6 +49,9 @@ type splinePredictor struct {
 // checked for length only. Up to localNodes nodes it is exact; beyond, it
 // is the neighbourhood predictor of localPredictor.
 func newSplinePredictor(s *Spline, src []Vec, weights []float64) (Predictor, error) {
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
 	if src != nil && len(src) != len(s.Nodes) {
 		return nil, fmt.Errorf("predictor given %d source points for a spline of %d nodes", len(src), len(s.Nodes))
 	}
