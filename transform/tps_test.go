@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"strings"
+	"sync"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -800,6 +801,25 @@ func TestSplineBuiltFromFields(t *testing.T) {
 		}
 		if _, err := NewPredictor(built, nil, nil); err != nil {
 			t.Errorf("%d-D NewPredictor of the built spline: %v", c.dim, err)
+		}
+
+		// The first uses may come from several goroutines at once.
+		fresh := built.clone()
+		pts := c.queryPoints(19, 8)
+		got := make([]Vec, len(pts))
+		var wg sync.WaitGroup
+		for i, p := range pts {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				got[i] = fresh.Apply(p)
+			}()
+		}
+		wg.Wait()
+		for i, p := range pts {
+			if want := fitted.Apply(p); got[i] != want {
+				t.Errorf("%d-D concurrent first Apply(%v): %v, fitted %v", c.dim, p, got[i], want)
+			}
 		}
 
 		bad := built.clone()
