@@ -18,11 +18,12 @@ func (s *Spline) applyJacobian(p Vec) (Vec, Mat) {
 	if s.Dimension == 2 {
 		return s.Apply(p), s.Jacobian(p)
 	}
+	c := s.mustReady()
 	q := s.Matrix.MulVec(p).Add(s.Offset)
-	x := (p[0] - s.Centre[0]) * s.invScale
-	y := (p[1] - s.Centre[1]) * s.invScale
-	z := (p[2] - s.Centre[2]) * s.invScale
-	ux, uy, uz, wx, wy, wz := s.ux, s.uy, s.uz, s.wx, s.wy, s.wz
+	x := (p[0] - s.Centre[0]) * c.invScale
+	y := (p[1] - s.Centre[1]) * c.invScale
+	z := (p[2] - s.Centre[2]) * c.invScale
+	ux, uy, uz, wx, wy, wz := c.ux, c.uy, c.uz, c.wx, c.wy, c.wz
 	n := len(ux)
 	uy, uz, wx, wy, wz = uy[:n], uz[:n], wx[:n], wy[:n], wz[:n]
 	var fx, fy, fz float64
@@ -67,7 +68,7 @@ func (s *Spline) applyJacobian(p Vec) (Vec, Mat) {
 	jac := s.Matrix
 	for a := range 3 {
 		for b := range 3 {
-			jac[a][b] += g[a][b] * s.invScale
+			jac[a][b] += g[a][b] * c.invScale
 		}
 	}
 	return q, jac

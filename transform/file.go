@@ -123,7 +123,7 @@ func decodeTransform(raw json.RawMessage, depth int) (Transform, error) {
 		if w.Spline == nil {
 			return nil, errors.New("tps transform without its parameters")
 		}
-		if err := w.Spline.validate(); err != nil {
+		if err := w.Spline.Validate(); err != nil {
 			return nil, err
 		}
 		t = w.Spline

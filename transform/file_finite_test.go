@@ -34,16 +34,16 @@ func TestMarshalRefusesNonFinite(t *testing.T) {
 			return &Linear{Model: Affine, D: 3, A: a, Scale: 1}
 		}, "not a finite number"},
 		{"spline weight Inf", func() Transform {
-			s := *spline
+			s := spline.clone()
 			s.Weights = append([]Vec(nil), spline.Weights...)
 			s.Weights[4][1] = inf
-			return &s
+			return s
 		}, "kernel weight of node 5"},
 		{"spline node NaN", func() Transform {
-			s := *spline
+			s := spline.clone()
 			s.Nodes = append([]Vec(nil), spline.Nodes...)
 			s.Nodes[2][0] = nan
-			return &s
+			return s
 		}, "node 3"},
 	}
 	for _, tc := range tests {

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -71,9 +72,11 @@ const (
 // Offset − log(Scale)·Σ_j Weights[j]·|u_j|² in 2-D (see the derivation at
 // the top of tps.go).
 //
-// A Spline decoded from a file must pass validate, which also builds the
-// caches that Apply, Jacobian and Invert read; Fit returns one ready to use.
-// After that it is safe for concurrent use.
+// Fit and Unmarshal return splines that have passed Validate. A Spline
+// built from its fields is validated on its first use (see Validate), so
+// it maps exactly as the fitted spline with the same fields, or is
+// refused; its fields must not change after that. It is safe for
+// concurrent use.
 type Spline struct {
 	// Dimension is 2 or 3.
 	Dimension int `json:"dim"`
@@ -98,11 +101,42 @@ type Spline struct {
 	// Spline.system rebuild the factorised fit for the posterior variance.
 	PairWeights []float64 `json:"pair_weights,omitempty"`
 
-	// Struct-of-arrays copies of the normalised nodes and the weights, so
-	// that the loop of Apply streams six dense slices.
+	// nodal holds what Validate derived from the fields above: built once,
+	// on first use, by whichever goroutine gets there first.
+	nodal atomic.Pointer[splineNodal]
+}
+
+// splineNodal is a Spline's validation verdict and, when it passed, the
+// struct-of-arrays copies of the normalised nodes and the weights, so that
+// the loop of Apply streams six dense slices.
+type splineNodal struct {
+	err        error
 	ux, uy, uz []float64
 	wx, wy, wz []float64
 	invScale   float64
+}
+
+// ready returns s's nodal copies, validating s the first time it is asked.
+// A Spline built from its fields, not by Fit or a file reader, is checked
+// here before its first use, so it maps exactly as a fitted one or not at
+// all.
+func (s *Spline) ready() *splineNodal {
+	if c := s.nodal.Load(); c != nil {
+		return c
+	}
+	s.nodal.CompareAndSwap(nil, s.check())
+	return s.nodal.Load()
+}
+
+// mustReady is ready for the methods that cannot return an error: a
+// Spline that fails Validate is a programming error there, as an index out
+// of range is, and it panics with the reason.
+func (s *Spline) mustReady() *splineNodal {
+	c := s.ready()
+	if c.err != nil {
+		panic(fmt.Sprintf("transform: invalid Spline (build one with Fit or read it with Unmarshal): %v", c.err))
+	}
+	return c
 }
 
 var _ Transform = (*Spline)(nil)
@@ -115,10 +149,11 @@ func (s *Spline) Dim() int { return s.Dimension }
 
 // Apply maps p. It does not allocate.
 func (s *Spline) Apply(p Vec) Vec {
+	c := s.mustReady()
 	q := s.Matrix.MulVec(p).Add(s.Offset)
-	x := (p[0] - s.Centre[0]) * s.invScale
-	y := (p[1] - s.Centre[1]) * s.invScale
-	ux, uy, wx, wy := s.ux, s.uy, s.wx, s.wy
+	x := (p[0] - s.Centre[0]) * c.invScale
+	y := (p[1] - s.Centre[1]) * c.invScale
+	ux, uy, wx, wy := c.ux, c.uy, c.wx, c.wy
 	n := len(ux)
 	uy, wx, wy = uy[:n], wx[:n], wy[:n]
 	var fx, fy, fz float64
@@ -137,8 +172,8 @@ func (s *Spline) Apply(p Vec) Vec {
 		q[1] += fy
 		return q
 	}
-	z := (p[2] - s.Centre[2]) * s.invScale
-	uz, wz := s.uz[:n], s.wz[:n]
+	z := (p[2] - s.Centre[2]) * c.invScale
+	uz, wz := c.uz[:n], c.wz[:n]
 	for j := range ux {
 		dx, dy, dz := x-ux[j], y-uy[j], z-uz[j]
 		r := math.Sqrt(dx*dx + dy*dy + dz*dz)
@@ -165,9 +200,10 @@ func (s *Spline) Jacobian(p Vec) Mat {
 		_, j := s.applyJacobian(p)
 		return j
 	}
-	x := (p[0] - s.Centre[0]) * s.invScale
-	y := (p[1] - s.Centre[1]) * s.invScale
-	ux, uy, wx, wy := s.ux, s.uy, s.wx, s.wy
+	c := s.mustReady()
+	x := (p[0] - s.Centre[0]) * c.invScale
+	y := (p[1] - s.Centre[1]) * c.invScale
+	ux, uy, wx, wy := c.ux, c.uy, c.wx, c.wy
 	n := len(ux)
 	uy, wx, wy = uy[:n], wx[:n], wy[:n]
 	var g Mat // Σ_j w_j ⊗ ∇_u φ_j
@@ -186,7 +222,7 @@ func (s *Spline) Jacobian(p Vec) Mat {
 	j := s.Matrix
 	for a := range 3 {
 		for b := range 3 {
-			j[a][b] += g[a][b] * s.invScale
+			j[a][b] += g[a][b] * c.invScale
 		}
 	}
 	return j
@@ -202,6 +238,9 @@ func (s *Spline) Jacobian(p Vec) Mat {
 // where the spline folds (its Jacobian determinant there does not have the
 // sign of the affine part's, so the inverse is not unique).
 func (s *Spline) Invert(q Vec) (Vec, error) {
+	if err := s.ready().err; err != nil {
+		return Vec{}, err
+	}
 	ainv, ok := s.Matrix.Inverse()
 	if !ok {
 		return Vec{}, fmt.Errorf("thin-plate spline's affine part is singular: %w", ErrNoConvergence)
@@ -255,56 +294,84 @@ func (s *Spline) checkUnfolded(x, q Vec, orient float64) (Vec, error) {
 	return x, nil
 }
 
-// validate checks a decoded Spline — dimension, lengths, finite numbers, the
-// 2-D shape, the side conditions Σ w_j = 0 and Σ w_j u_j = 0 that every
-// fitted spline meets — and then builds the caches Apply needs. The
-// transform-file reader must call it before using the spline; it is the only
-// place the caches are built.
-func (s *Spline) validate() error {
+// Validate checks s — dimension, lengths, finite numbers, the 2-D shape,
+// the side conditions Σ w_j = 0 and Σ w_j u_j = 0 that every fitted spline
+// meets — and derives from its nodes what Apply reads. Fit and the
+// transform-file reader return splines that have passed it; a Spline built
+// from its fields is validated on its first use, and its methods refuse it
+// (Apply and Jacobian by panicking, the others with this error) if it
+// fails. Validate lets such a caller see the error first. The fields must
+// not change after the first use.
+func (s *Spline) Validate() error {
 	if s == nil {
 		return errors.New("thin-plate spline is missing")
 	}
+	return s.ready().err
+}
+
+// clone returns a Spline with s's fields and its own, not yet built, nodal
+// copies: a value copy would share s's verdict even after a field changes.
+func (s *Spline) clone() *Spline {
+	return &Spline{
+		Dimension: s.Dimension, Centre: s.Centre, Scale: s.Scale,
+		Nodes: s.Nodes, Weights: s.Weights, Matrix: s.Matrix, Offset: s.Offset,
+		Smoothing: s.Smoothing, PairWeights: s.PairWeights,
+	}
+}
+
+// check is Validate's verdict on the fields, with the nodal copies when
+// they pass.
+func (s *Spline) check() *splineNodal {
+	c, err := s.nodalCopies()
+	if err != nil {
+		return &splineNodal{err: err}
+	}
+	return c
+}
+
+// nodalCopies checks the fields and builds the struct-of-arrays copies.
+func (s *Spline) nodalCopies() (*splineNodal, error) {
 	dim := s.Dimension
 	if dim != 2 && dim != 3 {
-		return fmt.Errorf("thin-plate spline has dimension %d: want 2 or 3", dim)
+		return nil, fmt.Errorf("thin-plate spline has dimension %d: want 2 or 3", dim)
 	}
 	n := len(s.Nodes)
 	if n < dim+1 {
-		return fmt.Errorf("thin-plate spline in %d-D has %d nodes: want at least %d", dim, n, dim+1)
+		return nil, fmt.Errorf("thin-plate spline in %d-D has %d nodes: want at least %d", dim, n, dim+1)
 	}
 	if len(s.Weights) != n {
-		return fmt.Errorf("thin-plate spline has %d nodes but %d kernel weights", n, len(s.Weights))
+		return nil, fmt.Errorf("thin-plate spline has %d nodes but %d kernel weights", n, len(s.Weights))
 	}
 	if !(s.Scale > 0) || math.IsInf(s.Scale, 0) {
-		return fmt.Errorf("thin-plate spline has scale %v µm: want a positive finite number", s.Scale)
+		return nil, fmt.Errorf("thin-plate spline has scale %v µm: want a positive finite number", s.Scale)
 	}
 	if !s.Centre.IsFinite() || !s.Offset.IsFinite() {
-		return fmt.Errorf("thin-plate spline centre %v µm or offset %v µm is not finite", s.Centre, s.Offset)
+		return nil, fmt.Errorf("thin-plate spline centre %v µm or offset %v µm is not finite", s.Centre, s.Offset)
 	}
 	for i := range 3 {
 		for j := range 3 {
 			if !finite(s.Matrix[i][j]) {
-				return fmt.Errorf("thin-plate spline: matrix entry (%d,%d) is %v", i, j, s.Matrix[i][j])
+				return nil, fmt.Errorf("thin-plate spline: matrix entry (%d,%d) is %v", i, j, s.Matrix[i][j])
 			}
 		}
 	}
 	if !(s.Smoothing >= 0) || math.IsInf(s.Smoothing, 0) {
-		return fmt.Errorf("thin-plate spline has smoothing %v: want a finite number ≥ 0", s.Smoothing)
+		return nil, fmt.Errorf("thin-plate spline has smoothing %v: want a finite number ≥ 0", s.Smoothing)
 	}
 	if s.PairWeights != nil {
 		if len(s.PairWeights) != n {
-			return fmt.Errorf("thin-plate spline has %d nodes but %d pair weights", n, len(s.PairWeights))
+			return nil, fmt.Errorf("thin-plate spline has %d nodes but %d pair weights", n, len(s.PairWeights))
 		}
 		for i, w := range s.PairWeights {
 			if !(w > 0) || math.IsInf(w, 0) {
-				return fmt.Errorf("thin-plate spline pair weight %d is %v: want a positive finite number", i, w)
+				return nil, fmt.Errorf("thin-plate spline pair weight %d is %v: want a positive finite number", i, w)
 			}
 		}
 	}
 	if dim == 2 {
 		m := s.Matrix
 		if m[0][2] != 0 || m[1][2] != 0 || m[2][0] != 0 || m[2][1] != 0 || m[2][2] != 1 || s.Offset[2] != 0 || s.Centre[2] != 0 {
-			return errors.New("2-D thin-plate spline must leave z alone: want matrix row and column 3 of the identity and offset and centre z 0")
+			return nil, errors.New("2-D thin-plate spline must leave z alone: want matrix row and column 3 of the identity and offset and centre z 0")
 		}
 	}
 	inv := 1 / s.Scale
@@ -316,10 +383,10 @@ func (s *Spline) validate() error {
 	for j := range n {
 		p, w := s.Nodes[j], s.Weights[j]
 		if !p.IsFinite() || !w.IsFinite() {
-			return fmt.Errorf("thin-plate spline node %d (%v µm) or its weight (%v µm) is not finite", j, p, w)
+			return nil, fmt.Errorf("thin-plate spline node %d (%v µm) or its weight (%v µm) is not finite", j, p, w)
 		}
 		if dim == 2 && (p[2] != 0 || w[2] != 0) {
-			return fmt.Errorf("2-D thin-plate spline node %d has a z coordinate or weight", j)
+			return nil, fmt.Errorf("2-D thin-plate spline node %d has a z coordinate or weight", j)
 		}
 		u := p.Sub(s.Centre).Scale(inv)
 		ux[j], uy[j], uz[j] = u[0], u[1], u[2]
@@ -338,19 +405,19 @@ func (s *Spline) validate() error {
 			bad = math.Max(bad, math.Abs(moment[a][b]))
 		}
 		if bad > 1e-8*magnitude[a] {
-			return fmt.Errorf("thin-plate spline weights break the side conditions Σw = 0, Σw·u = 0 (off by %.3g of %.3g in coordinate %d): the file is damaged", bad, magnitude[a], a+1)
+			return nil, fmt.Errorf("thin-plate spline weights break the side conditions Σw = 0, Σw·u = 0 (off by %.3g of %.3g in coordinate %d): the file is damaged", bad, magnitude[a], a+1)
 		}
 	}
-	s.ux, s.uy, s.uz = ux, uy, uz
-	s.wx, s.wy, s.wz = wx, wy, wz
-	s.invScale = inv
-	return nil
+	return &splineNodal{ux: ux, uy: uy, uz: uz, wx: wx, wy: wy, wz: wz, invScale: inv}, nil
 }
 
 // system rebuilds and factorises the fit of s from its nodes, smoothing and
 // pair weights: the reusable piece for quantities beyond the fitted map,
 // such as the posterior variance. It costs a Cholesky factorisation.
 func (s *Spline) system() (*splineSystem, error) {
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
 	return newSplineSystem(s.Dimension, s.Centre, s.Scale, s.Nodes, s.Smoothing, s.PairWeights)
 }
 
@@ -411,7 +478,7 @@ func fitSpline(dim int, src, dst []Vec, opt Options) (*Result, error) {
 		}
 		sp.Offset[k] = off
 	}
-	if err := sp.validate(); err != nil {
+	if err := sp.Validate(); err != nil {
 		return nil, fmt.Errorf("fitted thin-plate spline: %w", err)
 	}
 	res := &Result{Transform: sp, Residuals: make([]Vec, n), Mirrored: sp.Matrix.Det() < 0}

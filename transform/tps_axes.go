@@ -18,11 +18,8 @@ func (s *Spline) WithAxesFrom(o *Spline, axes ...int) (*Spline, error) {
 			return nil, fmt.Errorf("splines on different nodes cannot share axes (node %d)", i)
 		}
 	}
-	c := &Spline{
-		Dimension: s.Dimension, Centre: s.Centre, Scale: s.Scale,
-		Nodes: s.Nodes, Weights: append([]Vec(nil), s.Weights...),
-		Matrix: s.Matrix, Offset: s.Offset, Smoothing: s.Smoothing, PairWeights: s.PairWeights,
-	}
+	c := s.clone()
+	c.Weights = append([]Vec(nil), s.Weights...)
 	for _, k := range axes {
 		if k < 0 || k >= s.Dimension {
 			return nil, fmt.Errorf("axis %d of a %d-D spline", k, s.Dimension)
@@ -33,7 +30,7 @@ func (s *Spline) WithAxesFrom(o *Spline, axes ...int) (*Spline, error) {
 		c.Matrix[k] = o.Matrix[k]
 		c.Offset[k] = o.Offset[k]
 	}
-	if err := c.validate(); err != nil {
+	if err := c.Validate(); err != nil {
 		return nil, err
 	}
 	return c, nil

@@ -4,8 +4,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
+
+	"ferry/internal/parallel"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -139,85 +139,76 @@ func (p *splinePredictor) crossRows(xs []Vec, wantLeft, wantRight bool) (left, r
 	}
 	us = make([]Vec, len(xs))
 	const block = 256
-	nblocks := (len(xs) + block - 1) / block
-	next := make(chan int, nblocks)
-	for b := range nblocks {
-		next <- b
-	}
-	close(next)
 	ut := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: n, Stride: n, Data: p.u}
-	var wg sync.WaitGroup
-	for range min(runtime.GOMAXPROCS(0), max(nblocks, 1)) {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			k := make([]float64, len(sys.nodes))
-			y := make([]float64, n*block)
-			alpha := make([]float64, m*block)
-			t1 := make([]float64, m*block)
-			b12 := sys.b12.RawMatrix()
-			for b := range next {
-				lo, hi := b*block, min((b+1)*block, len(xs))
-				B := hi - lo
-				for i := range B {
-					u := xs[lo+i].Sub(sys.centre).Scale(1 / sys.scale)
-					us[lo+i] = u
-					sys.kernelVector(u, k)
-					for r := range m {
-						applyReflector(k, sys.v[r], sys.tau[r], r)
-					}
-					al := alpha[i*m : (i+1)*m]
-					al[0] = 1
-					for l := range sys.dim {
-						al[1+l] = u[l]
-					}
-					for r := range m {
-						v := al[r]
-						for l := range r {
-							v -= sys.r[l][r] * al[l]
-						}
-						al[r] = v / sys.r[r][r]
-					}
-					copy(t1[i*m:(i+1)*m], k[:m])
-					for j := range n {
-						v := k[m+j]
-						for r := range m {
-							v -= b12.Data[r*b12.Stride+j] * al[r]
-						}
-						y[j*B+i] = v
-					}
+	b12 := sys.b12.RawMatrix()
+	type scratch struct{ k, y, alpha, t1 []float64 }
+	newScratch := func() *scratch {
+		return &scratch{
+			k:     make([]float64, len(sys.nodes)),
+			y:     make([]float64, n*block),
+			alpha: make([]float64, m*block),
+			t1:    make([]float64, m*block),
+		}
+	}
+	parallel.Blocks(len(xs), block, newScratch, func(s *scratch, lo, hi int) {
+		k, y, alpha, t1 := s.k, s.y, s.alpha, s.t1
+		B := hi - lo
+		for i := range B {
+			u := xs[lo+i].Sub(sys.centre).Scale(1 / sys.scale)
+			us[lo+i] = u
+			sys.kernelVector(u, k)
+			for r := range m {
+				applyReflector(k, sys.v[r], sys.tau[r], r)
+			}
+			al := alpha[i*m : (i+1)*m]
+			al[0] = 1
+			for l := range sys.dim {
+				al[1+l] = u[l]
+			}
+			for r := range m {
+				v := al[r]
+				for l := range r {
+					v -= sys.r[l][r] * al[l]
 				}
-				// g = U⁻ᵀ y for the whole block: Uᵀ G = Y.
-				blas64.Trsm(blas.Left, blas.Trans, 1, ut, blas64.General{Rows: n, Cols: B, Stride: B, Data: y[:n*B]})
-				for i := range B {
-					al, tt := alpha[i*m:(i+1)*m], t1[i*m:(i+1)*m]
-					if left != nil {
-						row := left[(lo+i)*width : (lo+i+1)*width]
-						for j := range n {
-							row[j] = y[j*B+i]
-						}
-						copy(row[n:n+m], tt)
-						copy(row[n+m:], al)
+				al[r] = v / sys.r[r][r]
+			}
+			copy(t1[i*m:(i+1)*m], k[:m])
+			for j := range n {
+				v := k[m+j]
+				for r := range m {
+					v -= b12.Data[r*b12.Stride+j] * al[r]
+				}
+				y[j*B+i] = v
+			}
+		}
+		// g = U⁻ᵀ y for the whole block: Uᵀ G = Y.
+		blas64.Trsm(blas.Left, blas.Trans, 1, ut, blas64.General{Rows: n, Cols: B, Stride: B, Data: y[:n*B]})
+		for i := range B {
+			al, tt := alpha[i*m:(i+1)*m], t1[i*m:(i+1)*m]
+			if left != nil {
+				row := left[(lo+i)*width : (lo+i+1)*width]
+				for j := range n {
+					row[j] = y[j*B+i]
+				}
+				copy(row[n:n+m], tt)
+				copy(row[n+m:], al)
+			}
+			if right != nil {
+				row := right[(lo+i)*width : (lo+i+1)*width]
+				for j := range n {
+					row[j] = y[j*B+i]
+				}
+				copy(row[n:n+m], al)
+				for r := range m {
+					v := tt[r]
+					for l := range m {
+						v -= sys.b11[r][l] * al[l]
 					}
-					if right != nil {
-						row := right[(lo+i)*width : (lo+i+1)*width]
-						for j := range n {
-							row[j] = y[j*B+i]
-						}
-						copy(row[n:n+m], al)
-						for r := range m {
-							v := tt[r]
-							for l := range m {
-								v -= sys.b11[r][l] * al[l]
-							}
-							row[n+m+r] = v
-						}
-					}
+					row[n+m+r] = v
 				}
 			}
-		}()
-	}
-	wg.Wait()
+		}
+	})
 	return left, right, us
 }
 

@@ -2,10 +2,10 @@ package transform
 
 import (
 	"math"
-	"runtime"
 	"sort"
 	"sync"
-	"sync/atomic"
+
+	"ferry/internal/parallel"
 )
 
 // localNodes is the largest spline whose posterior variance is computed
@@ -102,11 +102,11 @@ func (p *localPredictor) cellFor(k [3]int) (*splinePredictor, error) {
 	// The system weighs pair i's smoothing by the mean weight over its own
 	// nodes; scale S so that each node keeps the penalty S·w̄/w_i of the
 	// whole fit.
-	local := *p.s
+	local := p.s.clone()
 	if weights != nil {
 		local.Smoothing = p.s.Smoothing * p.meanWeight / (sub / float64(len(idx)))
 	}
-	c, err := newExactSplinePredictor(&local, nodes, weights)
+	c, err := newExactSplinePredictor(local, nodes, weights)
 	if err != nil {
 		return nil, err
 	}
@@ -164,50 +164,42 @@ func (p *localPredictor) FactorAll(xs []Vec, dst []Mat) {
 		groups = append(groups, cellGroup{lo, hi})
 		lo = hi
 	}
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for range runtime.GOMAXPROCS(0) {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			p.solveGroups(xs, dst, order, keys, groups, &next)
-		}()
-	}
-	wg.Wait()
+	parallel.Blocks(len(groups), 1, func() *groupScratch { return new(groupScratch) }, func(s *groupScratch, lo, hi int) {
+		for _, g := range groups[lo:hi] {
+			p.solveGroup(xs, dst, order, keys, g, s)
+		}
+	})
 }
 
 // cellGroup is a run of points, in sorted order, that share a cell.
 type cellGroup struct{ lo, hi int }
 
-// solveGroups takes groups one at a time until none is left.
-func (p *localPredictor) solveGroups(xs []Vec, dst []Mat, order []int, keys [][3]int, groups []cellGroup, next *atomic.Int64) {
-	var pts []Vec
-	var out []Mat
-	for {
-		gi := int(next.Add(1)) - 1
-		if gi >= len(groups) {
-			return
+// groupScratch is one worker's memory for the points of a group.
+type groupScratch struct {
+	pts []Vec
+	out []Mat
+}
+
+// solveGroup factors the points of one group and writes each point's
+// factor to its own slot of dst.
+func (p *localPredictor) solveGroup(xs []Vec, dst []Mat, order []int, keys [][3]int, g cellGroup, s *groupScratch) {
+	pts, out := s.pts[:0], s.out[:0]
+	for _, i := range order[g.lo:g.hi] {
+		pts = append(pts, xs[i])
+	}
+	out = append(out, make([]Mat, len(pts))...)
+	s.pts, s.out = pts, out
+	c, err := p.cellFor(keys[order[g.lo]])
+	if err != nil {
+		e := p.exact()
+		for k, x := range pts {
+			out[k] = e.Factor(x)
 		}
-		{
-			g := groups[gi]
-			pts, out = pts[:0], out[:0]
-			for _, i := range order[g.lo:g.hi] {
-				pts = append(pts, xs[i])
-			}
-			out = append(out, make([]Mat, len(pts))...)
-			c, err := p.cellFor(keys[order[g.lo]])
-			if err != nil {
-				e := p.exact()
-				for k, x := range pts {
-					out[k] = e.Factor(x)
-				}
-			} else {
-				c.FactorAll(pts, out)
-			}
-			for k, i := range order[g.lo:g.hi] {
-				dst[i] = out[k]
-			}
-		}
+	} else {
+		c.FactorAll(pts, out)
+	}
+	for k, i := range order[g.lo:g.hi] {
+		dst[i] = out[k]
 	}
 }
 

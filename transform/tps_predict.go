@@ -3,8 +3,8 @@ package transform
 import (
 	"errors"
 	"fmt"
-	"runtime"
-	"sync"
+
+	"ferry/internal/parallel"
 
 	"gonum.org/v1/gonum/blas/gonum"
 	"gonum.org/v1/gonum/mat"
@@ -49,6 +49,9 @@ type splinePredictor struct {
 // checked for length only. Up to localNodes nodes it is exact; beyond, it
 // is the neighbourhood predictor of localPredictor.
 func newSplinePredictor(s *Spline, src []Vec, weights []float64) (Predictor, error) {
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
 	if src != nil && len(src) != len(s.Nodes) {
 		return nil, fmt.Errorf("predictor given %d source points for a spline of %d nodes", len(src), len(s.Nodes))
 	}
@@ -92,26 +95,9 @@ func (p *splinePredictor) Factor(x Vec) Mat {
 // FactorAll sets dst[i] = Factor(xs[i]) for every point, on all cores.
 func (p *splinePredictor) FactorAll(xs []Vec, dst []Mat) {
 	const block = 128
-	workers := runtime.GOMAXPROCS(0)
-	nblocks := (len(xs) + block - 1) / block
-	var wg sync.WaitGroup
-	next := make(chan int, nblocks)
-	for b := range nblocks {
-		next <- b
-	}
-	close(next)
-	for range min(workers, max(nblocks, 1)) {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			scratch := newPredictScratch(p, block)
-			for b := range next {
-				lo, hi := b*block, min((b+1)*block, len(xs))
-				p.factorBlock(xs[lo:hi], dst[lo:hi], scratch)
-			}
-		}()
-	}
-	wg.Wait()
+	parallel.Blocks(len(xs), block, func() *predictScratch { return newPredictScratch(p, block) }, func(s *predictScratch, lo, hi int) {
+		p.factorBlock(xs[lo:hi], dst[lo:hi], s)
+	})
 }
 
 // predictScratch is one worker's memory for a block of points.

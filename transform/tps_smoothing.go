@@ -3,8 +3,6 @@ package transform
 import (
 	"errors"
 	"math"
-	"runtime"
-	"sync"
 
 	"ferry/internal/parallel"
 
@@ -163,38 +161,25 @@ func CheckSmoothingPath(dim int, src, dst []Vec, opt Options) error {
 func (p *SmoothingPath) LeaveOneOut(smoothings []float64) ([][]Vec, []error) {
 	loo := make([][]Vec, len(smoothings))
 	errs := make([]error, len(smoothings))
-	workers := min(runtime.GOMAXPROCS(0), SmoothingPathWorkers, len(smoothings))
-	var next int
-	var mu sync.Mutex
-	var wg sync.WaitGroup
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			// Each worker reuses its matrix and its factor's storage from
-			// one smoothing to the next: at 2,000 pairs each is 32 MB.
-			buf := make([]float64, p.n*p.n)
-			var chol mat.Cholesky
-			for {
-				mu.Lock()
-				i := next
-				next++
-				mu.Unlock()
-				if i >= len(smoothings) {
-					return
-				}
-				if err := p.opt.cancelled(); err != nil {
-					errs[i] = err
-					continue
-				}
-				loo[i], errs[i] = p.at(smoothings[i], buf, &chol)
-				if p.Each != nil {
-					p.Each()
-				}
-			}
-		}()
+	// Each worker reuses its matrix and its factor's storage from one
+	// smoothing to the next: at 2,000 pairs each is 32 MB.
+	type scratch struct {
+		buf  []float64
+		chol mat.Cholesky
 	}
-	wg.Wait()
+	newScratch := func() *scratch { return &scratch{buf: make([]float64, p.n*p.n)} }
+	parallel.BlocksUpTo(len(smoothings), 1, SmoothingPathWorkers, newScratch, func(s *scratch, lo, hi int) {
+		for i := lo; i < hi; i++ {
+			if err := p.opt.cancelled(); err != nil {
+				errs[i] = err
+				continue
+			}
+			loo[i], errs[i] = p.at(smoothings[i], s.buf, &s.chol)
+			if p.Each != nil {
+				p.Each()
+			}
+		}
+	})
 	return loo, errs
 }
 

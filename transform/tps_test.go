@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"strings"
+	"sync"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -560,7 +561,7 @@ func TestSplineFileRoundTrip(t *testing.T) {
 			if err := json.Unmarshal(b, &back); err != nil {
 				t.Fatal(err)
 			}
-			if err := back.validate(); err != nil {
+			if err := back.Validate(); err != nil {
 				t.Fatalf("validate: %v", err)
 			}
 			for _, p := range c.queryPoints(15, 20) {
@@ -602,7 +603,7 @@ func TestSplineValidateRefusesDamage(t *testing.T) {
 				t.Fatal(err)
 			}
 			c.damage(&s)
-			err := s.validate()
+			err := s.Validate()
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Fatalf("validate: %v, want an error containing %q", err, c.want)
 			}
@@ -767,6 +768,87 @@ func TestSplineRefusesBadOptions(t *testing.T) {
 	for _, opt := range []Options{{Smoothing: math.NaN()}, {Smoothing: -2}, {Weights: make([]float64, 10)}} {
 		if _, err := Fit(TPS, 3, src, dst, opt); err == nil {
 			t.Errorf("Fit with %+v: no error", opt)
+		}
+	}
+}
+
+// A Spline built from its exported fields, never validated, maps, inverts
+// and predicts exactly as the fitted one it copies; one whose fields break
+// the spline's conditions is refused by every method that would read them,
+// where before it mapped with its affine part only.
+func TestSplineBuiltFromFields(t *testing.T) {
+	for _, c := range []warpCase{{dim: 3, n: 12, noise: 1}, {dim: 2, n: 12, noise: 1}} {
+		src, dst, _ := c.pairs(17)
+		_, fitted := fitSplineT(t, c.dim, src, dst, Options{Smoothing: 0.5})
+		built := &Spline{
+			Dimension: fitted.Dimension, Centre: fitted.Centre, Scale: fitted.Scale,
+			Nodes: fitted.Nodes, Weights: fitted.Weights, Matrix: fitted.Matrix,
+			Offset: fitted.Offset, Smoothing: fitted.Smoothing,
+		}
+		for _, p := range c.queryPoints(18, 10) {
+			if got, want := built.Apply(p), fitted.Apply(p); got != want {
+				t.Errorf("%d-D Apply(%v): built %v, fitted %v", c.dim, p, got, want)
+			}
+			if got, want := built.Jacobian(p), fitted.Jacobian(p); got != want {
+				t.Errorf("%d-D Jacobian(%v): built %v, fitted %v", c.dim, p, got, want)
+			}
+			q := fitted.Apply(p)
+			got, gerr := built.Invert(q)
+			want, werr := fitted.Invert(q)
+			if got != want || (gerr == nil) != (werr == nil) {
+				t.Errorf("%d-D Invert(%v): built %v (%v), fitted %v (%v)", c.dim, q, got, gerr, want, werr)
+			}
+		}
+		if _, err := NewPredictor(built, nil, nil); err != nil {
+			t.Errorf("%d-D NewPredictor of the built spline: %v", c.dim, err)
+		}
+
+		// The first uses may come from several goroutines at once.
+		fresh := built.clone()
+		pts := c.queryPoints(19, 8)
+		got := make([]Vec, len(pts))
+		var wg sync.WaitGroup
+		for i, p := range pts {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				got[i] = fresh.Apply(p)
+			}()
+		}
+		wg.Wait()
+		for i, p := range pts {
+			if want := fitted.Apply(p); got[i] != want {
+				t.Errorf("%d-D concurrent first Apply(%v): %v, fitted %v", c.dim, p, got[i], want)
+			}
+		}
+
+		bad := built.clone()
+		bad.Weights = append([]Vec(nil), fitted.Weights...)
+		bad.Weights[0][0] += 1
+		const want = "side conditions"
+		if err := bad.Validate(); err == nil || !strings.Contains(err.Error(), want) {
+			t.Errorf("%d-D Validate of a broken spline: %v, want an error containing %q", c.dim, err, want)
+		}
+		if _, err := bad.Invert(fitted.Offset); err == nil || !strings.Contains(err.Error(), want) {
+			t.Errorf("%d-D Invert of a broken spline: %v, want an error containing %q", c.dim, err, want)
+		}
+		if _, err := NewPredictor(bad, nil, nil); err == nil || !strings.Contains(err.Error(), want) {
+			t.Errorf("%d-D NewPredictor of a broken spline: %v, want an error containing %q", c.dim, err, want)
+		}
+		for name, use := range map[string]func(){
+			"Apply":             func() { bad.Apply(fitted.Centre) },
+			"Jacobian":          func() { bad.Jacobian(fitted.Centre) },
+			"ApplyWithJacobian": func() { ApplyWithJacobian(bad, fitted.Centre) },
+		} {
+			func() {
+				defer func() {
+					r := recover()
+					if s, _ := r.(string); !strings.Contains(s, want) {
+						t.Errorf("%d-D %s of a broken spline: recovered %v, want a panic containing %q", c.dim, name, r, want)
+					}
+				}()
+				use()
+			}()
 		}
 	}
 }

@@ -37,9 +37,16 @@ func Ranges(n, minChunk int, work func(lo, hi int)) {
 // for integers). With a single block, or a single core, everything runs on
 // the calling goroutine.
 func Blocks[S any](n, block int, newScratch func() S, work func(scratch S, lo, hi int)) []S {
+	return BlocksUpTo(n, block, runtime.GOMAXPROCS(0), newScratch, work)
+}
+
+// BlocksUpTo is Blocks on at most workers workers (and never more than one
+// per core), for jobs whose scratch is so large that the number of copies
+// alive at once must be bounded whatever the machine.
+func BlocksUpTo[S any](n, block, workers int, newScratch func() S, work func(scratch S, lo, hi int)) []S {
 	block = max(block, 1)
 	blocks := (n + block - 1) / block
-	workers := min(runtime.GOMAXPROCS(0), blocks)
+	workers = min(workers, runtime.GOMAXPROCS(0), blocks)
 	if workers < 2 {
 		s := newScratch()
 		for lo := 0; lo < n; lo += block {

@@ -54,3 +54,31 @@ func check(t *testing.T, shape string, procs, n, chunk int, seen []int32) {
 		}
 	}
 }
+
+// BlocksUpTo never runs more workers than it is allowed, and still visits
+// every index once.
+func TestBlocksUpToBound(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	runtime.GOMAXPROCS(7)
+	for _, limit := range []int{1, 2, 3} {
+		var live, most atomic.Int32
+		seen := make([]int32, 50)
+		ss := BlocksUpTo(len(seen), 1, limit, func() int { return 0 }, func(_ int, lo, hi int) {
+			now := live.Add(1)
+			for {
+				m := most.Load()
+				if now <= m || most.CompareAndSwap(m, now) {
+					break
+				}
+			}
+			for i := lo; i < hi; i++ {
+				atomic.AddInt32(&seen[i], 1)
+			}
+			live.Add(-1)
+		})
+		check(t, "BlocksUpTo", 7, len(seen), 1, seen)
+		if len(ss) > limit || int(most.Load()) > limit {
+			t.Errorf("BlocksUpTo(…, %d, …): %d scratches, %d blocks at once", limit, len(ss), most.Load())
+		}
+	}
+}
