@@ -49,6 +49,23 @@ type ProjectedSym struct {
 // the contrasts of the columns p (m columns of length N, overwritten) and
 // reduces it. It refuses columns of P that are dependent.
 func NewProjectedSym(p [][]float64, k []float64) (*ProjectedSym, error) {
+	return newProjectedSymBy(p, k, dsytrdLower)
+}
+
+// dsytrdLower reduces the symmetric n×n matrix a (lower triangle) to
+// tridiagonal form with gonum's Dsytrd, on one core.
+func dsytrdLower(n int, a []float64, lda int, d, e, tau []float64) {
+	var impl gonum.Implementation
+	work := make([]float64, 1)
+	impl.Dsytrd(blas.Lower, n, a, lda, d, e, tau, work, -1)
+	work = make([]float64, max(int(work[0]), 1))
+	impl.Dsytrd(blas.Lower, n, a, lda, d, e, tau, work, len(work))
+}
+
+// newProjectedSymBy is NewProjectedSym with the tridiagonal reduction
+// given: gonum's Dsytrd (dsytrdLower) or the reduction on every core
+// (tridiagonalise), which sums the same quantities in another order.
+func newProjectedSymBy(p [][]float64, k []float64, reduce func(n int, a []float64, lda int, d, e, tau []float64)) (*ProjectedSym, error) {
 	m := len(p)
 	if m == 0 {
 		return nil, errors.New("projected matrix: no columns to project out")
@@ -72,13 +89,10 @@ func NewProjectedSym(p [][]float64, k []float64) (*ProjectedSym, error) {
 	}
 	s.diag, s.off = make([]float64, n), make([]float64, max(n-1, 0))
 	s.tauT = make([]float64, max(n-1, 1))
-	var impl gonum.Implementation
-	work := make([]float64, 1)
-	impl.Dsytrd(blas.Lower, n, s.red, n, s.diag, s.off, s.tauT, work, -1)
-	work = make([]float64, max(int(work[0]), 1))
-	impl.Dsytrd(blas.Lower, n, s.red, n, s.diag, s.off, s.tauT, work, len(work))
+	reduce(n, s.red, n, s.diag, s.off, s.tauT)
 	s.eig = append([]float64(nil), s.diag...)
 	e := append([]float64(nil), s.off...)
+	var impl gonum.Implementation
 	if !impl.Dsterf(n, s.eig, e) {
 		return nil, errors.New("projected matrix: the eigenvalues did not converge")
 	}

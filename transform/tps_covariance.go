@@ -156,22 +156,8 @@ func (p *splinePredictor) crossRows(xs []Vec, wantLeft, wantRight bool) (left, r
 		for i := range B {
 			u := xs[lo+i].Sub(sys.centre).Scale(1 / sys.scale)
 			us[lo+i] = u
-			sys.kernelVector(u, k)
-			for r := range m {
-				applyReflector(k, sys.v[r], sys.tau[r], r)
-			}
 			al := alpha[i*m : (i+1)*m]
-			al[0] = 1
-			for l := range sys.dim {
-				al[1+l] = u[l]
-			}
-			for r := range m {
-				v := al[r]
-				for l := range r {
-					v -= sys.r[l][r] * al[l]
-				}
-				al[r] = v / sys.r[r][r]
-			}
+			sys.projectPoint(u, k, al)
 			copy(t1[i*m:(i+1)*m], k[:m])
 			for j := range n {
 				v := k[m+j]

@@ -125,23 +125,9 @@ func (p *splinePredictor) factorBlock(xs []Vec, dst []Mat, s *predictScratch) {
 	N, m, n, B := len(sys.nodes), sys.m, p.n, len(xs)
 	for b, x := range xs {
 		u := x.Sub(sys.centre).Scale(1 / sys.scale)
-		sys.kernelVector(u, s.k)
-		for k := range m {
-			applyReflector(s.k, sys.v[k], sys.tau[k], k)
-		}
-		// α = R⁻ᵀ p with p = [1, u]: forward substitution.
+		// α = R⁻ᵀ p with p = [1, u].
 		pv := s.alpha[b]
-		pv[0] = 1
-		for l := range sys.dim {
-			pv[1+l] = u[l]
-		}
-		for i := range m {
-			v := pv[i]
-			for l := range i {
-				v -= sys.r[l][i] * pv[l]
-			}
-			pv[i] = v / sys.r[i][i]
-		}
+		sys.projectPoint(u, s.k, pv)
 		copy(s.t1[b], s.k[:m])
 		// y = t₂ − B₂₁ α, stored column b of the block.
 		b12 := sys.b12.RawMatrix()

@@ -8,7 +8,6 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/lapack/gonum"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -335,18 +334,8 @@ func NewSubsetPath(dim int, src, dst []Vec, opt Options) (*SubsetPath, error) {
 		sys.nodes[i] = p.Sub(centre).Scale(1 / scale)
 	}
 	a := sys.kernelMatrix()
-	cols := make([][]float64, m)
-	for k := range m {
-		cols[k] = make([]float64, N)
-		for i, u := range sys.nodes {
-			if k == 0 {
-				cols[k][i] = 1
-			} else {
-				cols[k][i] = u[k-1]
-			}
-		}
-	}
-	ps, err := newProjectedSymCores(cols, a)
+	cols := sys.affineColumns()
+	ps, err := newProjectedSymBy(cols, a, tridiagonalise)
 	if err != nil {
 		return nil, err
 	}
@@ -603,34 +592,4 @@ func cholSolve(lf []float64, k int, v []float64) {
 		}
 		v[i] = s / lf[i*k+i]
 	}
-}
-
-// newProjectedSymCores is NewProjectedSym with the reduction on every core
-// (tridiagonalise) instead of gonum's Dsytrd, whose matrix–vector half runs
-// on one: the same quantities, summed in another order.
-func newProjectedSymCores(p [][]float64, k []float64) (*ProjectedSym, error) {
-	m, N := len(p), len(p[0])
-	v, tau, r := householderColumns(p)
-	for i := range m {
-		if !(math.Abs(r[i][i]) > 1e-12*math.Abs(r[0][0])) {
-			return nil, errors.New("projected matrix: the columns to project out are dependent")
-		}
-	}
-	projectSym(k, N, v, tau)
-	n := N - m
-	s := &ProjectedSym{N: N, m: m, n: n, v: v, tau: tau}
-	s.red = make([]float64, n*n)
-	for i := range n {
-		copy(s.red[i*n:(i+1)*n], k[(m+i)*N+m:(m+i)*N+N])
-	}
-	s.diag, s.off = make([]float64, n), make([]float64, max(n-1, 0))
-	s.tauT = make([]float64, max(n-1, 1))
-	tridiagonalise(n, s.red, n, s.diag, s.off, s.tauT)
-	s.eig = append([]float64(nil), s.diag...)
-	e := append([]float64(nil), s.off...)
-	var impl gonum.Implementation
-	if !impl.Dsterf(n, s.eig, e) {
-		return nil, errors.New("projected matrix: the eigenvalues did not converge")
-	}
-	return s, nil
 }

@@ -221,18 +221,8 @@ func (sys *splineSystem) kernelMatrix() []float64 {
 // (the nodes' RMS radius is 1), and the smallest over √N is the RMS
 // thickness of the cloud across its flattest direction.
 func (sys *splineSystem) factorAffine() error {
-	N, m, dim := len(sys.nodes), sys.m, sys.dim
-	cols := make([][]float64, m)
-	for k := range m {
-		cols[k] = make([]float64, N)
-		for i, u := range sys.nodes {
-			if k == 0 {
-				cols[k][i] = 1
-			} else {
-				cols[k][i] = u[k-1]
-			}
-		}
-	}
+	N, dim := len(sys.nodes), sys.dim
+	cols := sys.affineColumns()
 	sys.v, sys.tau, sys.r = householderColumns(cols)
 	rb := mat.NewDense(dim, dim, nil)
 	for i := range dim {
@@ -251,4 +241,43 @@ func (sys *splineSystem) factorAffine() error {
 			flatShape(dim), sv[dim-1]/root*sys.scale, sv[0]/root*sys.scale)
 	}
 	return nil
+}
+
+// affineColumns are the columns of the affine part at the nodes: a column
+// of ones, then each centred, scaled coordinate (m = dim + 1 columns of
+// length N), the P that the spline's kernel is projected off.
+func (sys *splineSystem) affineColumns() [][]float64 {
+	cols := make([][]float64, sys.m)
+	for k := range sys.m {
+		cols[k] = make([]float64, len(sys.nodes))
+		for i, u := range sys.nodes {
+			if k == 0 {
+				cols[k][i] = 1
+			} else {
+				cols[k][i] = u[k-1]
+			}
+		}
+	}
+	return cols
+}
+
+// projectPoint fills k with the kernel vector of the scaled point u
+// reflected onto the contrasts (Qᵀk) and alpha with R⁻ᵀ[1, u], by forward
+// substitution: the two pieces every prediction at u starts from.
+func (sys *splineSystem) projectPoint(u Vec, k, alpha []float64) {
+	sys.kernelVector(u, k)
+	for r := range sys.m {
+		applyReflector(k, sys.v[r], sys.tau[r], r)
+	}
+	alpha[0] = 1
+	for l := range sys.dim {
+		alpha[1+l] = u[l]
+	}
+	for r := range sys.m {
+		v := alpha[r]
+		for l := range r {
+			v -= sys.r[l][r] * alpha[l]
+		}
+		alpha[r] = v / sys.r[r][r]
+	}
 }
