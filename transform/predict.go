@@ -34,7 +34,7 @@ func NewPredictor(t Transform, src []Vec, weights []float64) (Predictor, error) 
 		// Each step was fitted to its own landmarks; the error of an early
 		// step would have to be carried through the later steps'
 		// Jacobians and added to theirs, which this package does not do.
-		return nil, errors.New("no predictor for a chain of fitted transforms: combining the uncertainty of several fitted steps is not supported yet; build a predictor for each step")
+		return nil, errors.New("no predictor for a chain of fitted transforms: each step was fitted to landmarks of its own and their uncertainties are not combined; build a predictor for each step")
 	}
 	return nil, fmt.Errorf("no predictor for a %s transform", t.Kind())
 }
