@@ -34,12 +34,7 @@ func candidatesTable(n int) []byte {
 // benchmarkReadPoints reads the table data from a file, as the commands do,
 // and reports the speed in bytes of file per second.
 func benchmarkReadPoints(b *testing.B, what string, data []byte, rows int) {
-	path := filepath.Join(b.TempDir(), what+".csv")
-	if err := os.WriteFile(path, data, 0o644); err != nil {
-		b.Fatal(err)
-	}
-	b.SetBytes(int64(len(data)))
-	b.ReportAllocs()
+	path := benchTableFile(b, what, data)
 	cpu0 := cpuSeconds()
 	for b.Loop() {
 		set, err := ReadPoints(path, what)
@@ -72,12 +67,7 @@ func BenchmarkReadCandidates(b *testing.B) {
 func BenchmarkReadTable(b *testing.B) {
 	const rows = 100_000
 	data := cellsTable(rows)
-	path := filepath.Join(b.TempDir(), "cells.csv")
-	if err := os.WriteFile(path, data, 0o644); err != nil {
-		b.Fatal(err)
-	}
-	b.SetBytes(int64(len(data)))
-	b.ReportAllocs()
+	path := benchTableFile(b, "cells", data)
 	cpu0 := cpuSeconds()
 	for b.Loop() {
 		tb, err := ReadTable(path)
@@ -96,4 +86,17 @@ func BenchmarkReadTable(b *testing.B) {
 		}
 	}
 	b.ReportMetric((cpuSeconds()-cpu0)/float64(b.N), "cpu_s/op")
+}
+
+// benchTableFile writes data into the benchmark's temporary folder as
+// what.csv and sets the benchmark up to report bytes of file per second and
+// allocations.
+func benchTableFile(b *testing.B, what string, data []byte) string {
+	path := filepath.Join(b.TempDir(), what+".csv")
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	b.SetBytes(int64(len(data)))
+	b.ReportAllocs()
+	return path
 }
